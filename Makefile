@@ -1,0 +1,30 @@
+# Thin wrapper around CMake: the two set-up commands from the README.
+#   make demo   build fxledger and run the invented demo scenario into demo/out/
+#   make test   build fxledger and run every test (ctest)
+# Both first install the Debian packages the project needs when they are missing.
+
+BUILD ?= build
+CMAKE_FLAGS ?= -DCMAKE_BUILD_TYPE=RelWithDebInfo
+
+.PHONY: all deps build test demo clean sanitize
+
+all: build
+
+deps:
+	@sh tools/install-deps.sh
+
+$(BUILD)/Makefile: CMakeLists.txt
+	cmake -S . -B $(BUILD) $(CMAKE_FLAGS)
+
+build: deps
+	cmake -S . -B $(BUILD) $(CMAKE_FLAGS)
+	cmake --build $(BUILD) -j2
+
+test: build
+	cd $(BUILD) && ctest --output-on-failure -j2
+
+demo: build
+	sh demo/run-demo.sh $(BUILD)/fxledger
+
+clean:
+	rm -rf $(BUILD) demo/out

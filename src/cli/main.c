@@ -1,0 +1,175 @@
+/* The fxledger program: global options, the command table and the one place
+ * where databases are opened, users resolved and the process exits. */
+#include <pwd.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "cli/cli.h"
+
+typedef struct cli_command {
+    const char *name;
+    int (*run)(cli_env *env, int argc, char **argv);
+    const char *summary;
+    int flags;
+} cli_command;
+
+static const cli_command commands[] = {
+    {"init", cmd_init, "create a new fxledger database and its first admin user", 0},
+    {"user", cmd_user, "add, list and deactivate users and their roles", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"setting", cmd_setting, "show and change department settings", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"machine", cmd_machine, "add and list treatment machines and their beams", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"detector", cmd_detector, "add, list, show and retire in vivo detectors", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"calib", cmd_calib, "record and list cross-calibrations against an ion chamber", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"table", cmd_table, "load and list correction-factor tables", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"patient", cmd_patient, "add, list and show patients", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"plan", cmd_plan, "import, list and show treatment plans and their fields", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"levels", cmd_levels, "set and list tolerance and action levels", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"record", cmd_record, "log one fraction's readings and show the verdicts", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"history", cmd_history, "list logged measurements of a patient", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"verify", cmd_verify, "check the audit chain and the database's integrity", CLI_NEEDS_DB | CLI_NEEDS_USER},
+};
+
+static void print_help(void)
+{
+    size_t i;
+
+    printf("fxledger %s - fraction-by-fraction logbook for in vivo dosimetry\n\n", FXL_VERSION);
+    printf("usage: fxledger [--db PATH] [--user NAME] [--json] <command> [options]\n\n");
+    printf("commands:\n");
+    for (i = 0; i < sizeof commands / sizeof commands[0]; i++)
+        printf("  %-10s %s\n", commands[i].name, commands[i].summary);
+    printf("\nglobal options:\n"
+           "  --db PATH     database file (default $FXLEDGER_DB, else ./fxledger.db)\n"
+           "  --user NAME   acting user (default $FXLEDGER_USER, else the login name)\n"
+           "  --json        machine-readable output for listings and results\n"
+           "  --help        this help; 'fxledger <command> --help' for a command\n"
+           "  --version     print the version\n"
+           "\nexit codes: 0 ok, 1 usage, 2 data error, 3 database error, 4 permission denied;\n"
+           "record: 10 not evaluable or implausible, 11 outside tolerance, 12 outside action level.\n");
+    printf("\n");
+    cli_print_caveat(stdout);
+}
+
+static const char *default_user(void)
+{
+    const char *u = getenv("FXLEDGER_USER");
+    struct passwd *pw;
+
+    if (u && *u)
+        return u;
+    pw = getpwuid(getuid());
+    return pw ? pw->pw_name : "unknown";
+}
+
+/* Removes the global options from argv wherever they stand (before "--"). */
+static int take_global_options(cli_env *env, int *argc, char **argv, int *want_help, int *want_version)
+{
+    int i, j = 0;
+
+    for (i = 0; i < *argc; i++) {
+        const char *a = argv[i];
+        if (strcmp(a, "--") == 0) {
+            while (i < *argc)
+                argv[j++] = argv[i++];
+            break;
+        }
+        if (strcmp(a, "--db") == 0 || strcmp(a, "--user") == 0) {
+            if (i + 1 >= *argc) {
+                cli_error("option '%s' needs a value", a);
+                return -1;
+            }
+            if (a[2] == 'd')
+                env->db_path = argv[++i];
+            else
+                env->user = argv[++i];
+        } else if (strncmp(a, "--db=", 5) == 0) {
+            env->db_path = a + 5;
+        } else if (strncmp(a, "--user=", 7) == 0) {
+            env->user = a + 7;
+        } else if (strcmp(a, "--json") == 0) {
+            env->json = 1;
+        } else if (j == 0 && (strcmp(a, "--help") == 0 || strcmp(a, "-h") == 0)) {
+            *want_help = 1;
+        } else if (j == 0 && strcmp(a, "--version") == 0) {
+            *want_version = 1;
+        } else {
+            argv[j++] = argv[i];
+        }
+    }
+    *argc = j;
+    return 0;
+}
+
+static int finish(int code)
+{
+    /* A full disk or closed pipe must not pass silently. */
+    if (fflush(stdout) != 0 || ferror(stdout)) {
+        fprintf(stderr, "fxledger: error: could not write output\n");
+        return code ? code : CLI_EXIT_DB;
+    }
+    return code;
+}
+
+int main(int argc, char **argv)
+{
+    cli_env env = {0};
+    const cli_command *cmd = NULL;
+    const char *nocolor = getenv("NO_COLOR");
+    int want_help = 0, want_version = 0, rc, flags;
+    size_t i;
+
+    env.db_path = getenv("FXLEDGER_DB");
+    if (!env.db_path || !*env.db_path)
+        env.db_path = "fxledger.db";
+    env.user = NULL;
+    env.color = isatty(STDOUT_FILENO) && !(nocolor && *nocolor);
+    env.interactive = isatty(STDIN_FILENO);
+
+    argc--;
+    argv++;
+    if (take_global_options(&env, &argc, argv, &want_help, &want_version) != 0)
+        return finish(CLI_EXIT_USAGE);
+    if (!env.user)
+        env.user = default_user();
+    if (want_version) {
+        printf("fxledger %s\n", FXL_VERSION);
+        return finish(0);
+    }
+    if (want_help || argc == 0) {
+        print_help();
+        return finish(argc == 0 && !want_help ? CLI_EXIT_USAGE : 0);
+    }
+    for (i = 0; i < sizeof commands / sizeof commands[0]; i++)
+        if (strcmp(argv[0], commands[i].name) == 0)
+            cmd = &commands[i];
+    if (!cmd) {
+        cli_error("unknown command '%s' (see 'fxledger --help')", argv[0]);
+        return finish(CLI_EXIT_USAGE);
+    }
+    env.command = cmd->name;
+    flags = cmd->flags;
+
+    /* Help needs no database. */
+    for (i = 1; i < (size_t)argc; i++)
+        if (strcmp(argv[i], "--help") == 0 || strcmp(argv[i], "-h") == 0)
+            flags = 0;
+
+    if (flags & (CLI_NEEDS_DB | CLI_READONLY)) {
+        rc = fxl_open(&env.ctx, env.db_path, (flags & CLI_READONLY) ? FXL_OPEN_READONLY : 0);
+        if (rc != 0) {
+            rc = cli_fail(&env, rc);
+            fxl_close(env.ctx);
+            return finish(rc);
+        }
+        if ((flags & CLI_NEEDS_USER) && (rc = fxl_set_user(env.ctx, env.user)) != 0) {
+            rc = cli_fail(&env, rc);
+            fxl_close(env.ctx);
+            return finish(rc);
+        }
+    }
+    rc = cmd->run(&env, argc, argv);
+    fxl_close(env.ctx);
+    return finish(rc);
+}

@@ -1,0 +1,228 @@
+/* Option parsing, number parsing, sub-command dispatch and output helpers
+ * shared by every command. */
+#include <errno.h>
+#include <math.h>
+#include <stdarg.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "cli/cli.h"
+
+void cli_error(const char *fmt, ...)
+{
+    va_list ap;
+
+    fputs("fxledger: error: ", stderr);
+    va_start(ap, fmt);
+    vfprintf(stderr, fmt, ap);
+    va_end(ap);
+    fputc('\n', stderr);
+}
+
+int cli_exit_code(int fxl_code)
+{
+    switch (fxl_code) {
+    case FXL_OK: return CLI_EXIT_OK;
+    case FXL_ENOTFOUND:
+    case FXL_EINVAL:
+    case FXL_ECONFLICT:
+    case FXL_ERANGE: return CLI_EXIT_DATA;
+    case FXL_EPERM: return CLI_EXIT_PERM;
+    default: return CLI_EXIT_DB;
+    }
+}
+
+int cli_fail(cli_env *env, int code)
+{
+    cli_error("%s", fxl_errmsg(env->ctx));
+    return cli_exit_code(code);
+}
+
+static void print_usage(const char *synopsis, const char *about, const cli_opt *opts)
+{
+    const cli_opt *o;
+
+    printf("usage: fxledger %s\n", synopsis);
+    if (about)
+        printf("\n%s\n", about);
+    if (opts && opts[0].name) {
+        printf("\noptions:\n");
+        for (o = opts; o->name; o++) {
+            char left[48];
+            snprintf(left, sizeof left, "--%s%s%s", o->name, o->arg ? " " : "", o->arg ? o->arg : "");
+            printf("  %-24s %s\n", left, o->help);
+        }
+    }
+    printf("  %-24s %s\n", "--json", "machine-readable output (global)");
+    printf("  %-24s %s\n", "--help", "this help");
+}
+
+int cli_parse(cli_env *env, const char *synopsis, const char *about, cli_opt *opts,
+              int argc, char **argv, const char **pos, int max_pos, int *npos)
+{
+    int i, only_pos = 0;
+    cli_opt *o;
+
+    (void)env;
+    *npos = 0;
+    for (o = opts; o && o->name; o++)
+        o->value = NULL;
+    for (i = 1; i < argc; i++) {
+        const char *a = argv[i];
+        if (!only_pos && strcmp(a, "--") == 0) {
+            only_pos = 1;
+            continue;
+        }
+        if (!only_pos && (strcmp(a, "--help") == 0 || strcmp(a, "-h") == 0)) {
+            print_usage(synopsis, about, opts);
+            return 1;
+        }
+        if (!only_pos && a[0] == '-' && a[1] == '-') {
+            const char *name = a + 2, *eq = strchr(name, '=');
+            size_t len = eq ? (size_t)(eq - name) : strlen(name);
+            cli_opt *found = NULL;
+            for (o = opts; o && o->name; o++)
+                if (strlen(o->name) == len && strncmp(o->name, name, len) == 0)
+                    found = o;
+            if (!found) {
+                cli_error("unknown option '--%.*s' (see 'fxledger %s --help')", (int)len, name,
+                          env->command ? env->command : "");
+                return -1;
+            }
+            if (found->arg) {
+                if (eq) {
+                    found->value = eq + 1;
+                } else if (i + 1 < argc) {
+                    found->value = argv[++i];
+                } else {
+                    cli_error("option '--%s' needs a value %s", found->name, found->arg);
+                    return -1;
+                }
+            } else {
+                if (eq) {
+                    cli_error("option '--%s' takes no value", found->name);
+                    return -1;
+                }
+                found->value = "1";
+            }
+            continue;
+        }
+        if (*npos >= max_pos) {
+            cli_error("unexpected argument '%s' (see 'fxledger %s --help')", a,
+                      env->command ? env->command : "");
+            return -1;
+        }
+        pos[(*npos)++] = a;
+    }
+    return 0;
+}
+
+const char *cli_get(const cli_opt *opts, const char *name)
+{
+    const cli_opt *o;
+
+    for (o = opts; o->name; o++)
+        if (strcmp(o->name, name) == 0)
+            return o->value;
+    return NULL;
+}
+
+int cli_double(double *out, const char *text, const char *field, double lo, double hi,
+               const char *unit)
+{
+    char *end = NULL;
+    double v;
+
+    if (!text || !*text) {
+        cli_error("%s is required (%g to %g %s)", field, lo, hi, unit);
+        return -1;
+    }
+    errno = 0;
+    v = strtod(text, &end);
+    if (errno != 0 || end == text || *end != '\0' || !isfinite(v)) {
+        cli_error("%s '%s' is not a number (%g to %g %s)", field, text, lo, hi, unit);
+        return -1;
+    }
+    if (v < lo || v > hi) {
+        cli_error("%s '%s' is out of range: must be %g to %g %s", field, text, lo, hi, unit);
+        return -1;
+    }
+    *out = v;
+    return 0;
+}
+
+int cli_int(long *out, const char *text, const char *field, long lo, long hi)
+{
+    char *end = NULL;
+    long v;
+
+    if (!text || !*text) {
+        cli_error("%s is required (%ld to %ld)", field, lo, hi);
+        return -1;
+    }
+    errno = 0;
+    v = strtol(text, &end, 10);
+    if (errno != 0 || end == text || *end != '\0') {
+        cli_error("%s '%s' is not a whole number (%ld to %ld)", field, text, lo, hi);
+        return -1;
+    }
+    if (v < lo || v > hi) {
+        cli_error("%s '%s' is out of range: must be %ld to %ld", field, text, lo, hi);
+        return -1;
+    }
+    *out = v;
+    return 0;
+}
+
+int cli_dispatch_sub(cli_env *env, const cli_sub *subs, const char *about, int argc, char **argv)
+{
+    const cli_sub *s;
+
+    if (argc < 2 || strcmp(argv[1], "--help") == 0 || strcmp(argv[1], "-h") == 0) {
+        printf("usage: fxledger %s <sub-command> [options]\n\n%s\n\nsub-commands:\n", argv[0], about);
+        for (s = subs; s->name; s++)
+            printf("  %-10s %s\n", s->name, s->summary);
+        printf("\n'fxledger %s <sub-command> --help' describes each.\n", argv[0]);
+        return argc < 2 ? CLI_EXIT_USAGE : CLI_EXIT_OK;
+    }
+    for (s = subs; s->name; s++)
+        if (strcmp(argv[1], s->name) == 0)
+            return s->run(env, argc - 1, argv + 1);
+    cli_error("unknown sub-command '%s %s' (see 'fxledger %s --help')", argv[0], argv[1], argv[0]);
+    return CLI_EXIT_USAGE;
+}
+
+int cli_print_json(cJSON *value)
+{
+    char *text = cJSON_Print(value);
+
+    cJSON_Delete(value);
+    if (!text) {
+        cli_error("out of memory printing JSON");
+        return CLI_EXIT_DB;
+    }
+    puts(text);
+    free(text);
+    return CLI_EXIT_OK;
+}
+
+void cli_print_caveat(FILE *out)
+{
+    fputs("Caution: these results support, and do not replace, the judgement of a qualified\n"
+          "medical physicist. Tolerance and action levels are local settings; follow your\n"
+          "department's procedures and local regulations.\n",
+          out);
+}
+
+const char *cli_color(const cli_env *env, const char *code)
+{
+    static char buf[4][12];
+    static int next;
+    char *b;
+
+    if (!env->color || env->json)
+        return "";
+    b = buf[next++ % 4];
+    snprintf(b, sizeof buf[0], "\033[%sm", code);
+    return b;
+}

@@ -1,0 +1,24 @@
+/* The context handle behind fxl_ctx: the SQLite connection, the acting user
+ * and the last error message. Private to src/store. */
+#ifndef FXL_STORE_CTX_H
+#define FXL_STORE_CTX_H
+
+#include <sqlite3.h>
+#include <stdint.h>
+
+#include "fxl/fxl.h"
+
+struct fxl_ctx {
+    sqlite3 *db;
+    int readonly;
+    char errmsg[512];
+    int64_t user_id;
+    char user_login[65];
+    fxl_role user_role;
+};
+
+/* Maps the connection's last SQLite error to FXL_EBUSY, FXL_ECONFLICT (a
+ * UNIQUE constraint) or FXL_EDB, with a message that starts with `what`. */
+int fxl_db_fail(fxl_ctx *ctx, const char *what);
+
+#endif

@@ -1,0 +1,355 @@
+/* Opening an fxledger database: connection settings, identity and version
+ * checks, migrations; plus the acting user, transactions, clock and settings. */
+#include <errno.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <time.h>
+
+#include "store/audit.h"
+#include "store/ctx.h"
+#include "store/migrations.h"
+#include "store/stmt.h"
+
+/* How long a writer waits for another process's lock before "busy". */
+#define BUSY_TIMEOUT_MS 5000
+
+int fxl_fail(fxl_ctx *ctx, int code, const char *fmt, ...)
+{
+    va_list ap;
+
+    if (ctx) {
+        va_start(ap, fmt);
+        vsnprintf(ctx->errmsg, sizeof ctx->errmsg, fmt, ap);
+        va_end(ap);
+    }
+    return code;
+}
+
+const char *fxl_errmsg(const fxl_ctx *ctx)
+{
+    return ctx ? ctx->errmsg : "out of memory";
+}
+
+int fxl_schema_latest(void)
+{
+    return fxl_migrations[fxl_migration_count - 1].version;
+}
+
+static int pragma_int(fxl_ctx *ctx, const char *sql, int *out)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc = fxl_stmt_prepare(&s, ctx, sql);
+
+    if (rc == 0) {
+        rc = fxl_stmt_step(&s);
+        if (rc == 1) {
+            *out = (int)fxl_stmt_int(&s, 0);
+            rc = 0;
+        } else if (rc == 0) {
+            rc = fxl_fail(ctx, FXL_EDB, "internal: '%s' returned no row", sql);
+        }
+    }
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
+int fxl_schema_version(fxl_ctx *ctx)
+{
+    int v = -1;
+    pragma_int(ctx, "PRAGMA user_version", &v);
+    return v;
+}
+
+/* Applies every migration above the file's user_version, each in its own
+ * transaction together with the version bump. */
+static int migrate(fxl_ctx *ctx, int from_version)
+{
+    char sql[64];
+    int i, rc;
+
+    for (i = 0; i < fxl_migration_count; i++) {
+        const struct fxl_migration *m = &fxl_migrations[i];
+        if (m->version <= from_version)
+            continue;
+        if ((rc = fxl_exec(ctx, "BEGIN IMMEDIATE")) != 0)
+            return rc;
+        rc = fxl_exec(ctx, m->sql);
+        if (rc == 0) {
+            snprintf(sql, sizeof sql, "PRAGMA user_version = %d", m->version);
+            rc = fxl_exec(ctx, sql);
+        }
+        if (rc == 0 && from_version == 0) {
+            snprintf(sql, sizeof sql, "PRAGMA application_id = %d", FXL_APPLICATION_ID);
+            rc = fxl_exec(ctx, sql);
+        }
+        if (rc != 0) {
+            char why[sizeof ctx->errmsg];
+            snprintf(why, sizeof why, "%s", ctx->errmsg);
+            fxl_exec(ctx, "ROLLBACK");
+            return fxl_fail(ctx, rc, "migration '%s' failed: %.400s", m->name, why);
+        }
+        if ((rc = fxl_exec(ctx, "COMMIT")) != 0)
+            return rc;
+    }
+    return 0;
+}
+
+static int is_empty_database(fxl_ctx *ctx, int *empty)
+{
+    int n = 0;
+    int rc = pragma_int(ctx, "SELECT count(*) FROM sqlite_schema", &n);
+    *empty = (n == 0);
+    return rc;
+}
+
+int fxl_open(fxl_ctx **out, const char *path, int flags)
+{
+    fxl_ctx *ctx;
+    struct stat st;
+    int sqlflags, rc, app_id = 0, version = 0, empty = 0;
+
+    *out = ctx = calloc(1, sizeof *ctx);
+    if (!ctx)
+        return FXL_EIO;
+    ctx->readonly = (flags & FXL_OPEN_READONLY) != 0;
+
+    if (stat(path, &st) != 0) {
+        if (!(flags & FXL_OPEN_CREATE))
+            return fxl_fail(ctx, FXL_EIO,
+                            "database '%s' does not exist (create it with 'fxledger init')", path);
+    } else if (flags & FXL_OPEN_CREATE) {
+        return fxl_fail(ctx, FXL_ECONFLICT, "database '%s' already exists", path);
+    }
+
+    sqlflags = ctx->readonly ? SQLITE_OPEN_READONLY
+                             : SQLITE_OPEN_READWRITE | ((flags & FXL_OPEN_CREATE) ? SQLITE_OPEN_CREATE : 0);
+    if (sqlite3_open_v2(path, &ctx->db, sqlflags, NULL) != SQLITE_OK)
+        return fxl_fail(ctx, FXL_EIO, "cannot open database '%s': %s", path,
+                        ctx->db ? sqlite3_errmsg(ctx->db) : "out of memory");
+    sqlite3_busy_timeout(ctx->db, BUSY_TIMEOUT_MS);
+    sqlite3_extended_result_codes(ctx->db, 1);
+
+    /* A file that is not SQLite at all fails on its first read. */
+    if (pragma_int(ctx, "PRAGMA application_id", &app_id) != 0 ||
+        is_empty_database(ctx, &empty) != 0)
+        return fxl_fail(ctx, FXL_EVERSION, "'%s' is not an fxledger database", path);
+    if (!empty && app_id != FXL_APPLICATION_ID)
+        return fxl_fail(ctx, FXL_EVERSION, "'%s' is not an fxledger database", path);
+    if (empty && !(flags & FXL_OPEN_CREATE))
+        return fxl_fail(ctx, FXL_EVERSION, "'%s' is not an fxledger database (empty file)", path);
+    if ((rc = pragma_int(ctx, "PRAGMA user_version", &version)) != 0)
+        return rc;
+    if (version > fxl_schema_latest())
+        return fxl_fail(ctx, FXL_EVERSION,
+                        "database '%s' has schema version %d, newer than this fxledger (%d); upgrade fxledger",
+                        path, version, fxl_schema_latest());
+
+    if ((rc = fxl_exec(ctx, "PRAGMA foreign_keys = ON")) != 0)
+        return rc;
+    if (!ctx->readonly) {
+        if ((rc = fxl_exec(ctx, "PRAGMA journal_mode = WAL")) != 0 ||
+            (rc = fxl_exec(ctx, "PRAGMA synchronous = FULL")) != 0)
+            return rc;
+        if (version < fxl_schema_latest() && (rc = migrate(ctx, version)) != 0)
+            return rc;
+    } else if (version < fxl_schema_latest()) {
+        return fxl_fail(ctx, FXL_EVERSION,
+                        "database '%s' has schema version %d; open it once for writing to upgrade",
+                        path, version);
+    }
+    return 0;
+}
+
+void fxl_close(fxl_ctx *ctx)
+{
+    if (!ctx)
+        return;
+    sqlite3_close_v2(ctx->db);
+    free(ctx);
+}
+
+/* ---- users and roles ---------------------------------------------------- */
+
+static const char *const role_names[] = {"therapist", "physicist", "auditor", "admin"};
+
+const char *fxl_role_name(fxl_role role)
+{
+    switch (role) {
+    case FXL_ROLE_THERAPIST: return role_names[0];
+    case FXL_ROLE_PHYSICIST: return role_names[1];
+    case FXL_ROLE_AUDITOR: return role_names[2];
+    case FXL_ROLE_ADMIN: return role_names[3];
+    }
+    return "none";
+}
+
+int fxl_role_parse(fxl_role *out, const char *name)
+{
+    int i;
+
+    for (i = 0; i < 4; i++) {
+        if (name && strcmp(name, role_names[i]) == 0) {
+            *out = (fxl_role)(1 << i);
+            return 0;
+        }
+    }
+    return FXL_EINVAL;
+}
+
+int fxl_set_user(fxl_ctx *ctx, const char *login)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    ctx->user_id = 0;
+    ctx->user_login[0] = '\0';
+    ctx->user_role = 0;
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT id, role, active FROM users WHERE login = :login")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_text(&s, ":login", login);
+    rc = fxl_stmt_step(&s);
+    if (rc == 0) {
+        rc = fxl_fail(ctx, FXL_ENOTFOUND, "unknown user '%s' (see 'fxledger user list')", login);
+    } else if (rc == 1) {
+        if (fxl_stmt_int(&s, 2) == 0) {
+            rc = fxl_fail(ctx, FXL_EPERM, "user '%s' is deactivated", login);
+            goto cleanup;
+        }
+        ctx->user_id = fxl_stmt_int(&s, 0);
+        snprintf(ctx->user_login, sizeof ctx->user_login, "%s", login);
+        fxl_role_parse(&ctx->user_role, fxl_stmt_text(&s, 1));
+        rc = 0;
+    }
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
+const char *fxl_user_login(const fxl_ctx *ctx)
+{
+    return ctx->user_id ? ctx->user_login : NULL;
+}
+
+int64_t fxl_user_id(const fxl_ctx *ctx)
+{
+    return ctx->user_id;
+}
+
+fxl_role fxl_user_role(const fxl_ctx *ctx)
+{
+    return ctx->user_role;
+}
+
+int fxl_require_role(fxl_ctx *ctx, unsigned roles_mask, const char *action)
+{
+    char allowed[64] = "";
+    int i;
+
+    if (!ctx->user_id)
+        return fxl_fail(ctx, FXL_EPERM, "%s needs a user (give --user or set FXLEDGER_USER)", action);
+    if (ctx->user_role & roles_mask)
+        return 0;
+    for (i = 0; i < 4; i++) {
+        if (roles_mask & (1u << i)) {
+            if (allowed[0])
+                strcat(allowed, " or ");
+            strcat(allowed, role_names[i]);
+        }
+    }
+    return fxl_fail(ctx, FXL_EPERM, "permission denied: %s needs the role %s; user '%s' is %s",
+                    action, allowed, ctx->user_login, fxl_role_name(ctx->user_role));
+}
+
+/* ---- transactions and clock -------------------------------------------- */
+
+int fxl_begin(fxl_ctx *ctx)
+{
+    return fxl_exec(ctx, "BEGIN IMMEDIATE");
+}
+
+int fxl_commit(fxl_ctx *ctx)
+{
+    int rc = fxl_exec(ctx, "COMMIT");
+    if (rc != 0)
+        fxl_rollback(ctx);
+    return rc;
+}
+
+void fxl_rollback(fxl_ctx *ctx)
+{
+    if (ctx && ctx->db && !sqlite3_get_autocommit(ctx->db))
+        sqlite3_exec(ctx->db, "ROLLBACK", NULL, NULL, NULL);
+}
+
+void fxl_now(const fxl_ctx *ctx, char *buf)
+{
+    const char *fixed = getenv("FXLEDGER_NOW");
+    time_t t;
+    struct tm tm;
+
+    (void)ctx;
+    if (fixed && strlen(fixed) == FXL_TIME_LEN - 1) {
+        memcpy(buf, fixed, FXL_TIME_LEN);
+        return;
+    }
+    t = time(NULL);
+    gmtime_r(&t, &tm);
+    strftime(buf, FXL_TIME_LEN, "%Y-%m-%dT%H:%M:%SZ", &tm);
+}
+
+/* ---- settings ------------------------------------------------------------ */
+
+int fxl_setting_get(fxl_ctx *ctx, const char *key, char *buf, size_t bufsize)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT value FROM settings WHERE key = :key")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_text(&s, ":key", key);
+    rc = fxl_stmt_step(&s);
+    if (rc == 1) {
+        snprintf(buf, bufsize, "%s", fxl_stmt_text(&s, 0));
+        rc = 0;
+    } else if (rc == 0) {
+        rc = fxl_fail(ctx, FXL_ENOTFOUND, "setting '%s' is not set", key);
+    }
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
+int fxl_setting_set(fxl_ctx *ctx, const char *key, const char *value)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    cJSON *content = NULL;
+    int rc;
+
+    if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "changing settings")) != 0)
+        return rc;
+    if ((rc = fxl_begin(ctx)) != 0)
+        return rc;
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+                               "INSERT INTO settings (key, value) VALUES (:key, :value) "
+                               "ON CONFLICT (key) DO UPDATE SET value = excluded.value")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_text(&s, ":key", key);
+    fxl_stmt_bind_text(&s, ":value", value);
+    if ((rc = fxl_stmt_exec(&s)) != 0)
+        goto cleanup;
+    content = cJSON_CreateObject();
+    cJSON_AddStringToObject(content, "key", key);
+    cJSON_AddStringToObject(content, "value", value);
+    if ((rc = fxl_audit_append(ctx, "set", "settings", 0, content)) != 0)
+        goto cleanup;
+    rc = fxl_commit(ctx);
+cleanup:
+    if (rc != 0)
+        fxl_rollback(ctx);
+    cJSON_Delete(content);
+    fxl_stmt_finalize(&s);
+    return rc;
+}

@@ -1,0 +1,171 @@
+/* Prepared-statement helper for src/store: bind by :name, step, finalize,
+ * with SQLite errors turned into fxledger codes and messages. */
+#include "store/stmt.h"
+
+#include <math.h>
+#include <string.h>
+
+int fxl_db_fail(fxl_ctx *ctx, const char *what)
+{
+    int rc = sqlite3_extended_errcode(ctx->db);
+    const char *msg = sqlite3_errmsg(ctx->db);
+
+    if ((rc & 0xff) == SQLITE_BUSY || (rc & 0xff) == SQLITE_LOCKED)
+        return fxl_fail(ctx, FXL_EBUSY,
+                        "database busy: another process held it past the timeout; try again (%s)",
+                        what);
+    if (rc == SQLITE_CONSTRAINT_UNIQUE || rc == SQLITE_CONSTRAINT_PRIMARYKEY)
+        return fxl_fail(ctx, FXL_ECONFLICT, "%s: already exists (%s)", what, msg);
+    if ((rc & 0xff) == SQLITE_CONSTRAINT)
+        return fxl_fail(ctx, FXL_EINVAL, "%s: refused by the database (%s)", what, msg);
+    return fxl_fail(ctx, FXL_EDB, "%s: %s", what, msg);
+}
+
+int fxl_stmt_prepare(fxl_stmt *s, fxl_ctx *ctx, const char *sql)
+{
+    s->ctx = ctx;
+    s->st = NULL;
+    s->err = 0;
+    if (sqlite3_prepare_v2(ctx->db, sql, -1, &s->st, NULL) != SQLITE_OK)
+        return fxl_db_fail(ctx, "preparing a statement");
+    return 0;
+}
+
+static int param_index(fxl_stmt *s, const char *name)
+{
+    int i;
+
+    if (s->err || !s->st)
+        return 0;
+    i = sqlite3_bind_parameter_index(s->st, name);
+    if (i == 0)
+        s->err = fxl_fail(s->ctx, FXL_EDB, "internal: no parameter '%s' in '%s'",
+                          name, sqlite3_sql(s->st));
+    return i;
+}
+
+static void check_bind(fxl_stmt *s, int rc)
+{
+    if (rc != SQLITE_OK && !s->err)
+        s->err = fxl_db_fail(s->ctx, "binding a value");
+}
+
+void fxl_stmt_bind_text(fxl_stmt *s, const char *name, const char *value)
+{
+    int i = param_index(s, name);
+    if (i)
+        check_bind(s, value ? sqlite3_bind_text(s->st, i, value, -1, SQLITE_TRANSIENT)
+                            : sqlite3_bind_null(s->st, i));
+}
+
+void fxl_stmt_bind_int(fxl_stmt *s, const char *name, int64_t value)
+{
+    int i = param_index(s, name);
+    if (i)
+        check_bind(s, sqlite3_bind_int64(s->st, i, value));
+}
+
+void fxl_stmt_bind_double(fxl_stmt *s, const char *name, double value)
+{
+    int i = param_index(s, name);
+    if (i)
+        check_bind(s, sqlite3_bind_double(s->st, i, value));
+}
+
+void fxl_stmt_bind_double_opt(fxl_stmt *s, const char *name, double value)
+{
+    int i = param_index(s, name);
+    if (i)
+        check_bind(s, isfinite(value) ? sqlite3_bind_double(s->st, i, value)
+                                      : sqlite3_bind_null(s->st, i));
+}
+
+void fxl_stmt_bind_null(fxl_stmt *s, const char *name)
+{
+    int i = param_index(s, name);
+    if (i)
+        check_bind(s, sqlite3_bind_null(s->st, i));
+}
+
+int fxl_stmt_step(fxl_stmt *s)
+{
+    int rc;
+
+    if (s->err)
+        return s->err;
+    if (!s->st)
+        return fxl_fail(s->ctx, FXL_EDB, "internal: step on an unprepared statement");
+    rc = sqlite3_step(s->st);
+    if (rc == SQLITE_ROW)
+        return 1;
+    if (rc == SQLITE_DONE)
+        return 0;
+    return fxl_db_fail(s->ctx, "writing to the database");
+}
+
+int fxl_stmt_exec(fxl_stmt *s)
+{
+    int rc;
+
+    while ((rc = fxl_stmt_step(s)) == 1)
+        ;
+    return rc;
+}
+
+void fxl_stmt_reset(fxl_stmt *s)
+{
+    if (s->st) {
+        sqlite3_reset(s->st);
+        sqlite3_clear_bindings(s->st);
+    }
+    s->err = 0;
+}
+
+void fxl_stmt_finalize(fxl_stmt *s)
+{
+    sqlite3_finalize(s->st);
+    s->st = NULL;
+}
+
+const char *fxl_stmt_text(fxl_stmt *s, int col)
+{
+    const unsigned char *t = sqlite3_column_text(s->st, col);
+    return t ? (const char *)t : "";
+}
+
+int64_t fxl_stmt_int(fxl_stmt *s, int col)
+{
+    return sqlite3_column_int64(s->st, col);
+}
+
+double fxl_stmt_double(fxl_stmt *s, int col)
+{
+    return sqlite3_column_double(s->st, col);
+}
+
+double fxl_stmt_double_opt(fxl_stmt *s, int col)
+{
+    if (sqlite3_column_type(s->st, col) == SQLITE_NULL)
+        return NAN;
+    return sqlite3_column_double(s->st, col);
+}
+
+int fxl_stmt_is_null(fxl_stmt *s, int col)
+{
+    return sqlite3_column_type(s->st, col) == SQLITE_NULL;
+}
+
+int fxl_exec(fxl_ctx *ctx, const char *sql)
+{
+    char *err = NULL;
+    int rc = sqlite3_exec(ctx->db, sql, NULL, NULL, &err);
+
+    if (rc != SQLITE_OK) {
+        int code = ((rc & 0xff) == SQLITE_BUSY || (rc & 0xff) == SQLITE_LOCKED) ? FXL_EBUSY : FXL_EDB;
+        fxl_fail(ctx, code, "%s%s", code == FXL_EBUSY ? "database busy: " : "database error: ",
+                 err ? err : sqlite3_errstr(rc));
+        sqlite3_free(err);
+        return code;
+    }
+    return 0;
+}
