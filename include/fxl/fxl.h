@@ -92,6 +92,16 @@ void fxl_rollback(fxl_ctx *ctx);  /* safe to call when no transaction is open */
  * timestamp, fixes the clock (tests and the demo). */
 void fxl_now(const fxl_ctx *ctx, char *buf);
 
+/* Validates a date or time typed by a person or found in a file and writes
+ * it in the stored form 'YYYY-MM-DDTHH:MM:SSZ'. Accepts 'YYYY-MM-DD' (as
+ * 00:00:00, or 23:59:59 when end_of_day is set, for "valid until" dates),
+ * 'YYYY-MM-DDTHH:MM[:SS]' with an optional 'Z'. All times are UTC. Returns
+ * FXL_EINVAL for anything else or an impossible date (2026-02-30). */
+int fxl_time_normalize(char out[FXL_TIME_LEN], const char *in, int end_of_day);
+
+/* Adds whole days to a stored timestamp (negative to subtract). */
+int fxl_time_add_days(char out[FXL_TIME_LEN], const char *in, int days);
+
 /* Settings (key/value). fxl_setting_get copies into buf; FXL_ENOTFOUND if
  * unset. fxl_setting_set writes and audits (admin or physicist). */
 int fxl_setting_get(fxl_ctx *ctx, const char *key, char *buf, size_t bufsize);

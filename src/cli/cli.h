@@ -110,5 +110,9 @@ int cmd_levels(cli_env *env, int argc, char **argv);
 int cmd_record(cli_env *env, int argc, char **argv);
 int cmd_history(cli_env *env, int argc, char **argv);
 int cmd_verify(cli_env *env, int argc, char **argv);
+int cmd_queue(cli_env *env, int argc, char **argv);
+int cmd_amend(cli_env *env, int argc, char **argv);
+int cmd_backup(cli_env *env, int argc, char **argv);
+int cmd_report(cli_env *env, int argc, char **argv);
 
 #endif

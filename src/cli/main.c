@@ -28,6 +28,10 @@ static const cli_command commands[] = {
     {"levels", cmd_levels, "set and list tolerance and action levels", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"record", cmd_record, "log one fraction's readings and show the verdicts", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"history", cmd_history, "list logged measurements of a patient", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"queue", cmd_queue, "work the review queue: list, show, acknowledge, comment, close", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"amend", cmd_amend, "supersede a mistyped reading with a corrected one", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"report", cmd_report, "write per-patient and monthly PDF summaries", CLI_READONLY | CLI_NEEDS_USER},
+    {"backup", cmd_backup, "copy the database online to a file", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"verify", cmd_verify, "check the audit chain and the database's integrity", CLI_NEEDS_DB | CLI_NEEDS_USER},
 };
 
