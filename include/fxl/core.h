@@ -82,6 +82,7 @@ typedef struct fxl_dose_input {
     double temp_coeff_per_c;         /* detector's a, fraction per degC */
     double temp_c;                   /* temperature at measurement */
     double temp_cal_c;               /* temperature at calibration */
+    const char *reading_unit;        /* for reason texts, e.g. "nC"; may be NULL */
 } fxl_dose_input;
 
 typedef struct fxl_dose_result {
@@ -136,6 +137,7 @@ typedef struct fxl_judge_input {
     double expected_dose_cgy;    /* NaN or <= 0 when missing */
     fxl_levels levels;
     double implausible_pct;      /* |deviation| above this is implausible (default 50) */
+    const char *reading_unit;    /* for reason texts, e.g. "nC"; may be NULL */
 } fxl_judge_input;
 
 typedef struct fxl_judgement {
