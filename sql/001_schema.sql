@@ -254,9 +254,14 @@ CREATE TABLE review_items (
     detector_id    INTEGER REFERENCES detectors(id),
     field_id       INTEGER REFERENCES fields(id),
     summary        TEXT NOT NULL,
-    opened_at      TEXT NOT NULL
+    opened_at      TEXT NOT NULL,
+    -- What a rule over history fired on (e.g. 'field:12:fraction:1'), so that
+    -- one hit opens one item however often the rule is evaluated
+    -- (docs/rules.md); NULL for items on a single result.
+    rule_key       TEXT
 );
 CREATE INDEX review_items_by_status ON review_items (status, severity, opened_at);
+CREATE INDEX review_items_by_rule_key ON review_items (rule, rule_key);
 CREATE INDEX review_items_by_measurement ON review_items (measurement_id);
 
 CREATE TABLE review_events (
