@@ -1,11 +1,260 @@
-/* Placeholder until the plan command family lands. */
+/* fxledger plan: import a plan from fxledger's JSON plan format
+ * (docs/format-plan.md), list plans, show one plan with every field parameter. */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
 #include "cli/cli.h"
+#include "fxl/plan_json.h"
+#include "fxl/plans.h"
+
+static void add_num_or_null(cJSON *o, const char *key, double v)
+{
+    if (isnan(v))
+        cJSON_AddNullToObject(o, key);
+    else
+        cJSON_AddNumberToObject(o, key, v);
+}
+
+static void add_text_or_null(cJSON *o, const char *key, const char *v)
+{
+    if (v && *v)
+        cJSON_AddStringToObject(o, key, v);
+    else
+        cJSON_AddNullToObject(o, key);
+}
+
+static cJSON *plan_json(const fxl_plan *p)
+{
+    cJSON *o = cJSON_CreateObject();
+
+    cJSON_AddNumberToObject(o, "id", (double)p->id);
+    cJSON_AddStringToObject(o, "patient_mrn", p->mrn);
+    cJSON_AddStringToObject(o, "label", p->label);
+    cJSON_AddStringToObject(o, "site", p->site);
+    cJSON_AddStringToObject(o, "technique", p->technique);
+    cJSON_AddNumberToObject(o, "fractions", p->fractions);
+    add_num_or_null(o, "dose_per_fraction_cgy", p->dose_per_fraction_cgy);
+    add_text_or_null(o, "replaces", p->replaces_label);
+    add_text_or_null(o, "replaced_by", p->replaced_by_label);
+    cJSON_AddStringToObject(o, "source", p->source);
+    cJSON_AddNumberToObject(o, "field_rows", (double)p->n_fields);
+    cJSON_AddNumberToObject(o, "fractions_logged", p->fractions_logged);
+    cJSON_AddStringToObject(o, "imported_by", p->created_by);
+    cJSON_AddStringToObject(o, "imported_at", p->created_at);
+    return o;
+}
+
+static cJSON *field_json(const fxl_field *f)
+{
+    cJSON *o = cJSON_CreateObject();
+
+    cJSON_AddNumberToObject(o, "id", (double)f->id);
+    cJSON_AddStringToObject(o, "name", f->name);
+    cJSON_AddStringToObject(o, "point", f->point);
+    cJSON_AddStringToObject(o, "machine", f->machine);
+    cJSON_AddStringToObject(o, "beam", f->beam);
+    cJSON_AddStringToObject(o, "modality", f->modality);
+    cJSON_AddNumberToObject(o, "energy", f->energy);
+    cJSON_AddStringToObject(o, "setup", f->setup);
+    cJSON_AddNumberToObject(o, "mu", f->mu);
+    cJSON_AddNumberToObject(o, "ssd_cm", f->ssd_cm);
+    cJSON_AddNumberToObject(o, "x_cm", f->x_cm);
+    cJSON_AddNumberToObject(o, "y_cm", f->y_cm);
+    cJSON_AddNumberToObject(o, "wedge_deg", f->wedge_deg);
+    cJSON_AddBoolToObject(o, "tray", f->tray);
+    cJSON_AddNumberToObject(o, "gantry_deg", f->gantry_deg);
+    cJSON_AddNumberToObject(o, "incidence_deg", f->incidence_deg);
+    add_num_or_null(o, "thickness_cm", f->thickness_cm);
+    add_num_or_null(o, "expected_dose_cgy", f->expected_dose_cgy);
+    add_text_or_null(o, "expected_source", f->expected_source);
+    cJSON_AddStringToObject(o, "policy", f->policy);
+    return o;
+}
+
+static int plan_import(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {
+        {"replaces", "LABEL", "label of the patient's plan this one replaces (a plan change)", NULL},
+        {NULL, NULL, NULL, NULL}};
+    const char *pos[1], *replaces;
+    fxl_plan_spec spec;
+    fxl_plan plan;
+    int npos, rc;
+
+    rc = cli_parse(env, "plan import FILE [--replaces LABEL]",
+                   "Imports one plan for one existing patient from a JSON file in fxledger's plan\n"
+                   "format (docs/format-plan.md). Every value is checked before anything is\n"
+                   "written; machines and beams must exist. A plan is never changed afterwards:\n"
+                   "a plan change is a new plan with a new label that names the one it replaces\n"
+                   "(--replaces, or \"replaces\" in the file). Physicists and admins only.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("plan import needs the plan FILE (see 'fxledger plan import --help')");
+        return CLI_EXIT_USAGE;
+    }
+    if ((rc = fxl_require_role(env->ctx, FXL_ROLES_PHYSICS, "importing a plan")) != 0)
+        return cli_fail(env, rc);
+    if ((rc = fxl_plan_json_read(env->ctx, &spec, pos[0])) != 0)
+        return cli_fail(env, rc);
+    replaces = cli_get(opts, "replaces");
+    if (replaces) {
+        if (spec.replaces[0] && strcmp(spec.replaces, replaces) != 0) {
+            cli_error("--replaces '%s' contradicts \"replaces\": \"%s\" in '%s'; give one", replaces,
+                      spec.replaces, pos[0]);
+            fxl_plan_spec_release(&spec);
+            return CLI_EXIT_DATA;
+        }
+        if (!*replaces || strlen(replaces) > 64) {
+            cli_error("--replaces '%s' must be a plan label of 1 to 64 characters", replaces);
+            fxl_plan_spec_release(&spec);
+            return CLI_EXIT_USAGE;
+        }
+        snprintf(spec.replaces, sizeof spec.replaces, "%s", replaces);
+    }
+    rc = fxl_plan_import(env->ctx, NULL, &spec);
+    if (rc == 0)
+        rc = fxl_plan_get(env->ctx, &plan, spec.mrn, spec.label);
+    fxl_plan_spec_release(&spec);
+    if (rc != 0)
+        return cli_fail(env, rc);
+    if (env->json) {
+        cJSON *o = plan_json(&plan), *fa = cJSON_AddArrayToObject(o, "fields");
+        size_t k;
+        for (k = 0; k < plan.n_fields; k++)
+            cJSON_AddItemToArray(fa, field_json(&plan.fields[k]));
+        fxl_plan_release(&plan);
+        return cli_print_json(o);
+    }
+    printf("imported plan %s for patient %s: %zu measured point%s%s%s\n", plan.label, plan.mrn,
+           plan.n_fields, plan.n_fields == 1 ? "" : "s", plan.replaces_label[0] ? "; replaces plan " : "",
+           plan.replaces_label);
+    fxl_plan_release(&plan);
+    return CLI_EXIT_OK;
+}
+
+static int plan_list(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    fxl_plan *list = NULL;
+    size_t n = 0, i;
+    int npos, rc;
+
+    rc = cli_parse(env, "plan list [MRN]",
+                   "Lists the plans of one patient, or of every patient; replaced plans are marked.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if ((rc = fxl_plan_list(env->ctx, &list, &n, npos ? pos[0] : NULL)) != 0)
+        return cli_fail(env, rc);
+    if (env->json) {
+        cJSON *a = cJSON_CreateArray();
+        for (i = 0; i < n; i++)
+            cJSON_AddItemToArray(a, plan_json(&list[i]));
+        free(list);
+        return cli_print_json(a);
+    }
+    if (n == 0)
+        printf("no plans%s%s\n", npos ? " for patient " : "", npos ? pos[0] : "");
+    else
+        printf("%-16s %-16s %-16s %-12s %9s %10s %6s %6s  %s\n", "MRN", "plan", "site", "technique",
+               "fractions", "cGy/fx", "points", "logged", "status");
+    for (i = 0; i < n; i++) {
+        char dose[24], status[100];
+        const fxl_plan *p = &list[i];
+        if (isnan(p->dose_per_fraction_cgy))
+            snprintf(dose, sizeof dose, "-");
+        else
+            snprintf(dose, sizeof dose, "%.1f cGy", p->dose_per_fraction_cgy);
+        if (p->replaced_by_label[0])
+            snprintf(status, sizeof status, "replaced by %s", p->replaced_by_label);
+        else
+            snprintf(status, sizeof status, "current");
+        printf("%-16s %-16s %-16s %-12s %9d %10s %6zu %6d  %s\n", p->mrn, p->label, p->site, p->technique,
+               p->fractions, dose, p->n_fields, p->fractions_logged, status);
+    }
+    free(list);
+    return CLI_EXIT_OK;
+}
+
+static int plan_show(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    const char *pos[2];
+    fxl_plan plan;
+    size_t k;
+    int npos, rc;
+
+    rc = cli_parse(env, "plan show MRN LABEL",
+                   "Shows one plan and every parameter of each field, with units.", opts, argc, argv,
+                   pos, 2, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 2) {
+        cli_error("plan show needs the patient MRN and the plan LABEL (see 'fxledger plan show --help')");
+        return CLI_EXIT_USAGE;
+    }
+    if ((rc = fxl_plan_get(env->ctx, &plan, pos[0], pos[1])) != 0)
+        return cli_fail(env, rc);
+    if (env->json) {
+        cJSON *o = plan_json(&plan), *fa = cJSON_AddArrayToObject(o, "fields");
+        for (k = 0; k < plan.n_fields; k++)
+            cJSON_AddItemToArray(fa, field_json(&plan.fields[k]));
+        fxl_plan_release(&plan);
+        return cli_print_json(o);
+    }
+    printf("plan %s of patient %s\n", plan.label, plan.mrn);
+    printf("  site %s, technique %s, %d fraction%s", plan.site, plan.technique, plan.fractions,
+           plan.fractions == 1 ? "" : "s");
+    if (!isnan(plan.dose_per_fraction_cgy))
+        printf(" of %.1f cGy", plan.dose_per_fraction_cgy);
+    printf("; %d logged\n", plan.fractions_logged);
+    if (plan.replaces_label[0])
+        printf("  replaces plan %s\n", plan.replaces_label);
+    if (plan.replaced_by_label[0])
+        printf("  REPLACED by plan %s: measure against that plan\n", plan.replaced_by_label);
+    printf("  imported %s by %s from %s\n", plan.created_at, plan.created_by, plan.source);
+    for (k = 0; k < plan.n_fields; k++) {
+        const fxl_field *f = &plan.fields[k];
+        printf("\n  field %s, %s point (measure: %s)\n", f->name, f->point, f->policy);
+        printf("    beam          %s on %s (%s, %g %s)\n", f->beam, f->machine, f->modality, f->energy,
+               strcmp(f->modality, "electron") == 0 ? "MeV" : "MV");
+        printf("    set-up        %s, SSD %.1f cm\n", strcmp(f->setup, "ssd") == 0 ? "SSD" : "isocentric",
+               f->ssd_cm);
+        printf("    MU            %.1f MU\n", f->mu);
+        printf("    jaws          %.1f x %.1f cm\n", f->x_cm, f->y_cm);
+        if (f->wedge_deg > 0)
+            printf("    wedge         %g degrees\n", f->wedge_deg);
+        else
+            printf("    wedge         open (0 degrees)\n");
+        printf("    tray          %s\n", f->tray ? "yes" : "no");
+        printf("    gantry        %g degrees\n", f->gantry_deg);
+        printf("    incidence     %g degrees on the detector\n", f->incidence_deg);
+        if (!isnan(f->thickness_cm))
+            printf("    thickness     %.1f cm\n", f->thickness_cm);
+        if (isnan(f->expected_dose_cgy))
+            printf("    expected      (none)\n");
+        else
+            printf("    expected      %.1f cGy (%s)\n", f->expected_dose_cgy,
+                   strcmp(f->expected_source, "tps") == 0 ? "planning system" : f->expected_source);
+    }
+    fxl_plan_release(&plan);
+    return CLI_EXIT_OK;
+}
+
+static const cli_sub subs[] = {
+    {"import", plan_import, "import a plan from a JSON file (physicist or admin)"},
+    {"list", plan_list, "list plans of one patient or of all"},
+    {"show", plan_show, "show one plan with every field parameter"},
+    {NULL, NULL, NULL}};
 
 int cmd_plan(cli_env *env, int argc, char **argv)
 {
-    (void)env;
-    (void)argc;
-    (void)argv;
-    cli_error("'plan' is not available in this build yet");
-    return CLI_EXIT_USAGE;
+    return cli_dispatch_sub(env, subs,
+                            "Treatment plans and their fields: import from fxledger's JSON plan format,\n"
+                            "list and show. Plans are never edited; a change is a replacement plan.",
+                            argc, argv);
 }

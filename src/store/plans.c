@@ -1,0 +1,596 @@
+/* Plans and fields in the database: import (names resolved, everything
+ * re-checked, one transaction with audit rows), read back one plan with its
+ * fields, list plans. Plans and fields are never edited (schema triggers). */
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "fxl/plans.h"
+#include "store/audit.h"
+#include "store/stmt.h"
+
+static void copy(char *dst, size_t size, const char *src)
+{
+    snprintf(dst, size, "%s", src ? src : "");
+}
+
+static int in_range(double v, double lo, int lo_incl, double hi, int hi_incl)
+{
+    return isfinite(v) && (lo_incl ? v >= lo : v > lo) && (hi_incl ? v <= hi : v < hi);
+}
+
+static int one_of(const char *v, const char *a, const char *b, const char *c, const char *d)
+{
+    return (a && strcmp(v, a) == 0) || (b && strcmp(v, b) == 0) || (c && strcmp(v, c) == 0) ||
+           (d && strcmp(v, d) == 0);
+}
+
+/* The same checks as the file parser, for callers of the library that build
+ * a spec themselves; the parser's messages carry the JSON path. */
+static int check_spec(fxl_ctx *ctx, const fxl_plan_spec *spec)
+{
+    size_t i, j;
+
+    if (!spec->mrn[0] || !spec->label[0] || !spec->site[0] || !spec->technique[0])
+        return fxl_fail(ctx, FXL_EINVAL, "plan needs a patient MRN, label, site and technique");
+    if (spec->fractions < 1 || spec->fractions > FXL_PLAN_FRACTIONS_MAX)
+        return fxl_fail(ctx, FXL_EINVAL, "plan '%s' fractions '%d' must be 1 to %d", spec->label,
+                        spec->fractions, FXL_PLAN_FRACTIONS_MAX);
+    if (!isnan(spec->dose_per_fraction_cgy) &&
+        !in_range(spec->dose_per_fraction_cgy, 0, 0, FXL_PLAN_DOSE_CGY_MAX, 1))
+        return fxl_fail(ctx, FXL_EINVAL, "plan '%s' dose_per_fraction_cgy '%g' must be > 0 and <= %g cGy",
+                        spec->label, spec->dose_per_fraction_cgy, FXL_PLAN_DOSE_CGY_MAX);
+    if (spec->n_fields < 1 || !spec->fields)
+        return fxl_fail(ctx, FXL_EINVAL, "plan '%s' needs at least one field", spec->label);
+    for (i = 0; i < spec->n_fields; i++) {
+        const fxl_field_spec *f = &spec->fields[i];
+        if (!f->name[0] || !f->machine[0] || !f->beam[0])
+            return fxl_fail(ctx, FXL_EINVAL, "plan field %zu needs a name, machine and beam", i + 1);
+        for (j = 0; j < i; j++)
+            if (strcmp(spec->fields[j].name, f->name) == 0)
+                return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' is listed twice", f->name);
+        if (!one_of(f->setup, "ssd", "isocentric", NULL, NULL))
+            return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' setup '%s' must be ssd or isocentric",
+                            f->name, f->setup);
+        if (!one_of(f->policy, "first", "weekly", "every", "none"))
+            return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' policy '%s' must be first, weekly, every or none",
+                            f->name, f->policy);
+        if (!in_range(f->mu, 0, 0, FXL_FIELD_MU_MAX, 1))
+            return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' mu '%g' must be > 0 and <= %g MU", f->name,
+                            f->mu, FXL_FIELD_MU_MAX);
+        if (!in_range(f->ssd_cm, FXL_FIELD_SSD_CM_MIN, 1, FXL_FIELD_SSD_CM_MAX, 1))
+            return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' ssd_cm '%g' must be >= %g and <= %g cm",
+                            f->name, f->ssd_cm, FXL_FIELD_SSD_CM_MIN, FXL_FIELD_SSD_CM_MAX);
+        if (!in_range(f->x_cm, 0, 0, FXL_FIELD_JAW_CM_MAX, 1) || !in_range(f->y_cm, 0, 0, FXL_FIELD_JAW_CM_MAX, 1))
+            return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' jaw sizes '%g x %g' must be > 0 and <= %g cm",
+                            f->name, f->x_cm, f->y_cm, FXL_FIELD_JAW_CM_MAX);
+        if (!in_range(f->wedge_deg, 0, 1, FXL_FIELD_WEDGE_DEG_MAX, 1))
+            return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' wedge_deg '%g' must be >= 0 and <= %g degrees",
+                            f->name, f->wedge_deg, FXL_FIELD_WEDGE_DEG_MAX);
+        if (f->tray != 0 && f->tray != 1)
+            return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' tray must be 0 or 1", f->name);
+        if (!in_range(f->gantry_deg, 0, 1, 360, 0))
+            return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' gantry_deg '%g' must be >= 0 and < 360 degrees",
+                            f->name, f->gantry_deg);
+        if (!in_range(f->incidence_deg, 0, 1, FXL_FIELD_INCIDENCE_DEG_MAX, 1))
+            return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' incidence_deg '%g' must be >= 0 and <= %g degrees",
+                            f->name, f->incidence_deg, FXL_FIELD_INCIDENCE_DEG_MAX);
+        if (f->n_points < 1 || f->n_points > 2 ||
+            (f->n_points == 2 && strcmp(f->points[0].point, f->points[1].point) == 0))
+            return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' needs one entrance and/or one exit point",
+                            f->name);
+        for (j = 0; j < f->n_points; j++) {
+            const fxl_point_spec *p = &f->points[j];
+            if (!one_of(p->point, "entrance", "exit", NULL, NULL))
+                return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' point '%s' must be entrance or exit",
+                                f->name, p->point);
+            if (!in_range(p->expected_dose_cgy, 0, 0, FXL_PLAN_DOSE_CGY_MAX, 1))
+                return fxl_fail(ctx, FXL_EINVAL,
+                                "plan field '%s' %s point expected_dose_cgy '%g' must be > 0 and <= %g cGy",
+                                f->name, p->point, p->expected_dose_cgy, FXL_PLAN_DOSE_CGY_MAX);
+            if (!one_of(p->expected_source, "tps", "manual", NULL, NULL))
+                return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' %s point expected_source '%s' must be tps or manual",
+                                f->name, p->point, p->expected_source);
+            if (strcmp(p->point, "exit") == 0 && isnan(p->thickness_cm))
+                return fxl_fail(ctx, FXL_EINVAL,
+                                "plan field '%s' exit point needs thickness_cm (> 0 and <= %g cm)", f->name,
+                                FXL_FIELD_THICKNESS_CM_MAX);
+            if (!isnan(p->thickness_cm) && !in_range(p->thickness_cm, 0, 0, FXL_FIELD_THICKNESS_CM_MAX, 1))
+                return fxl_fail(ctx, FXL_EINVAL,
+                                "plan field '%s' %s point thickness_cm '%g' must be > 0 and <= %g cm",
+                                f->name, p->point, p->thickness_cm, FXL_FIELD_THICKNESS_CM_MAX);
+        }
+    }
+    return 0;
+}
+
+/* The beam of one field, with what the import checks against. */
+typedef struct beam_ref {
+    int64_t id;
+    char modality[9];
+    double energy;
+    double dmax_cm;   /* NaN when the beam has none */
+} beam_ref;
+
+static int find_beam(fxl_ctx *ctx, beam_ref *out, const fxl_field_spec *f, size_t index)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+                               "SELECT b.id, b.modality, b.energy, b.dmax_cm FROM beams b "
+                               "JOIN machines m ON m.id = b.machine_id "
+                               "WHERE m.name = :machine AND b.name = :beam")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_text(&s, ":machine", f->machine);
+    fxl_stmt_bind_text(&s, ":beam", f->beam);
+    rc = fxl_stmt_step(&s);
+    if (rc == 1) {
+        out->id = fxl_stmt_int(&s, 0);
+        copy(out->modality, sizeof out->modality, fxl_stmt_text(&s, 1));
+        out->energy = fxl_stmt_double(&s, 2);
+        out->dmax_cm = fxl_stmt_double_opt(&s, 3);
+        rc = 0;
+        goto cleanup;
+    }
+    if (rc < 0)
+        goto cleanup;
+    fxl_stmt_finalize(&s);
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT 1 FROM machines WHERE name = :machine")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_text(&s, ":machine", f->machine);
+    if ((rc = fxl_stmt_step(&s)) < 0)
+        goto cleanup;
+    if (rc == 0)
+        rc = fxl_fail(ctx, FXL_ENOTFOUND,
+                      "plan field '%s' machine '%s' is not known (at fields[%zu].machine; see "
+                      "'fxledger machine list')",
+                      f->name, f->machine, index);
+    else
+        rc = fxl_fail(ctx, FXL_ENOTFOUND,
+                      "plan field '%s' beam '%s' is not a beam of machine '%s' (at fields[%zu].beam; "
+                      "see 'fxledger machine list')",
+                      f->name, f->beam, f->machine, index);
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
+/* Physics checks that need the beam: no exit dosimetry with electrons (they
+ * do not traverse the patient), and an exit point at d_max upstream of the
+ * exit surface needs a patient thicker than d_max. */
+static int check_against_beam(fxl_ctx *ctx, const fxl_field_spec *f, size_t index, const beam_ref *b)
+{
+    size_t j;
+
+    for (j = 0; j < f->n_points; j++) {
+        const fxl_point_spec *p = &f->points[j];
+        if (strcmp(p->point, "exit") != 0)
+            continue;
+        if (strcmp(b->modality, "electron") == 0)
+            return fxl_fail(ctx, FXL_EINVAL,
+                            "plan field '%s' has an exit point on electron beam '%s': exit dose is "
+                            "measured for photon beams only (at fields[%zu].points[%zu].point)",
+                            f->name, f->beam, index, j);
+        if (!isnan(b->dmax_cm) && p->thickness_cm <= b->dmax_cm)
+            return fxl_fail(ctx, FXL_EINVAL,
+                            "plan field '%s' exit point thickness_cm '%g' must be > the beam's d_max "
+                            "%g cm and <= %g cm (at fields[%zu].points[%zu].thickness_cm)",
+                            f->name, p->thickness_cm, b->dmax_cm, FXL_FIELD_THICKNESS_CM_MAX, index, j);
+    }
+    return 0;
+}
+
+/* Looks up a plan of a patient by label: 1 found (*id set), 0 not found. */
+static int plan_id_by_label(fxl_ctx *ctx, int64_t *id, int64_t patient_id, const char *label)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    *id = 0;
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT id FROM plans WHERE patient_id = :p AND label = :label")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":p", patient_id);
+    fxl_stmt_bind_text(&s, ":label", label);
+    rc = fxl_stmt_step(&s);
+    if (rc == 1)
+        *id = fxl_stmt_int(&s, 0);
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
+static int lookup_patient(fxl_ctx *ctx, int64_t *id, const char *mrn)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT id FROM patients WHERE mrn = :mrn")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_text(&s, ":mrn", mrn);
+    rc = fxl_stmt_step(&s);
+    if (rc == 1) {
+        *id = fxl_stmt_int(&s, 0);
+        rc = 0;
+    } else if (rc == 0) {
+        rc = fxl_fail(ctx, FXL_ENOTFOUND,
+                      "unknown patient '%s' (at patient_mrn; add the patient first with 'fxledger "
+                      "patient add %s --family NAME')",
+                      mrn, mrn);
+    }
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
+static int check_replacement(fxl_ctx *ctx, int64_t *replaced_id, int64_t patient_id,
+                             const fxl_plan_spec *spec)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    *replaced_id = 0;
+    if (!spec->replaces[0])
+        return 0;
+    if ((rc = plan_id_by_label(ctx, replaced_id, patient_id, spec->replaces)) < 0)
+        return rc;
+    if (rc == 0)
+        return fxl_fail(ctx, FXL_ENOTFOUND,
+                        "plan '%s' to be replaced does not exist for patient '%s' (see 'fxledger plan "
+                        "list %s')",
+                        spec->replaces, spec->mrn, spec->mrn);
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT label FROM plans WHERE replaces_plan_id = :id")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":id", *replaced_id);
+    rc = fxl_stmt_step(&s);
+    if (rc == 1)
+        rc = fxl_fail(ctx, FXL_ECONFLICT,
+                      "plan '%s' of patient '%s' was already replaced by plan '%s'; replace '%s' instead",
+                      spec->replaces, spec->mrn, fxl_stmt_text(&s, 0), fxl_stmt_text(&s, 0));
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
+static cJSON *field_audit(const fxl_field_spec *f, const fxl_point_spec *p, int64_t plan_id)
+{
+    cJSON *o = cJSON_CreateObject();
+
+    cJSON_AddNumberToObject(o, "plan_id", (double)plan_id);
+    cJSON_AddStringToObject(o, "name", f->name);
+    cJSON_AddStringToObject(o, "machine", f->machine);
+    cJSON_AddStringToObject(o, "beam", f->beam);
+    cJSON_AddStringToObject(o, "point", p->point);
+    cJSON_AddStringToObject(o, "setup", f->setup);
+    cJSON_AddNumberToObject(o, "mu", f->mu);
+    cJSON_AddNumberToObject(o, "ssd_cm", f->ssd_cm);
+    cJSON_AddNumberToObject(o, "x_cm", f->x_cm);
+    cJSON_AddNumberToObject(o, "y_cm", f->y_cm);
+    cJSON_AddNumberToObject(o, "wedge_deg", f->wedge_deg);
+    cJSON_AddBoolToObject(o, "tray", f->tray);
+    cJSON_AddNumberToObject(o, "gantry_deg", f->gantry_deg);
+    cJSON_AddNumberToObject(o, "incidence_deg", f->incidence_deg);
+    if (isnan(p->thickness_cm))
+        cJSON_AddNullToObject(o, "thickness_cm");
+    else
+        cJSON_AddNumberToObject(o, "thickness_cm", p->thickness_cm);
+    cJSON_AddNumberToObject(o, "expected_dose_cgy", p->expected_dose_cgy);
+    cJSON_AddStringToObject(o, "expected_source", p->expected_source);
+    cJSON_AddStringToObject(o, "policy", f->policy);
+    return o;
+}
+
+int fxl_plan_import(fxl_ctx *ctx, int64_t *out_id, const fxl_plan_spec *spec)
+{
+    fxl_stmt ins = FXL_STMT_INIT;
+    beam_ref *beams = NULL;
+    cJSON *audit = NULL;
+    char now[FXL_TIME_LEN];
+    int64_t patient_id = 0, replaced_id = 0, existing = 0, plan_id = 0, field_id;
+    size_t i, j;
+    int rc;
+
+    if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "importing a plan")) != 0)
+        return rc;
+    if ((rc = check_spec(ctx, spec)) != 0)
+        return rc;
+    if (!(beams = calloc(spec->n_fields, sizeof *beams)))
+        return fxl_fail(ctx, FXL_EIO, "out of memory importing a plan");
+    fxl_now(ctx, now);
+    if ((rc = fxl_begin(ctx)) != 0)
+        goto cleanup;
+    if ((rc = lookup_patient(ctx, &patient_id, spec->mrn)) != 0)
+        goto cleanup;
+    if ((rc = plan_id_by_label(ctx, &existing, patient_id, spec->label)) < 0)
+        goto cleanup;
+    if (rc == 1) {
+        rc = fxl_fail(ctx, FXL_ECONFLICT,
+                      "plan '%s' already exists for patient '%s'; plans are never changed: import the "
+                      "change under a new label with --replaces %s",
+                      spec->label, spec->mrn, spec->label);
+        goto cleanup;
+    }
+    if ((rc = check_replacement(ctx, &replaced_id, patient_id, spec)) != 0)
+        goto cleanup;
+    for (i = 0; i < spec->n_fields; i++)
+        if ((rc = find_beam(ctx, &beams[i], &spec->fields[i], i)) != 0 ||
+            (rc = check_against_beam(ctx, &spec->fields[i], i, &beams[i])) != 0)
+            goto cleanup;
+
+    if ((rc = fxl_stmt_prepare(&ins, ctx,
+                               "INSERT INTO plans (patient_id, label, site, technique, fractions, "
+                               "dose_per_fraction_cgy, replaces_plan_id, source, user_id, created_at) "
+                               "VALUES (:patient, :label, :site, :technique, :fractions, :dose, "
+                               ":replaces, 'json', :user, :now)")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&ins, ":patient", patient_id);
+    fxl_stmt_bind_text(&ins, ":label", spec->label);
+    fxl_stmt_bind_text(&ins, ":site", spec->site);
+    fxl_stmt_bind_text(&ins, ":technique", spec->technique);
+    fxl_stmt_bind_int(&ins, ":fractions", spec->fractions);
+    fxl_stmt_bind_double_opt(&ins, ":dose", spec->dose_per_fraction_cgy);
+    if (replaced_id)
+        fxl_stmt_bind_int(&ins, ":replaces", replaced_id);
+    else
+        fxl_stmt_bind_null(&ins, ":replaces");
+    fxl_stmt_bind_int(&ins, ":user", fxl_user_id(ctx));
+    fxl_stmt_bind_text(&ins, ":now", now);
+    if ((rc = fxl_stmt_exec(&ins)) != 0)
+        goto cleanup;
+    plan_id = sqlite3_last_insert_rowid(ctx->db);
+    fxl_stmt_finalize(&ins);
+
+    audit = cJSON_CreateObject();
+    cJSON_AddStringToObject(audit, "patient_mrn", spec->mrn);
+    cJSON_AddStringToObject(audit, "label", spec->label);
+    cJSON_AddStringToObject(audit, "site", spec->site);
+    cJSON_AddStringToObject(audit, "technique", spec->technique);
+    cJSON_AddNumberToObject(audit, "fractions", spec->fractions);
+    if (isnan(spec->dose_per_fraction_cgy))
+        cJSON_AddNullToObject(audit, "dose_per_fraction_cgy");
+    else
+        cJSON_AddNumberToObject(audit, "dose_per_fraction_cgy", spec->dose_per_fraction_cgy);
+    if (replaced_id) {
+        cJSON_AddStringToObject(audit, "replaces", spec->replaces);
+        cJSON_AddNumberToObject(audit, "replaces_plan_id", (double)replaced_id);
+    }
+    for (i = 0, j = 0; i < spec->n_fields; i++)
+        j += spec->fields[i].n_points;
+    cJSON_AddNumberToObject(audit, "field_rows", (double)j);
+    if ((rc = fxl_audit_append(ctx, replaced_id ? "replace" : "import", "plans", plan_id, audit)) != 0)
+        goto cleanup;
+
+    if ((rc = fxl_stmt_prepare(&ins, ctx,
+                               "INSERT INTO fields (plan_id, name, beam_id, point, setup, mu, ssd_cm, x_cm, "
+                               "y_cm, wedge_deg, tray, gantry_deg, incidence_deg, thickness_cm, "
+                               "expected_dose_cgy, expected_source, policy) VALUES (:plan, :name, :beam, "
+                               ":point, :setup, :mu, :ssd, :x, :y, :wedge, :tray, :gantry, :incidence, "
+                               ":thickness, :expected, :source, :policy)")) != 0)
+        goto cleanup;
+    for (i = 0; i < spec->n_fields; i++) {
+        const fxl_field_spec *f = &spec->fields[i];
+        for (j = 0; j < f->n_points; j++) {
+            const fxl_point_spec *p = &f->points[j];
+            cJSON *row;
+            fxl_stmt_reset(&ins);
+            fxl_stmt_bind_int(&ins, ":plan", plan_id);
+            fxl_stmt_bind_text(&ins, ":name", f->name);
+            fxl_stmt_bind_int(&ins, ":beam", beams[i].id);
+            fxl_stmt_bind_text(&ins, ":point", p->point);
+            fxl_stmt_bind_text(&ins, ":setup", f->setup);
+            fxl_stmt_bind_double(&ins, ":mu", f->mu);
+            fxl_stmt_bind_double(&ins, ":ssd", f->ssd_cm);
+            fxl_stmt_bind_double(&ins, ":x", f->x_cm);
+            fxl_stmt_bind_double(&ins, ":y", f->y_cm);
+            fxl_stmt_bind_double(&ins, ":wedge", f->wedge_deg);
+            fxl_stmt_bind_int(&ins, ":tray", f->tray);
+            fxl_stmt_bind_double(&ins, ":gantry", f->gantry_deg);
+            fxl_stmt_bind_double(&ins, ":incidence", f->incidence_deg);
+            fxl_stmt_bind_double_opt(&ins, ":thickness", p->thickness_cm);
+            fxl_stmt_bind_double(&ins, ":expected", p->expected_dose_cgy);
+            fxl_stmt_bind_text(&ins, ":source", p->expected_source);
+            fxl_stmt_bind_text(&ins, ":policy", f->policy);
+            if ((rc = fxl_stmt_exec(&ins)) != 0)
+                goto cleanup;
+            field_id = sqlite3_last_insert_rowid(ctx->db);
+            row = field_audit(f, p, plan_id);
+            rc = fxl_audit_append(ctx, "create", "fields", field_id, row);
+            cJSON_Delete(row);
+            if (rc != 0)
+                goto cleanup;
+        }
+    }
+    if ((rc = fxl_commit(ctx)) != 0)
+        goto cleanup;
+    if (out_id)
+        *out_id = plan_id;
+cleanup:
+    if (rc != 0)
+        fxl_rollback(ctx);
+    fxl_stmt_finalize(&ins);
+    cJSON_Delete(audit);
+    free(beams);
+    return rc;
+}
+
+/* ---- reading back ---------------------------------------------------------- */
+
+#define PLAN_COLUMNS                                                                             \
+    "p.id, p.patient_id, pt.mrn, p.label, p.site, p.technique, p.fractions, "                    \
+    "p.dose_per_fraction_cgy, coalesce(p.replaces_plan_id, 0), coalesce(rp.label, ''), "          \
+    "coalesce(nx.id, 0), coalesce(nx.label, ''), p.source, coalesce(u.login, ''), p.created_at, " \
+    "(SELECT count(*) FROM fractions WHERE plan_id = p.id), "                                     \
+    "(SELECT count(*) FROM fields WHERE plan_id = p.id) "                                         \
+    "FROM plans p JOIN patients pt ON pt.id = p.patient_id "                                      \
+    "LEFT JOIN plans rp ON rp.id = p.replaces_plan_id "                                           \
+    "LEFT JOIN plans nx ON nx.id = (SELECT min(id) FROM plans WHERE replaces_plan_id = p.id) "    \
+    "LEFT JOIN users u ON u.id = p.user_id "
+
+static void read_plan(fxl_stmt *s, fxl_plan *p)
+{
+    memset(p, 0, sizeof *p);
+    p->id = fxl_stmt_int(s, 0);
+    p->patient_id = fxl_stmt_int(s, 1);
+    copy(p->mrn, sizeof p->mrn, fxl_stmt_text(s, 2));
+    copy(p->label, sizeof p->label, fxl_stmt_text(s, 3));
+    copy(p->site, sizeof p->site, fxl_stmt_text(s, 4));
+    copy(p->technique, sizeof p->technique, fxl_stmt_text(s, 5));
+    p->fractions = (int)fxl_stmt_int(s, 6);
+    p->dose_per_fraction_cgy = fxl_stmt_double_opt(s, 7);
+    p->replaces_plan_id = fxl_stmt_int(s, 8);
+    copy(p->replaces_label, sizeof p->replaces_label, fxl_stmt_text(s, 9));
+    p->replaced_by_id = fxl_stmt_int(s, 10);
+    copy(p->replaced_by_label, sizeof p->replaced_by_label, fxl_stmt_text(s, 11));
+    copy(p->source, sizeof p->source, fxl_stmt_text(s, 12));
+    copy(p->created_by, sizeof p->created_by, fxl_stmt_text(s, 13));
+    copy(p->created_at, sizeof p->created_at, fxl_stmt_text(s, 14));
+    p->fractions_logged = (int)fxl_stmt_int(s, 15);
+    p->n_fields = (size_t)fxl_stmt_int(s, 16);
+}
+
+static int load_fields(fxl_ctx *ctx, fxl_plan *plan)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    size_t i = 0;
+    int rc;
+
+    plan->fields = NULL;
+    if (plan->n_fields == 0)
+        return 0;
+    if (!(plan->fields = calloc(plan->n_fields, sizeof *plan->fields)))
+        return fxl_fail(ctx, FXL_EIO, "out of memory reading plan fields");
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+                               "SELECT f.id, f.name, f.beam_id, m.name, b.name, b.modality, b.energy, "
+                               "f.point, f.setup, f.mu, f.ssd_cm, f.x_cm, f.y_cm, f.wedge_deg, f.tray, "
+                               "f.gantry_deg, f.incidence_deg, f.thickness_cm, f.expected_dose_cgy, "
+                               "coalesce(f.expected_source, ''), f.policy FROM fields f "
+                               "JOIN beams b ON b.id = f.beam_id JOIN machines m ON m.id = b.machine_id "
+                               "WHERE f.plan_id = :plan ORDER BY f.id")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":plan", plan->id);
+    while (i < plan->n_fields && (rc = fxl_stmt_step(&s)) == 1) {
+        fxl_field *f = &plan->fields[i++];
+        f->id = fxl_stmt_int(&s, 0);
+        copy(f->name, sizeof f->name, fxl_stmt_text(&s, 1));
+        f->beam_id = fxl_stmt_int(&s, 2);
+        copy(f->machine, sizeof f->machine, fxl_stmt_text(&s, 3));
+        copy(f->beam, sizeof f->beam, fxl_stmt_text(&s, 4));
+        copy(f->modality, sizeof f->modality, fxl_stmt_text(&s, 5));
+        f->energy = fxl_stmt_double(&s, 6);
+        copy(f->point, sizeof f->point, fxl_stmt_text(&s, 7));
+        copy(f->setup, sizeof f->setup, fxl_stmt_text(&s, 8));
+        f->mu = fxl_stmt_double(&s, 9);
+        f->ssd_cm = fxl_stmt_double(&s, 10);
+        f->x_cm = fxl_stmt_double(&s, 11);
+        f->y_cm = fxl_stmt_double(&s, 12);
+        f->wedge_deg = fxl_stmt_double(&s, 13);
+        f->tray = (int)fxl_stmt_int(&s, 14);
+        f->gantry_deg = fxl_stmt_double(&s, 15);
+        f->incidence_deg = fxl_stmt_double(&s, 16);
+        f->thickness_cm = fxl_stmt_double_opt(&s, 17);
+        f->expected_dose_cgy = fxl_stmt_double_opt(&s, 18);
+        copy(f->expected_source, sizeof f->expected_source, fxl_stmt_text(&s, 19));
+        copy(f->policy, sizeof f->policy, fxl_stmt_text(&s, 20));
+    }
+    plan->n_fields = i;
+    rc = rc < 0 ? rc : 0;
+cleanup:
+    fxl_stmt_finalize(&s);
+    if (rc != 0) {
+        free(plan->fields);
+        plan->fields = NULL;
+        plan->n_fields = 0;
+    }
+    return rc;
+}
+
+int fxl_plan_get(fxl_ctx *ctx, fxl_plan *out, const char *mrn, const char *label)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    memset(out, 0, sizeof *out);
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT " PLAN_COLUMNS "WHERE pt.mrn = :mrn AND p.label = :label")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_text(&s, ":mrn", mrn);
+    fxl_stmt_bind_text(&s, ":label", label);
+    rc = fxl_stmt_step(&s);
+    if (rc == 1) {
+        read_plan(&s, out);
+        rc = 0;
+    } else if (rc == 0) {
+        fxl_stmt_finalize(&s);
+        if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT 1 FROM patients WHERE mrn = :mrn")) != 0)
+            goto cleanup;
+        fxl_stmt_bind_text(&s, ":mrn", mrn);
+        rc = fxl_stmt_step(&s);
+        if (rc == 0)
+            rc = fxl_fail(ctx, FXL_ENOTFOUND, "unknown patient '%s' (see 'fxledger patient list')", mrn);
+        else if (rc == 1)
+            rc = fxl_fail(ctx, FXL_ENOTFOUND, "patient '%s' has no plan '%s' (see 'fxledger plan list %s')",
+                          mrn, label, mrn);
+        goto cleanup;
+    }
+    if (rc == 0)
+        rc = load_fields(ctx, out);
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
+void fxl_plan_release(fxl_plan *plan)
+{
+    if (!plan)
+        return;
+    free(plan->fields);
+    plan->fields = NULL;
+    plan->n_fields = 0;
+}
+
+int fxl_plan_list(fxl_ctx *ctx, fxl_plan **out, size_t *n, const char *mrn)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    fxl_plan *list = NULL, *grown;
+    size_t cap = 0, count = 0;
+    int rc;
+
+    *out = NULL;
+    *n = 0;
+    if (mrn) {
+        if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT 1 FROM patients WHERE mrn = :mrn")) != 0)
+            goto cleanup;
+        fxl_stmt_bind_text(&s, ":mrn", mrn);
+        if ((rc = fxl_stmt_step(&s)) == 0)
+            rc = fxl_fail(ctx, FXL_ENOTFOUND, "unknown patient '%s' (see 'fxledger patient list')", mrn);
+        if (rc < 0)
+            goto cleanup;
+        fxl_stmt_finalize(&s);
+    }
+    rc = fxl_stmt_prepare(&s, ctx, mrn ? "SELECT " PLAN_COLUMNS "WHERE pt.mrn = :mrn ORDER BY p.id"
+                                       : "SELECT " PLAN_COLUMNS "ORDER BY pt.mrn, p.id");
+    if (rc != 0)
+        goto cleanup;
+    if (mrn)
+        fxl_stmt_bind_text(&s, ":mrn", mrn);
+    while ((rc = fxl_stmt_step(&s)) == 1) {
+        if (count == cap) {
+            cap = cap ? cap * 2 : 16;
+            if (!(grown = realloc(list, cap * sizeof *list))) {
+                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing plans");
+                goto cleanup;
+            }
+            list = grown;
+        }
+        read_plan(&s, &list[count++]);
+    }
+cleanup:
+    fxl_stmt_finalize(&s);
+    if (rc < 0) {
+        free(list);
+        return rc;
+    }
+    *out = list;
+    *n = count;
+    return 0;
+}
