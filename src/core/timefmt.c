@@ -22,12 +22,27 @@ static void format_time(char out[FXL_TIME_LEN], int y, int mo, int d, int h, int
     out[FXL_TIME_LEN - 1] = '\0';
 }
 
+/* The shape of each accepted form: 'd' a digit, anything else itself. */
+static int matches_shape(const char *in, const char *shape)
+{
+    for (; *shape; in++, shape++) {
+        if (*shape == 'd' ? (*in < '0' || *in > '9') : *in != *shape)
+            return 0;
+    }
+    return *in == '\0';
+}
+
 int fxl_time_normalize(char out[FXL_TIME_LEN], const char *in, int end_of_day)
 {
     int y, mo, d, h = 0, mi = 0, s = 0, n = 0;
     size_t len;
 
     if (!in)
+        return FXL_EINVAL;
+    /* sscanf alone would take spaces and signs inside a field. */
+    if (!matches_shape(in, "dddd-dd-dd") && !matches_shape(in, "dddd-dd-ddTdd:dd") &&
+        !matches_shape(in, "dddd-dd-ddTdd:ddZ") && !matches_shape(in, "dddd-dd-ddTdd:dd:dd") &&
+        !matches_shape(in, "dddd-dd-ddTdd:dd:ddZ"))
         return FXL_EINVAL;
     len = strlen(in);
     if (len == 10) {

@@ -128,6 +128,10 @@ static void test_timefmt_malformed_text(void **state)
     assert_refused("2026-03-15T08");
     assert_refused("2026-03-15x");
     assert_refused(" 2026-03-15");
+    /* spaces and signs inside a field are not digits */
+    assert_refused("2026-01- 5");
+    assert_refused("2026-+1-05");
+    assert_refused("2026-01-05T 8:30");
 }
 
 static void test_timefmt_add_days_within_month(void **state)
