@@ -1,11 +1,369 @@
-/* Placeholder until the detector command family lands. */
+/* fxledger detector: add detectors, list them with status and accumulated
+ * dose, show one in full, and record status changes (retirement included). */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
 #include "cli/cli.h"
+#include "fxl/calibrations.h"
+#include "fxl/corrections.h"
+#include "fxl/detectors.h"
+
+static void add_opt_number(cJSON *o, const char *key, double v)
+{
+    if (isnan(v))
+        cJSON_AddNullToObject(o, key);
+    else
+        cJSON_AddNumberToObject(o, key, v);
+}
+
+static void add_opt_text(cJSON *o, const char *key, const char *v)
+{
+    if (!v || !*v)
+        cJSON_AddNullToObject(o, key);
+    else
+        cJSON_AddStringToObject(o, key, v);
+}
+
+static cJSON *detector_json(const fxl_detector *d)
+{
+    cJSON *o = cJSON_CreateObject();
+
+    cJSON_AddNumberToObject(o, "id", (double)d->id);
+    cJSON_AddStringToObject(o, "serial", d->serial);
+    cJSON_AddStringToObject(o, "label", d->label);
+    cJSON_AddStringToObject(o, "kind", d->kind);
+    cJSON_AddStringToObject(o, "reading_unit", d->reading_unit);
+    add_opt_number(o, "sensitivity", d->sensitivity);
+    cJSON_AddNumberToObject(o, "temp_coeff_per_c", d->temp_coeff_per_c);
+    add_opt_text(o, "buildup", d->buildup);
+    add_opt_number(o, "dose_limit_cgy", d->dose_limit_cgy);
+    cJSON_AddStringToObject(o, "created_at", d->created_at);
+    cJSON_AddStringToObject(o, "status", d->status);
+    add_opt_text(o, "status_since", d->status_since);
+    add_opt_text(o, "status_reason", d->status_reason);
+    add_opt_text(o, "last_calibrated_at", d->last_calibrated_at);
+    cJSON_AddNumberToObject(o, "accumulated_dose_cgy", d->accumulated_dose_cgy);
+    cJSON_AddNumberToObject(o, "accumulated_measurements", (double)d->measurement_count);
+    cJSON_AddBoolToObject(o, "over_dose_limit",
+                          !isnan(d->dose_limit_cgy) && d->accumulated_dose_cgy >= d->dose_limit_cgy);
+    return o;
+}
+
+static int detector_add(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {
+        {"label", "TEXT", "short label written on the detector (required)", NULL},
+        {"kind", "KIND", "photon_diode, electron_diode, small_field_diode, mosfet, osl, tld or other (required)", NULL},
+        {"unit", "UNIT", "reading unit: nC (default), pC, mV, count or cGy", NULL},
+        {"sensitivity", "X", "nominal sensitivity, reading unit per cGy", NULL},
+        {"temp-coeff", "A", "temperature coefficient as a FRACTION per degC (0.003 = 0.3 %/degC; default 0)", NULL},
+        {"buildup", "TEXT", "build-up cap, e.g. 'brass cap, 6-12 MV'", NULL},
+        {"dose-limit", "CGY", "accumulated dose after which it is due for recalibration, cGy", NULL},
+        {NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    fxl_detector_spec d;
+    fxl_detector got;
+    int64_t id = 0;
+    int npos, rc;
+
+    rc = cli_parse(env,
+                   "detector add SERIAL --label L --kind KIND [--unit nC] [--sensitivity X] "
+                   "[--temp-coeff A] [--buildup TEXT] [--dose-limit CGY]",
+                   "Adds an in vivo detector, in service from now (physicist or admin).\n"
+                   "The temperature coefficient is a fraction per degC: CF_T = 1 / (1 + A (T - T_cal)).",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("detector add needs a SERIAL (see 'fxledger detector add --help')");
+        return CLI_EXIT_USAGE;
+    }
+    memset(&d, 0, sizeof d);
+    d.serial = pos[0];
+    d.label = cli_get(opts, "label");
+    d.kind = cli_get(opts, "kind");
+    d.reading_unit = cli_get(opts, "unit");
+    d.buildup = cli_get(opts, "buildup");
+    d.sensitivity = d.dose_limit_cgy = NAN;
+    d.temp_coeff_per_c = 0;
+    if (!d.label || !*d.label) {
+        cli_error("--label is required (1 to 64 characters)");
+        return CLI_EXIT_USAGE;
+    }
+    if (!d.kind) {
+        cli_error("--kind is required (photon_diode, electron_diode, small_field_diode, mosfet, osl, tld, other)");
+        return CLI_EXIT_USAGE;
+    }
+    if (cli_get(opts, "sensitivity") &&
+        cli_double(&d.sensitivity, cli_get(opts, "sensitivity"), "sensitivity", 1e-6, 1e6,
+                   "reading unit per cGy") != 0)
+        return CLI_EXIT_DATA;
+    if (cli_get(opts, "temp-coeff") &&
+        cli_double(&d.temp_coeff_per_c, cli_get(opts, "temp-coeff"),
+                   "temperature coefficient (a fraction: 0.003 = 0.3 %/degC)", -FXL_TEMP_COEFF_MAX,
+                   FXL_TEMP_COEFF_MAX, "per degC") != 0)
+        return CLI_EXIT_DATA;
+    if (cli_get(opts, "dose-limit") &&
+        cli_double(&d.dose_limit_cgy, cli_get(opts, "dose-limit"), "dose limit", 1, 1e9, "cGy") != 0)
+        return CLI_EXIT_DATA;
+    if ((rc = fxl_detector_add(env->ctx, &id, &d)) != 0)
+        return cli_fail(env, rc);
+    if ((rc = fxl_detector_get(env->ctx, &got, d.serial, NULL)) != 0)
+        return cli_fail(env, rc);
+    if (env->json)
+        return cli_print_json(detector_json(&got));
+    printf("added detector '%s' (%s, %s, reading unit %s), in service\n", got.serial, got.label,
+           got.kind, got.reading_unit);
+    return CLI_EXIT_OK;
+}
+
+static void format_dose(char *buf, size_t size, const fxl_detector *d)
+{
+    if (isnan(d->dose_limit_cgy))
+        snprintf(buf, size, "%.1f cGy", d->accumulated_dose_cgy);
+    else
+        snprintf(buf, size, "%.1f / %.0f cGy%s", d->accumulated_dose_cgy, d->dose_limit_cgy,
+                 d->accumulated_dose_cgy >= d->dose_limit_cgy ? " OVER LIMIT" : "");
+}
+
+static int detector_list(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    fxl_detector *list = NULL;
+    size_t n = 0, i;
+    int npos, rc;
+
+    rc = cli_parse(env, "detector list",
+                   "Lists the detectors with their current status, latest calibration and the dose\n"
+                   "accumulated since it (sum of the corrected doses of their measurements treated\n"
+                   "after the latest calibration; amended readings count once).",
+                   opts, argc, argv, pos, 0, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if ((rc = fxl_detector_list(env->ctx, &list, &n, NULL)) != 0)
+        return cli_fail(env, rc);
+    if (env->json) {
+        cJSON *arr = cJSON_CreateArray();
+        for (i = 0; i < n; i++)
+            cJSON_AddItemToArray(arr, detector_json(&list[i]));
+        free(list);
+        return cli_print_json(arr);
+    }
+    if (n == 0)
+        printf("no detectors yet (add one with 'fxledger detector add')\n");
+    else
+        printf("%-14s %-12s %-17s %-15s %-10s %s\n", "SERIAL", "LABEL", "KIND", "STATUS",
+               "CALIBRATED", "DOSE SINCE CALIBRATION");
+    for (i = 0; i < n; i++) {
+        char dose[64];
+        format_dose(dose, sizeof dose, &list[i]);
+        printf("%-14s %-12s %-17s %-15s %-10.10s %s\n", list[i].serial, list[i].label, list[i].kind,
+               list[i].status, list[i].last_calibrated_at[0] ? list[i].last_calibrated_at : "never",
+               dose);
+    }
+    free(list);
+    return CLI_EXIT_OK;
+}
+
+static int detector_show(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    fxl_detector d;
+    fxl_detector_status_row *hist = NULL;
+    fxl_calibration *cals = NULL;
+    fxl_corr_table *tabs = NULL;
+    size_t nh = 0, nc = 0, nt = 0, i;
+    char dose[64];
+    int npos, rc;
+
+    rc = cli_parse(env, "detector show SERIAL",
+                   "Shows one detector: its properties, status history, calibrations and\n"
+                   "correction tables.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("detector show needs a SERIAL (see 'fxledger detector list')");
+        return CLI_EXIT_USAGE;
+    }
+    if ((rc = fxl_detector_get(env->ctx, &d, pos[0], NULL)) != 0 ||
+        (rc = fxl_detector_status_history(env->ctx, &hist, &nh, pos[0])) != 0 ||
+        (rc = fxl_calib_list(env->ctx, &cals, &nc, pos[0], NULL)) != 0 ||
+        (rc = fxl_corr_list(env->ctx, &tabs, &nt, pos[0], NULL)) != 0) {
+        rc = cli_fail(env, rc);
+        goto cleanup;
+    }
+    if (env->json) {
+        cJSON *o = detector_json(&d), *a;
+        a = cJSON_AddArrayToObject(o, "status_history");
+        for (i = 0; i < nh; i++) {
+            cJSON *r = cJSON_CreateObject();
+            cJSON_AddStringToObject(r, "status", hist[i].status);
+            cJSON_AddStringToObject(r, "effective_at", hist[i].effective_at);
+            add_opt_text(r, "reason", hist[i].reason);
+            cJSON_AddStringToObject(r, "user", hist[i].user);
+            cJSON_AddStringToObject(r, "recorded_at", hist[i].created_at);
+            cJSON_AddItemToArray(a, r);
+        }
+        a = cJSON_AddArrayToObject(o, "calibrations");
+        for (i = 0; i < nc; i++) {
+            cJSON *r = cJSON_CreateObject();
+            cJSON_AddNumberToObject(r, "id", (double)cals[i].id);
+            cJSON_AddStringToObject(r, "machine", cals[i].machine);
+            cJSON_AddStringToObject(r, "beam", cals[i].beam);
+            cJSON_AddStringToObject(r, "point", cals[i].point);
+            cJSON_AddStringToObject(r, "calibrated_at", cals[i].calibrated_at);
+            cJSON_AddStringToObject(r, "valid_until", cals[i].valid_until);
+            cJSON_AddNumberToObject(r, "factor_cgy_per_unit", cals[i].factor_cgy_per_unit);
+            cJSON_AddStringToObject(r, "state", cals[i].state);
+            cJSON_AddItemToArray(a, r);
+        }
+        a = cJSON_AddArrayToObject(o, "correction_tables");
+        for (i = 0; i < nt; i++) {
+            cJSON *r = cJSON_CreateObject();
+            cJSON_AddNumberToObject(r, "id", (double)tabs[i].id);
+            cJSON_AddStringToObject(r, "machine", tabs[i].machine);
+            cJSON_AddStringToObject(r, "beam", tabs[i].beam);
+            cJSON_AddStringToObject(r, "parameter", tabs[i].parameter);
+            cJSON_AddStringToObject(r, "effective_from", tabs[i].effective_from);
+            cJSON_AddNumberToObject(r, "points", (double)tabs[i].n_points);
+            cJSON_AddBoolToObject(r, "in_force", tabs[i].in_force);
+            cJSON_AddItemToArray(a, r);
+        }
+        rc = cli_print_json(o);
+        goto cleanup;
+    }
+    format_dose(dose, sizeof dose, &d);
+    printf("detector %s (%s)\n", d.serial, d.label);
+    printf("  kind               %s\n", d.kind);
+    printf("  reading unit       %s\n", d.reading_unit);
+    if (isnan(d.sensitivity))
+        printf("  sensitivity        -\n");
+    else
+        printf("  sensitivity        %g %s/cGy\n", d.sensitivity, d.reading_unit);
+    printf("  temp. coefficient  %g per degC (%.3g %%/degC)\n", d.temp_coeff_per_c,
+           d.temp_coeff_per_c * 100);
+    printf("  build-up           %s\n", d.buildup[0] ? d.buildup : "-");
+    printf("  status             %s%s%s%s\n", d.status, d.status_since[0] ? " since " : "",
+           d.status_since, d.status_reason[0] ? "" : "");
+    printf("  last calibrated    %s\n", d.last_calibrated_at[0] ? d.last_calibrated_at : "never");
+    printf("  dose since then    %s (%lld measurements)\n", dose, (long long)d.measurement_count);
+    printf("\nstatus history:\n");
+    for (i = 0; i < nh; i++)
+        printf("  %s  %-15s %-10s %s\n", hist[i].effective_at, hist[i].status, hist[i].user,
+               hist[i].reason);
+    printf("\ncalibrations:\n");
+    if (nc == 0)
+        printf("  none\n");
+    for (i = 0; i < nc; i++)
+        printf("  #%-4lld %.10s  %s %s %-8s N = %.5g cGy/%s  valid until %.10s  %s\n",
+               (long long)cals[i].id, cals[i].calibrated_at, cals[i].machine, cals[i].beam,
+               cals[i].point, cals[i].factor_cgy_per_unit, cals[i].reading_unit,
+               cals[i].valid_until, cals[i].state);
+    printf("\ncorrection tables:\n");
+    if (nt == 0)
+        printf("  none\n");
+    for (i = 0; i < nt; i++)
+        printf("  #%-4lld %s %s %-10s from %.10s  %zu points%s\n", (long long)tabs[i].id,
+               tabs[i].machine, tabs[i].beam, tabs[i].parameter, tabs[i].effective_from,
+               tabs[i].n_points, tabs[i].in_force ? "  in force" : "");
+    rc = CLI_EXIT_OK;
+cleanup:
+    free(hist);
+    free(cals);
+    fxl_corr_list_free(tabs, nt);
+    return rc;
+}
+
+static int set_status(cli_env *env, const char *serial, const char *status, const char *reason,
+                      const char *at_text)
+{
+    char at[FXL_TIME_LEN];
+    int rc;
+
+    if (!reason || !*reason) {
+        cli_error("--reason is required (1 to 200 characters)");
+        return CLI_EXIT_USAGE;
+    }
+    if (at_text && fxl_time_normalize(at, at_text, 0) != 0) {
+        cli_error("date '%s' is not valid (YYYY-MM-DD or YYYY-MM-DDTHH:MM[:SS]Z)", at_text);
+        return CLI_EXIT_DATA;
+    }
+    if ((rc = fxl_detector_set_status(env->ctx, serial, status, reason, at_text ? at : NULL)) != 0)
+        return cli_fail(env, rc);
+    if (env->json) {
+        fxl_detector d;
+        if ((rc = fxl_detector_get(env->ctx, &d, serial, NULL)) != 0)
+            return cli_fail(env, rc);
+        return cli_print_json(detector_json(&d));
+    }
+    printf("detector '%s' is now %s%s%s\n", serial, status, at_text ? " from " : "",
+           at_text ? at : "");
+    return CLI_EXIT_OK;
+}
+
+static int detector_status(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {
+        {"reason", "TEXT", "why (required)", NULL},
+        {"at", "DATE", "when it took effect (default now; not before the last change)", NULL},
+        {NULL, NULL, NULL, NULL}};
+    const char *pos[2];
+    int npos, rc;
+
+    rc = cli_parse(env, "detector status SERIAL in_service|out_for_service|retired --reason TEXT [--at DATE]",
+                   "Records a status change (physicist or admin). The history is append-only;\n"
+                   "retirement is final. A detector out for service or retired gives no dose\n"
+                   "results.",
+                   opts, argc, argv, pos, 2, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 2) {
+        cli_error("detector status needs SERIAL and a status (in_service, out_for_service, retired)");
+        return CLI_EXIT_USAGE;
+    }
+    if (!fxl_detector_status_valid(pos[1])) {
+        cli_error("status '%s' must be one of in_service, out_for_service, retired", pos[1]);
+        return CLI_EXIT_DATA;
+    }
+    return set_status(env, pos[0], pos[1], cli_get(opts, "reason"), cli_get(opts, "at"));
+}
+
+static int detector_retire(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {
+        {"reason", "TEXT", "why (required)", NULL},
+        {"at", "DATE", "when it took effect (default now)", NULL},
+        {NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    int npos, rc;
+
+    rc = cli_parse(env, "detector retire SERIAL --reason TEXT [--at DATE]",
+                   "Retires a detector for good (physicist or admin); same as\n"
+                   "'detector status SERIAL retired'.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("detector retire needs a SERIAL");
+        return CLI_EXIT_USAGE;
+    }
+    return set_status(env, pos[0], "retired", cli_get(opts, "reason"), cli_get(opts, "at"));
+}
+
+static const cli_sub subs[] = {
+    {"add", detector_add, "add a detector (physicist or admin)"},
+    {"list", detector_list, "list detectors, status and dose since calibration"},
+    {"show", detector_show, "show one detector in full"},
+    {"status", detector_status, "record a status change (physicist or admin)"},
+    {"retire", detector_retire, "retire a detector for good (physicist or admin)"},
+    {NULL, NULL, NULL}};
 
 int cmd_detector(cli_env *env, int argc, char **argv)
 {
-    (void)env;
-    (void)argc;
-    (void)argv;
-    cli_error("'detector' is not available in this build yet");
-    return CLI_EXIT_USAGE;
+    return cli_dispatch_sub(env, subs, "In vivo detectors: diodes, MOSFETs, OSL and TL dosimeters.",
+                            argc, argv);
 }

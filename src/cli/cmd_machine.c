@@ -1,11 +1,205 @@
-/* Placeholder until the machine command family lands. */
+/* fxledger machine: add treatment machines, add their beams, list both. */
+#include <math.h>
+#include <stdlib.h>
+#include <string.h>
+
 #include "cli/cli.h"
+#include "fxl/machines.h"
+
+static void add_opt_number(cJSON *o, const char *key, double v)
+{
+    if (isnan(v))
+        cJSON_AddNullToObject(o, key);
+    else
+        cJSON_AddNumberToObject(o, key, v);
+}
+
+static int machine_add(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {
+        {"sad", "CM", "source-axis distance (default 100 cm)", NULL},
+        {NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    double sad = 100;
+    int64_t id = 0;
+    int npos, rc;
+
+    rc = cli_parse(env, "machine add NAME [--sad CM]",
+                   "Adds a treatment machine (physicist or admin). Add its beams with\n"
+                   "'fxledger machine beam'.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("machine add needs a NAME (see 'fxledger machine add --help')");
+        return CLI_EXIT_USAGE;
+    }
+    if (cli_get(opts, "sad") &&
+        cli_double(&sad, cli_get(opts, "sad"), "SAD", FXL_SAD_CM_MIN, FXL_SAD_CM_MAX, "cm") != 0)
+        return CLI_EXIT_DATA;
+    if ((rc = fxl_machine_add(env->ctx, &id, pos[0], sad)) != 0)
+        return cli_fail(env, rc);
+    if (env->json) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddNumberToObject(o, "id", (double)id);
+        cJSON_AddStringToObject(o, "name", pos[0]);
+        cJSON_AddNumberToObject(o, "sad_cm", sad);
+        return cli_print_json(o);
+    }
+    printf("added machine '%s' (SAD %g cm)\n", pos[0], sad);
+    return CLI_EXIT_OK;
+}
+
+static int machine_beam(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {
+        {"machine", "NAME", "the machine (required)", NULL},
+        {"modality", "KIND", "photon or electron (required)", NULL},
+        {"energy", "E", "nominal energy, MV for photons, MeV for electrons (required)", NULL},
+        {"dmax", "CM", "depth of maximum dose, cm (e.g. 1.5 for 6 MV)", NULL},
+        {"dose-per-mu", "CGY", "reference dose per MU at the normalisation point, cGy/MU (e.g. 1.0)", NULL},
+        {"norm-distance", "CM", "normalisation distance SSD0 + d0, cm (e.g. 101.5; 100 if isocentric)", NULL},
+        {NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    fxl_beam_spec b;
+    int64_t id = 0;
+    int npos, rc;
+
+    rc = cli_parse(env,
+                   "machine beam NAME --machine M --modality photon|electron --energy E "
+                   "[--dmax CM] [--dose-per-mu CGY] [--norm-distance CM]",
+                   "Adds a beam NAME (e.g. 6X, 9E) to a machine (physicist or admin). d_max, dose\n"
+                   "per MU and normalisation distance feed the independent expected-dose model;\n"
+                   "a beam without them cannot be used by that model.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("machine beam needs a beam NAME (see 'fxledger machine beam --help')");
+        return CLI_EXIT_USAGE;
+    }
+    memset(&b, 0, sizeof b);
+    b.name = pos[0];
+    b.machine = cli_get(opts, "machine");
+    b.modality = cli_get(opts, "modality");
+    b.dmax_cm = b.ref_dose_cgy_per_mu = b.norm_distance_cm = NAN;
+    if (!b.machine || !*b.machine) {
+        cli_error("--machine is required (see 'fxledger machine list')");
+        return CLI_EXIT_USAGE;
+    }
+    if (!b.modality || (strcmp(b.modality, "photon") != 0 && strcmp(b.modality, "electron") != 0)) {
+        cli_error("modality '%s' must be photon or electron", b.modality ? b.modality : "");
+        return CLI_EXIT_DATA;
+    }
+    if (cli_double(&b.energy, cli_get(opts, "energy"), "energy", FXL_ENERGY_MIN, FXL_ENERGY_MAX,
+                   strcmp(b.modality, "photon") == 0 ? "MV" : "MeV") != 0)
+        return CLI_EXIT_DATA;
+    if (cli_get(opts, "dmax") &&
+        cli_double(&b.dmax_cm, cli_get(opts, "dmax"), "d_max", FXL_DMAX_CM_MIN, FXL_DMAX_CM_MAX, "cm") != 0)
+        return CLI_EXIT_DATA;
+    if (cli_get(opts, "dose-per-mu") &&
+        cli_double(&b.ref_dose_cgy_per_mu, cli_get(opts, "dose-per-mu"), "dose per MU",
+                   FXL_DOSE_PER_MU_MIN, FXL_DOSE_PER_MU_MAX, "cGy/MU") != 0)
+        return CLI_EXIT_DATA;
+    if (cli_get(opts, "norm-distance") &&
+        cli_double(&b.norm_distance_cm, cli_get(opts, "norm-distance"), "normalisation distance",
+                   FXL_NORM_DISTANCE_CM_MIN, FXL_NORM_DISTANCE_CM_MAX, "cm") != 0)
+        return CLI_EXIT_DATA;
+    if ((rc = fxl_beam_add(env->ctx, &id, &b)) != 0)
+        return cli_fail(env, rc);
+    if (env->json) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddNumberToObject(o, "id", (double)id);
+        cJSON_AddStringToObject(o, "machine", b.machine);
+        cJSON_AddStringToObject(o, "name", b.name);
+        cJSON_AddStringToObject(o, "modality", b.modality);
+        cJSON_AddNumberToObject(o, "energy", b.energy);
+        add_opt_number(o, "dmax_cm", b.dmax_cm);
+        add_opt_number(o, "ref_dose_cgy_per_mu", b.ref_dose_cgy_per_mu);
+        add_opt_number(o, "norm_distance_cm", b.norm_distance_cm);
+        return cli_print_json(o);
+    }
+    printf("added beam '%s' to machine '%s': %s %g %s\n", b.name, b.machine, b.modality, b.energy,
+           strcmp(b.modality, "photon") == 0 ? "MV" : "MeV");
+    return CLI_EXIT_OK;
+}
+
+static void print_opt(const char *label, double v, const char *fmt_unit)
+{
+    if (isnan(v))
+        printf("  %s -", label);
+    else
+        printf("  %s %g %s", label, v, fmt_unit);
+}
+
+static int machine_list(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    fxl_machine *list = NULL;
+    size_t n = 0, i, j;
+    int npos, rc;
+
+    rc = cli_parse(env, "machine list", "Lists the treatment machines and their beams.", opts, argc,
+                   argv, pos, 0, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if ((rc = fxl_machine_list(env->ctx, &list, &n)) != 0)
+        return cli_fail(env, rc);
+    if (env->json) {
+        cJSON *arr = cJSON_CreateArray();
+        for (i = 0; i < n; i++) {
+            cJSON *m = cJSON_CreateObject(), *beams;
+            cJSON_AddNumberToObject(m, "id", (double)list[i].id);
+            cJSON_AddStringToObject(m, "name", list[i].name);
+            cJSON_AddNumberToObject(m, "sad_cm", list[i].sad_cm);
+            cJSON_AddStringToObject(m, "created_at", list[i].created_at);
+            beams = cJSON_AddArrayToObject(m, "beams");
+            for (j = 0; j < list[i].n_beams; j++) {
+                const fxl_beam *b = &list[i].beams[j];
+                cJSON *o = cJSON_CreateObject();
+                cJSON_AddNumberToObject(o, "id", (double)b->id);
+                cJSON_AddStringToObject(o, "name", b->name);
+                cJSON_AddStringToObject(o, "modality", b->modality);
+                cJSON_AddNumberToObject(o, "energy", b->energy);
+                cJSON_AddStringToObject(o, "energy_unit", strcmp(b->modality, "photon") == 0 ? "MV" : "MeV");
+                add_opt_number(o, "dmax_cm", b->dmax_cm);
+                add_opt_number(o, "ref_dose_cgy_per_mu", b->ref_dose_cgy_per_mu);
+                add_opt_number(o, "norm_distance_cm", b->norm_distance_cm);
+                cJSON_AddItemToArray(beams, o);
+            }
+            cJSON_AddItemToArray(arr, m);
+        }
+        fxl_machine_list_free(list, n);
+        return cli_print_json(arr);
+    }
+    if (n == 0)
+        printf("no machines yet (add one with 'fxledger machine add NAME')\n");
+    for (i = 0; i < n; i++) {
+        printf("%s (SAD %g cm)\n", list[i].name, list[i].sad_cm);
+        if (list[i].n_beams == 0)
+            printf("  no beams yet\n");
+        for (j = 0; j < list[i].n_beams; j++) {
+            const fxl_beam *b = &list[i].beams[j];
+            printf("  %-8s %-8s %5g %-3s", b->name, b->modality, b->energy,
+                   strcmp(b->modality, "photon") == 0 ? "MV" : "MeV");
+            print_opt("d_max", b->dmax_cm, "cm");
+            print_opt(" dose/MU", b->ref_dose_cgy_per_mu, "cGy/MU");
+            print_opt(" norm. distance", b->norm_distance_cm, "cm");
+            printf("\n");
+        }
+    }
+    fxl_machine_list_free(list, n);
+    return CLI_EXIT_OK;
+}
+
+static const cli_sub subs[] = {
+    {"add", machine_add, "add a treatment machine (physicist or admin)"},
+    {"beam", machine_beam, "add a beam to a machine (physicist or admin)"},
+    {"list", machine_list, "list machines and their beams"},
+    {NULL, NULL, NULL}};
 
 int cmd_machine(cli_env *env, int argc, char **argv)
 {
-    (void)env;
-    (void)argc;
-    (void)argv;
-    cli_error("'machine' is not available in this build yet");
-    return CLI_EXIT_USAGE;
+    return cli_dispatch_sub(env, subs, "Treatment machines and their beams.", argc, argv);
 }

@@ -1,0 +1,229 @@
+/* Known department settings: what each accepts and its fallback, the
+ * validated change and the listing. Raw get/set are in db.c. */
+#include <errno.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#include "fxl/settings.h"
+#include "store/stmt.h"
+
+typedef enum { KIND_TEXT, KIND_NUMBER, KIND_INT, KIND_TIMEZONE } value_kind;
+
+typedef struct setting_rule {
+    fxl_setting_def def;
+    value_kind kind;
+    double lo, hi;          /* numbers: inclusive range; text: length range */
+} setting_rule;
+
+/* Ranges: skin temperature from DOMAIN.md (skin 28 to 34 degC) widened to what
+ * the measurements table accepts; the rest are local policy choices
+ * documented in docs/equipment.md. */
+static const setting_rule rules[] = {
+    {{"alert_command", "command run on an outside-action result (empty: none)",
+      "0 to 1000 characters", ""}, KIND_TEXT, 0, 1000},
+    {{"alert_timeout_s", "seconds the alert command may run before it is stopped",
+      "1 to 300 s", "10"}, KIND_INT, 1, 300},
+    {{"calibration_due_days", "warn this many days before a calibration expires",
+      "0 to 365 days", "14"}, KIND_INT, 0, 365},
+    {{"calibration_interval_days", "validity of a new calibration when none is given",
+      "1 to 3650 days", "90"}, KIND_INT, 1, 3650},
+    {{"department", "department name printed on reports", "1 to 200 characters", NULL},
+     KIND_TEXT, 1, 200},
+    {{"implausible_pct", "|deviation| above this is flagged as a probable entry error",
+      "5 to 100 %", "50"}, KIND_NUMBER, 5, 100},
+    {{"skin_temp_c", "skin temperature used when none is entered", "10 to 45 degC", "32"},
+     KIND_NUMBER, 10, 45},
+    {{"timezone", "department time zone for monthly reports", "UTC or an IANA zone name such as Europe/Paris",
+      "UTC"}, KIND_TIMEZONE, 1, 64},
+};
+#define N_RULES (sizeof rules / sizeof rules[0])
+
+const fxl_setting_def *fxl_setting_defs(void)
+{
+    static fxl_setting_def defs[N_RULES + 1];
+    size_t i;
+
+    for (i = 0; i < N_RULES; i++)
+        defs[i] = rules[i].def;
+    defs[N_RULES].key = NULL;
+    return defs;
+}
+
+static const setting_rule *find_rule(const char *key)
+{
+    size_t i;
+
+    for (i = 0; key && i < N_RULES; i++)
+        if (strcmp(rules[i].def.key, key) == 0)
+            return &rules[i];
+    return NULL;
+}
+
+/* An IANA zone name: letters, digits, '/', '_', '+', '-'; no '..'. When the
+ * system zone database is installed the name must exist in it. */
+static int timezone_valid(const char *tz)
+{
+    char path[256];
+    struct stat st;
+    size_t i, len = strlen(tz);
+
+    if (len < 1 || len > 64 || strstr(tz, "..") || tz[0] == '/')
+        return 0;
+    for (i = 0; i < len; i++) {
+        char c = tz[i];
+        if (!((c >= 'a' && c <= 'z') || (c >= 'A' && c <= 'Z') || (c >= '0' && c <= '9') ||
+              c == '/' || c == '_' || c == '+' || c == '-'))
+            return 0;
+    }
+    if (strcmp(tz, "UTC") == 0)
+        return 1;
+    if (stat("/usr/share/zoneinfo", &st) != 0)
+        return 1;
+    snprintf(path, sizeof path, "/usr/share/zoneinfo/%s", tz);
+    return stat(path, &st) == 0 && S_ISREG(st.st_mode);
+}
+
+int fxl_setting_validate(fxl_ctx *ctx, const char *key, const char *value)
+{
+    const setting_rule *r = find_rule(key);
+    char *end = NULL;
+    double v;
+    size_t len;
+
+    if (!r) {
+        char known[512] = "";
+        size_t i;
+        for (i = 0; i < N_RULES; i++) {
+            if (i)
+                strcat(known, ", ");
+            strcat(known, rules[i].def.key);
+        }
+        return fxl_fail(ctx, FXL_EINVAL, "unknown setting '%s' (known: %s)", key ? key : "", known);
+    }
+    if (!value)
+        value = "";
+    len = strlen(value);
+    switch (r->kind) {
+    case KIND_TEXT:
+        if (len < r->lo || len > r->hi)
+            return fxl_fail(ctx, FXL_EINVAL, "setting '%s' must be %s", key, r->def.accepts);
+        break;
+    case KIND_TIMEZONE:
+        if (!timezone_valid(value))
+            return fxl_fail(ctx, FXL_EINVAL, "timezone '%s' is not known: must be %s", value,
+                            r->def.accepts);
+        break;
+    case KIND_NUMBER:
+    case KIND_INT:
+        errno = 0;
+        v = strtod(value, &end);
+        if (len == 0 || errno != 0 || *end != '\0' || !isfinite(v) ||
+            (r->kind == KIND_INT && v != floor(v)))
+            return fxl_fail(ctx, FXL_EINVAL, "setting '%s' value '%s' is not a %s (%s)", key, value,
+                            r->kind == KIND_INT ? "whole number" : "number", r->def.accepts);
+        if (v < r->lo || v > r->hi)
+            return fxl_fail(ctx, FXL_EINVAL, "setting '%s' value '%s' is out of range: must be %s",
+                            key, value, r->def.accepts);
+        break;
+    }
+    return 0;
+}
+
+int fxl_setting_change(fxl_ctx *ctx, const char *key, const char *value)
+{
+    int rc;
+
+    if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "changing settings")) != 0)
+        return rc;
+    if ((rc = fxl_setting_validate(ctx, key, value)) != 0)
+        return rc;
+    return fxl_setting_set(ctx, key, value);
+}
+
+int fxl_setting_get_int(fxl_ctx *ctx, long *out, const char *key, long fallback)
+{
+    char buf[64], *end = NULL;
+    long v;
+    int rc = fxl_setting_get(ctx, key, buf, sizeof buf);
+
+    if (rc == FXL_ENOTFOUND) {
+        *out = fallback;
+        return 0;
+    }
+    if (rc != 0)
+        return rc;
+    errno = 0;
+    v = strtol(buf, &end, 10);
+    if (errno != 0 || end == buf || *end != '\0')
+        return fxl_fail(ctx, FXL_EINVAL, "stored setting '%s' value '%s' is not a whole number",
+                        key, buf);
+    *out = v;
+    return 0;
+}
+
+static int add_row(fxl_ctx *ctx, fxl_setting **list, size_t *n, size_t *cap, const char *key,
+                   const char *value, int is_default)
+{
+    const setting_rule *r = find_rule(key);
+    fxl_setting *grown, *row;
+
+    if (*n == *cap) {
+        *cap = *cap ? *cap * 2 : 16;
+        if (!(grown = realloc(*list, *cap * sizeof **list)))
+            return fxl_fail(ctx, FXL_EIO, "out of memory listing settings");
+        *list = grown;
+    }
+    row = &(*list)[(*n)++];
+    memset(row, 0, sizeof *row);
+    snprintf(row->key, sizeof row->key, "%s", key);
+    snprintf(row->value, sizeof row->value, "%s", value);
+    row->is_default = is_default;
+    row->known = r != NULL;
+    row->about = r ? r->def.about : "";
+    return 0;
+}
+
+static int by_key(const void *a, const void *b)
+{
+    return strcmp(((const fxl_setting *)a)->key, ((const fxl_setting *)b)->key);
+}
+
+int fxl_setting_list(fxl_ctx *ctx, fxl_setting **out, size_t *n)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    fxl_setting *list = NULL;
+    size_t count = 0, cap = 0, i, j;
+    int rc;
+
+    *out = NULL;
+    *n = 0;
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT key, value FROM settings ORDER BY key")) != 0)
+        goto cleanup;
+    while ((rc = fxl_stmt_step(&s)) == 1)
+        if ((rc = add_row(ctx, &list, &count, &cap, fxl_stmt_text(&s, 0), fxl_stmt_text(&s, 1), 0)) != 0)
+            goto cleanup;
+    if (rc < 0)
+        goto cleanup;
+    for (i = 0; i < N_RULES; i++) {
+        int stored = 0;
+        for (j = 0; j < count; j++)
+            if (strcmp(list[j].key, rules[i].def.key) == 0)
+                stored = 1;
+        if (!stored && rules[i].def.fallback &&
+            (rc = add_row(ctx, &list, &count, &cap, rules[i].def.key, rules[i].def.fallback, 1)) != 0)
+            goto cleanup;
+    }
+    if (count)
+        qsort(list, count, sizeof *list, by_key);
+    *out = list;
+    *n = count;
+    list = NULL;
+    rc = 0;
+cleanup:
+    fxl_stmt_finalize(&s);
+    free(list);
+    return rc;
+}
