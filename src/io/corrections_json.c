@@ -100,6 +100,9 @@ static int syntax_error(fxl_ctx *ctx, const char *name, const char *text, size_t
     if (err && err >= padded && err <= padded + len + 2)
         pos = (size_t)(err - padded);
     free(padded);
+    /* A string opened just before the error and never closed: cut mid-string. */
+    if (pos < len && pos > 0 && text[pos - 1] == '"' && !memchr(text + pos, '"', len - pos))
+        pos = len;
     if (pos >= len) {
         line_col(text, len, &line, &col);
         return fxl_fail(ctx, FXL_EINVAL,
