@@ -389,6 +389,11 @@ int fxl_thresholds_save(fxl_ctx *ctx, fxl_threshold_set *out, const fxl_threshol
     for (i = 0; i < n; i++)   /* the highest version number of this name */
         if (chg->name && strcmp(rows[i].name, chg->name) == 0 && (!prev || rows[i].version > prev->version))
             prev = &rows[i];
+    if (!prev && chg->deactivate) {
+        rc = fxl_fail(ctx, FXL_ENOTFOUND, "level set '%s' does not exist; nothing to deactivate",
+                      chg->name ? chg->name : "");
+        goto cleanup;
+    }
     if ((rc = build_row(ctx, &row, prev, chg)) != 0)
         goto cleanup;
     if (chg->effective_from) {
@@ -400,11 +405,6 @@ int fxl_thresholds_save(fxl_ctx *ctx, fxl_threshold_set *out, const fxl_threshol
         }
     } else {
         fxl_now(ctx, row.effective_from);
-    }
-    if (!prev && !row.active) {
-        rc = fxl_fail(ctx, FXL_ENOTFOUND, "level set '%s' does not exist; nothing to deactivate",
-                      row.name);
-        goto cleanup;
     }
     if ((rc = check_ties(ctx, &row, rows, n)) != 0)
         goto cleanup;
