@@ -1,11 +1,158 @@
-/* Placeholder until the history command family lands. */
+/* fxledger history: every logged measurement of a patient, superseded rows
+ * included and marked, as a table or JSON. docs/record.md. */
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
 #include "cli/cli.h"
+#include "fxl/record.h"
+
+static void num(char *buf, size_t size, double v, const char *fmt, const char *unit)
+{
+    size_t used;
+
+    if (!isfinite(v)) {
+        snprintf(buf, size, "-");
+        return;
+    }
+    snprintf(buf, size, fmt, v);
+    used = strlen(buf);
+    if (unit && *unit)
+        snprintf(buf + used, size - used, " %s", unit);
+}
+
+static void add_num(cJSON *o, const char *key, double v)
+{
+    if (isfinite(v))
+        cJSON_AddNumberToObject(o, key, v);
+    else
+        cJSON_AddNullToObject(o, key);
+}
+
+static void add_id(cJSON *o, const char *key, int64_t id)
+{
+    if (id)
+        cJSON_AddNumberToObject(o, key, (double)id);
+    else
+        cJSON_AddNullToObject(o, key);
+}
+
+static cJSON *row_json(const fxl_history_row *r)
+{
+    cJSON *o = cJSON_CreateObject(), *cf, *reasons;
+    int i;
+
+    add_id(o, "measurement_id", r->measurement_id);
+    add_id(o, "fraction_id", r->fraction_id);
+    cJSON_AddNumberToObject(o, "fraction", r->fraction_number);
+    cJSON_AddStringToObject(o, "plan", r->plan);
+    cJSON_AddStringToObject(o, "treated_at", r->treated_at);
+    cJSON_AddStringToObject(o, "recorded_at", r->recorded_at);
+    cJSON_AddStringToObject(o, "recorded_by", r->recorded_by);
+    cJSON_AddStringToObject(o, "field", r->field);
+    cJSON_AddStringToObject(o, "point", r->point);
+    cJSON_AddStringToObject(o, "detector", r->detector);
+    add_num(o, "reading", r->reading);
+    cJSON_AddStringToObject(o, "reading_unit", r->reading_unit);
+    add_num(o, "temp_c", r->temp_c);
+    cJSON_AddBoolToObject(o, "temp_entered", r->temp_entered);
+    add_id(o, "calibration_id", r->calibration_id);
+    add_num(o, "factor_n_cgy_per_unit", r->factor_n);
+    cf = cJSON_AddObjectToObject(o, "factors");
+    for (i = 0; i < FXL_CF_COUNT; i++)
+        add_num(cf, fxl_cf_name((fxl_cf_param)i), r->cf[i]);
+    add_num(cf, "temp", r->cf_temp);
+    add_num(o, "corrected_dose_cgy", r->corrected_dose_cgy);
+    add_num(o, "expected_dose_cgy", r->expected_dose_cgy);
+    add_num(o, "deviation_pct", r->deviation_pct);
+    add_id(o, "threshold_set_id", r->threshold_set_id);
+    add_num(o, "tolerance_pct", r->tolerance_pct);
+    add_num(o, "action_pct", r->action_pct);
+    add_num(o, "floor_cgy", r->floor_cgy);
+    cJSON_AddStringToObject(o, "verdict", fxl_verdict_name(r->verdict));
+    reasons = cJSON_AddArrayToObject(o, "reasons");
+    for (i = 0; i < r->reasons.n && i < FXL_REASONS_MAX; i++)
+        cJSON_AddItemToArray(reasons, cJSON_CreateString(r->reasons.text[i]));
+    add_id(o, "supersedes_id", r->supersedes_id);
+    if (r->supersedes_id)
+        cJSON_AddStringToObject(o, "amend_reason", r->amend_reason);
+    add_id(o, "superseded_by", r->superseded_by);
+    cJSON_AddBoolToObject(o, "current", r->superseded_by == 0);
+    return o;
+}
 
 int cmd_history(cli_env *env, int argc, char **argv)
 {
-    (void)env;
-    (void)argc;
-    (void)argv;
-    cli_error("'history' is not available in this build yet");
-    return CLI_EXIT_USAGE;
+    cli_opt opts[] = {
+        {"patient", "MRN", "patient (required)", NULL},
+        {"plan", "LABEL", "only this plan (default: every plan of the patient)", NULL},
+        {"field", "NAME", "only this field", NULL},
+        {NULL, NULL, NULL, NULL}};
+    fxl_history_query q;
+    fxl_history_row *rows = NULL;
+    const char *pos[1];
+    size_t n = 0, i;
+    int npos, rc;
+
+    rc = cli_parse(env, "history --patient MRN [--plan LABEL] [--field NAME]",
+                   "Lists every logged measurement of a patient, oldest first: treatment date,\n"
+                   "fraction, field, point, detector, reading, corrected and expected dose,\n"
+                   "deviation and verdict. A mistyped reading stays listed, marked 'superseded\n"
+                   "by #id'; its amendment is marked 'amends #id'. --json adds every factor,\n"
+                   "the levels used and the reasons.",
+                   opts, argc, argv, pos, 0, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    memset(&q, 0, sizeof q);
+    q.mrn = cli_get(opts, "patient");
+    q.plan = cli_get(opts, "plan");
+    q.field = cli_get(opts, "field");
+    if (!q.mrn) {
+        cli_error("--patient MRN is required");
+        return CLI_EXIT_USAGE;
+    }
+    if ((rc = fxl_history_list(env->ctx, &rows, &n, &q)) != 0)
+        return cli_fail(env, rc);
+
+    if (env->json) {
+        cJSON *arr = cJSON_CreateArray();
+        for (i = 0; i < n; i++)
+            cJSON_AddItemToArray(arr, row_json(&rows[i]));
+        free(rows);
+        return cli_print_json(arr);
+    }
+    if (n == 0) {
+        printf("no measurements logged for patient %s%s%s%s%s%s\n", q.mrn, q.plan ? ", plan '" : "",
+               q.plan ? q.plan : "", q.plan ? "'" : "", q.field ? ", field " : "", q.field ? q.field : "");
+        free(rows);
+        return CLI_EXIT_OK;
+    }
+    printf("%-6s %-16s %-12s %-4s %-10s %-8s %-10s %-13s %-11s %-11s %-9s %-20s %s\n", "id",
+           "treated (UTC)", "plan", "fx", "field", "point", "detector", "reading", "corrected",
+           "expected", "deviation", "verdict", "note");
+    for (i = 0; i < n; i++) {
+        const fxl_history_row *r = &rows[i];
+        char id[16], when[20], reading[32], dose[20], expected[20], dev[16], note[96] = "";
+
+        snprintf(id, sizeof id, "#%lld", (long long)r->measurement_id);
+        snprintf(when, sizeof when, "%.10s %.5s", r->treated_at, r->treated_at + 11);
+        num(reading, sizeof reading, r->reading, "%.3f", r->reading_unit);
+        num(dose, sizeof dose, r->corrected_dose_cgy, "%.1f", "cGy");
+        num(expected, sizeof expected, r->expected_dose_cgy, "%.1f", "cGy");
+        num(dev, sizeof dev, r->deviation_pct, "%+.2f", "%");
+        if (r->superseded_by)
+            snprintf(note, sizeof note, "superseded by #%lld", (long long)r->superseded_by);
+        if (r->supersedes_id) {
+            size_t used = strlen(note);
+            snprintf(note + used, sizeof note - used, "%samends #%lld: %.40s", used ? "; " : "",
+                     (long long)r->supersedes_id, r->amend_reason);
+        }
+        printf("%-6s %-16s %-12s %-4d %-10s %-8s %-10s %-13s %-11s %-11s %-9s %-20s %s\n", id, when,
+               r->plan, r->fraction_number, r->field, r->point, r->detector, reading, dose, expected, dev,
+               fxl_verdict_label(r->verdict), note);
+    }
+    printf("\n%zu measurement%s.\n", n, n == 1 ? "" : "s");
+    free(rows);
+    return CLI_EXIT_OK;
 }
