@@ -247,8 +247,9 @@ static int detector_show(cli_env *env, int argc, char **argv)
     printf("  temp. coefficient  %g per degC (%.3g %%/degC)\n", d.temp_coeff_per_c,
            d.temp_coeff_per_c * 100);
     printf("  build-up           %s\n", d.buildup[0] ? d.buildup : "-");
-    printf("  status             %s%s%s%s\n", d.status, d.status_since[0] ? " since " : "",
-           d.status_since, d.status_reason[0] ? "" : "");
+    printf("  status             %s%s%s%s%s%s\n", d.status, d.status_since[0] ? " since " : "",
+           d.status_since, d.status_reason[0] ? " (" : "", d.status_reason,
+           d.status_reason[0] ? ")" : "");
     printf("  last calibrated    %s\n", d.last_calibrated_at[0] ? d.last_calibrated_at : "never");
     printf("  dose since then    %s (%lld measurements)\n", dose, (long long)d.measurement_count);
     printf("\nstatus history:\n");

@@ -188,8 +188,11 @@ static int table_show(cli_env *env, int argc, char **argv)
         snprintf(x, sizeof x, "%g %s", t.points[i].x, unit);
         printf("  %12s  %.4f\n", x, t.points[i].factor);
     }
-    printf("outside %g to %g %s no factor is given: results there are not evaluable\n", t.x_min,
-           t.x_max, unit);
+    if (strcmp(t.parameter, "wedge") == 0 || strcmp(t.parameter, "tray") == 0)
+        printf("only the values listed are commissioned (exact match); any other value is not evaluable\n");
+    else
+        printf("linear interpolation from %g to %g %s; outside that range results are not evaluable\n",
+               t.x_min, t.x_max, unit);
     fxl_corr_table_release(&t);
     return CLI_EXIT_OK;
 }

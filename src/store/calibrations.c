@@ -195,7 +195,7 @@ static int plan_calibration(fxl_ctx *ctx, calib_plan *p, const fxl_calib_spec *c
         goto cleanup;
     if (rc == 1) {
         rc = fxl_fail(ctx, FXL_ECONFLICT,
-                      "detector '%s' already has a %s calibration for %s %s at %s", c->serial,
+                      "detector '%s' already has an %s calibration for %s %s at %s", c->serial,
                       c->point, c->machine, c->beam, p->calibrated_at);
         goto cleanup;
     }
