@@ -182,8 +182,13 @@ static int patient_show(cli_env *env, int argc, char **argv)
                    full.replaced_by_label[0] ? "; REPLACED by " : "", full.replaced_by_label);
             for (k = 0; k < full.n_fields; k++) {
                 const fxl_field *f = &full.fields[k];
-                printf("    %-12s %-8s %s/%s %8.1f MU  expected %7.1f cGy  measure %s\n", f->name, f->point,
-                       f->machine, f->beam, f->mu, f->expected_dose_cgy, f->policy);
+                char expected[32];
+                if (isnan(f->expected_dose_cgy))
+                    snprintf(expected, sizeof expected, "(none)");
+                else
+                    snprintf(expected, sizeof expected, "%.1f cGy", f->expected_dose_cgy);
+                printf("    %-12s %-8s %s/%s %8.1f MU  expected %11s  measure %s\n", f->name, f->point,
+                       f->machine, f->beam, f->mu, expected, f->policy);
             }
         }
         fxl_plan_release(&full);
