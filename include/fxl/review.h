@@ -143,7 +143,7 @@ typedef struct fxl_review_detail {
     int trend_is_detector;      /* 0: field history; 1: detector deviations */
     double trend_tolerance_pct; /* levels to draw on the trend, NaN if unknown */
     double trend_action_pct;
-    double cusum_k_pct, cusum_h_pct;   /* detector trends: parameters used */
+    double cusum_target_pct, cusum_k_pct, cusum_h_pct;   /* detector trends: parameters used */
     size_t n_trend;
     fxl_review_trend_point *trend;     /* heap, oldest first */
     size_t n_events;

@@ -37,14 +37,16 @@ const char *fxl_severity_name(int severity);
 #define FXL_RULE_DOSE_LIMIT_SEVERITY FXL_SEVERITY_MEDIUM
 #define FXL_RULE_DRIFT_SEVERITY FXL_SEVERITY_HIGH
 
-/* Defaults used when the setting is not stored. CUSUM k and h are a starting
- * point, not a recommendation: local policy, to be tuned on the department's
- * own spread of deviations. */
+/* Defaults used when the setting is not stored. The CUSUM values are a
+ * starting point, not a recommendation: local policy, to be tuned on the
+ * department's own spread of deviations (docs/rules.md). With a spread of
+ * about 2 % they are k = 0.5 sigma and h = 5 sigma, the usual tabular-CUSUM
+ * choice for detecting a shift of one sigma (Montgomery). */
 #define FXL_WEEKLY_INTERVAL_DAYS_DEFAULT 7
 #define FXL_CALIBRATION_DUE_DAYS_DEFAULT 14
+#define FXL_CUSUM_TARGET_PCT_DEFAULT 0.0
 #define FXL_CUSUM_K_PCT_DEFAULT 1.0
-#define FXL_CUSUM_H_PCT_DEFAULT 5.0
-#define FXL_CUSUM_TARGET_PCT 0.0
+#define FXL_CUSUM_H_PCT_DEFAULT 10.0
 
 /* A text explaining a rule hit, for the review item's summary. */
 #define FXL_RULE_TEXT_LEN 240
@@ -157,6 +159,7 @@ typedef struct fxl_cusum_result {
     double s_low;                   /* C- after the last deviation (>= 0) */
     int signal;                     /* 0 none, +1 drift upward, -1 drift downward */
     size_t signal_index;            /* index of the first deviation that signalled */
+    double signal_value;            /* C+ or C- at that deviation */
     char text[FXL_RULE_TEXT_LEN];
 } fxl_cusum_result;
 

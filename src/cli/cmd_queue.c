@@ -1,11 +1,689 @@
-/* Placeholder until the queue command family lands. */
+/* fxledger queue: list the review queue with filters, show one item with its
+ * measurement, trend and events, and sign events on it (acknowledge,
+ * comment, close with a disposition, reopen). No SQL here. */
+#include <limits.h>
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+
 #include "cli/cli.h"
+#include "fxl/review.h"
+#include "fxl/rules.h"
+
+/* ---- small helpers ---------------------------------------------------------- */
+
+static int parse_item_id(int64_t *out, const char *text)
+{
+    long v;
+
+    if (text && text[0] == '#')
+        text++;
+    if (cli_int(&v, text, "review item id", 1, LONG_MAX) != 0)
+        return -1;
+    *out = v;
+    return 0;
+}
+
+static int parse_severity(int *out, const char *text)
+{
+    static const char *const names[] = {"low", "medium", "high", "critical"};
+    long v;
+    int i;
+
+    for (i = 0; i < 4; i++) {
+        if (strcasecmp(text, names[i]) == 0) {
+            *out = i + 1;
+            return 0;
+        }
+    }
+    if (cli_int(&v, text, "severity", 1, 4) != 0)
+        return -1;
+    *out = (int)v;
+    return 0;
+}
+
+static int parse_status(unsigned *out, const char *text)
+{
+    if (!text)
+        *out = FXL_QUEUE_ACTIVE;
+    else if (strcmp(text, "open") == 0)
+        *out = FXL_QUEUE_OPEN;
+    else if (strcmp(text, "acknowledged") == 0)
+        *out = FXL_QUEUE_ACKNOWLEDGED;
+    else if (strcmp(text, "closed") == 0)
+        *out = FXL_QUEUE_CLOSED;
+    else if (strcmp(text, "active") == 0)
+        *out = FXL_QUEUE_ACTIVE;
+    else if (strcmp(text, "all") == 0)
+        *out = FXL_QUEUE_ALL;
+    else {
+        cli_error("status '%s' must be open, acknowledged, closed, active or all", text);
+        return -1;
+    }
+    return 0;
+}
+
+static void add_num(cJSON *o, const char *key, double v)
+{
+    if (isfinite(v))
+        cJSON_AddNumberToObject(o, key, v);
+    else
+        cJSON_AddNullToObject(o, key);
+}
+
+static void add_id(cJSON *o, const char *key, int64_t v)
+{
+    if (v)
+        cJSON_AddNumberToObject(o, key, (double)v);
+    else
+        cJSON_AddNullToObject(o, key);
+}
+
+static void add_text(cJSON *o, const char *key, const char *v)
+{
+    if (v && *v)
+        cJSON_AddStringToObject(o, key, v);
+    else
+        cJSON_AddNullToObject(o, key);
+}
+
+static cJSON *item_json(const fxl_review_item *it)
+{
+    cJSON *o = cJSON_CreateObject();
+
+    cJSON_AddNumberToObject(o, "id", (double)it->id);
+    cJSON_AddStringToObject(o, "rule", it->rule);
+    add_text(o, "rule_key", it->rule_key);
+    cJSON_AddNumberToObject(o, "severity", it->severity);
+    cJSON_AddStringToObject(o, "severity_name", fxl_severity_name(it->severity));
+    cJSON_AddStringToObject(o, "status", it->status);
+    add_text(o, "disposition", strcmp(it->status, "closed") == 0 ? it->disposition : "");
+    add_id(o, "measurement_id", it->measurement_id);
+    add_id(o, "superseded_by", it->superseded_by);
+    add_text(o, "mrn", it->mrn);
+    add_text(o, "patient_name", it->patient_name);
+    add_text(o, "plan", it->plan);
+    add_text(o, "field", it->field);
+    add_text(o, "point", it->point);
+    if (it->fraction_number)
+        cJSON_AddNumberToObject(o, "fraction", it->fraction_number);
+    else
+        cJSON_AddNullToObject(o, "fraction");
+    add_text(o, "detector", it->detector);
+    cJSON_AddStringToObject(o, "summary", it->summary);
+    cJSON_AddStringToObject(o, "opened_at", it->opened_at);
+    cJSON_AddNumberToObject(o, "age_days", (double)it->age_days);
+    add_text(o, "last_event", it->last_event);
+    add_text(o, "last_event_by", it->last_event_by);
+    add_text(o, "last_event_at", it->last_event_at);
+    return o;
+}
+
+/* "P-0001 / AP entrance / D-1001", whatever the item has. */
+static void subject_line(char *buf, size_t size, const fxl_review_item *it)
+{
+    char part[200];
+
+    buf[0] = '\0';
+    if (it->mrn[0]) {
+        snprintf(part, sizeof part, "patient %s", it->mrn);
+        strncat(buf, part, size - strlen(buf) - 1);
+    }
+    if (it->field[0]) {
+        snprintf(part, sizeof part, "%sfield %s %s", buf[0] ? ", " : "", it->field, it->point);
+        strncat(buf, part, size - strlen(buf) - 1);
+    }
+    if (it->fraction_number) {
+        snprintf(part, sizeof part, "%sfraction %d", buf[0] ? ", " : "", it->fraction_number);
+        strncat(buf, part, size - strlen(buf) - 1);
+    }
+    if (it->detector[0]) {
+        snprintf(part, sizeof part, "%sdetector %s", buf[0] ? ", " : "", it->detector);
+        strncat(buf, part, size - strlen(buf) - 1);
+    }
+}
+
+static const char *severity_color(const cli_env *env, int severity)
+{
+    if (severity >= FXL_SEVERITY_CRITICAL)
+        return cli_color(env, CLI_RED);
+    if (severity >= FXL_SEVERITY_HIGH)
+        return cli_color(env, CLI_YELLOW);
+    return "";
+}
+
+/* ---- queue list ------------------------------------------------------------- */
+
+static int queue_list(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {
+        {"patient", "MRN", "only items of this patient", NULL},
+        {"detector", "SERIAL", "only items on or measured with this detector", NULL},
+        {"status", "STATUS", "open, acknowledged, closed, active (open and acknowledged; default) or all", NULL},
+        {"severity", "N", "minimum severity: 1 low, 2 medium, 3 high, 4 critical (or the name)", NULL},
+        {"since", "DATE", "only items opened on or after DATE (YYYY-MM-DD)", NULL},
+        {NULL, NULL, NULL, NULL}};
+    fxl_queue_filter f;
+    fxl_review_item *items = NULL;
+    const char *pos[1], *v;
+    size_t n = 0, i;
+    int npos, rc;
+
+    rc = cli_parse(env, "queue list [--patient MRN] [--detector SERIAL] [--status STATUS] "
+                   "[--severity N] [--since DATE]",
+                   "Lists review items, most severe first, then oldest first. By default only\n"
+                   "items still to be worked (open or acknowledged) are shown.",
+                   opts, argc, argv, pos, 0, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    memset(&f, 0, sizeof f);
+    f.mrn = cli_get(opts, "patient");
+    f.detector = cli_get(opts, "detector");
+    f.since = cli_get(opts, "since");
+    if (parse_status(&f.status_mask, cli_get(opts, "status")) != 0)
+        return CLI_EXIT_USAGE;
+    if ((v = cli_get(opts, "severity")) && parse_severity(&f.min_severity, v) != 0)
+        return CLI_EXIT_USAGE;
+    if ((rc = fxl_queue_list(env->ctx, &items, &n, &f)) != 0)
+        return cli_fail(env, rc);
+
+    if (env->json) {
+        cJSON *arr = cJSON_CreateArray();
+        for (i = 0; i < n; i++)
+            cJSON_AddItemToArray(arr, item_json(&items[i]));
+        free(items);
+        return cli_print_json(arr);
+    }
+    if (n == 0) {
+        printf("review queue: no items match\n");
+        free(items);
+        return CLI_EXIT_OK;
+    }
+    printf("review queue: %zu item%s, most severe first, then oldest\n\n", n, n == 1 ? "" : "s");
+    for (i = 0; i < n; i++) {
+        const fxl_review_item *it = &items[i];
+        char subject[400], state[160];
+        if (strcmp(it->status, "closed") == 0 && it->disposition[0])
+            snprintf(state, sizeof state, "closed (%s)", it->disposition);
+        else
+            snprintf(state, sizeof state, "%s", it->status);
+        subject_line(subject, sizeof subject, it);
+        printf("%s#%-5lld %-8s%s  %-12s  %-20s opened %.10s (%ld day%s)\n",
+               severity_color(env, it->severity), (long long)it->id,
+               fxl_severity_name(it->severity), cli_color(env, CLI_RESET), state, it->rule,
+               it->opened_at, it->age_days, it->age_days == 1 ? "" : "s");
+        if (subject[0])
+            printf("        %s\n", subject);
+        printf("        %s\n", it->summary);
+        if (it->superseded_by)
+            printf("        reading superseded by measurement #%lld (see 'fxledger queue show %lld')\n",
+                   (long long)it->superseded_by, (long long)it->id);
+        if (i + 1 < n)
+            printf("\n");
+    }
+    free(items);
+    return CLI_EXIT_OK;
+}
+
+/* ---- queue show -------------------------------------------------------------- */
+
+#define TREND_COLS 41
+#define TREND_MAX_ROWS 40
+
+static double trend_scale(const fxl_review_detail *d)
+{
+    double w = isfinite(d->trend_action_pct) ? d->trend_action_pct : 5.0;
+    size_t i;
+
+    for (i = 0; i < d->n_trend; i++)
+        if (isfinite(d->trend[i].deviation_pct) && fabs(d->trend[i].deviation_pct) > w)
+            w = fabs(d->trend[i].deviation_pct);
+    return ceil(w);
+}
+
+static int trend_col(double v, double w)
+{
+    int c = (int)lround((v + w) / (2.0 * w) * (TREND_COLS - 1));
+    return c < 0 ? 0 : c >= TREND_COLS ? TREND_COLS - 1 : c;
+}
+
+/* One lane of the text trend: the axis, the levels and the point. */
+static void trend_lane(char lane[TREND_COLS + 1], const fxl_review_detail *d, double w, double v,
+                       char mark)
+{
+    int i;
+
+    memset(lane, ' ', TREND_COLS);
+    lane[TREND_COLS] = '\0';
+    lane[trend_col(0.0, w)] = '.';
+    if (isfinite(d->trend_tolerance_pct)) {
+        lane[trend_col(-d->trend_tolerance_pct, w)] = ':';
+        lane[trend_col(d->trend_tolerance_pct, w)] = ':';
+    }
+    if (isfinite(d->trend_action_pct)) {
+        lane[trend_col(-d->trend_action_pct, w)] = '|';
+        lane[trend_col(d->trend_action_pct, w)] = '|';
+    }
+    if (isfinite(v))
+        lane[trend_col(v, w)] = mark;
+    for (i = TREND_COLS - 1; i >= 0 && lane[i] == ' '; i--)
+        lane[i] = '\0';
+}
+
+static void print_trend(const cli_env *env, const fxl_review_detail *d)
+{
+    char lane[TREND_COLS + 1];
+    double w = trend_scale(d);
+    size_t i, first = d->n_trend > TREND_MAX_ROWS ? d->n_trend - TREND_MAX_ROWS : 0;
+
+    (void)env;
+    if (d->trend_is_detector) {
+        printf("\nDeviations measured with detector %s since its latest calibration or closed\n"
+               "drift review, all patients, with the CUSUM sums (target %.2f %%, k = %.2f %%,\n"
+               "h = %.2f %%):\n",
+               d->item.detector, d->cusum_target_pct, d->cusum_k_pct, d->cusum_h_pct);
+    } else {
+        printf("\nHistory of field %s %s (patient %s), deviation per fraction:\n", d->item.field,
+               d->item.point, d->item.mrn);
+    }
+    if (d->n_trend == 0) {
+        printf("  no measurements\n");
+        return;
+    }
+    printf("  scale -%.0f %% .. +%.0f %%   '.' 0 %%", w, w);
+    if (isfinite(d->trend_tolerance_pct))
+        printf("   ':' tolerance %.2f %%", d->trend_tolerance_pct);
+    if (isfinite(d->trend_action_pct))
+        printf("   '|' action %.2f %%", d->trend_action_pct);
+    printf("\n");
+    if (first)
+        printf("  (%zu earlier measurement%s not shown)\n", first, first == 1 ? "" : "s");
+    for (i = first; i < d->n_trend; i++) {
+        const fxl_review_trend_point *t = &d->trend[i];
+        char mark = t->is_item ? '*' : t->superseded ? 'x' : 'o';
+        char dev[24];
+        if (isfinite(t->deviation_pct))
+            snprintf(dev, sizeof dev, "%+7.2f %%", t->deviation_pct);
+        else
+            snprintf(dev, sizeof dev, "%9s", "--");
+        trend_lane(lane, d, w, t->deviation_pct, mark);
+        if (d->trend_is_detector)
+            printf("  %.10s  %-10.10s %-8.8s %s  C+ %5.2f  C- %5.2f  %s\n", t->treated_at, t->mrn,
+                   t->field, dev, t->cusum_high, t->cusum_low, lane);
+        else
+            printf("  fx %3d  %.10s  %s  %-18s %s%s\n", t->fraction_number, t->treated_at, dev,
+                   t->verdict, lane, t->superseded ? "  (superseded)" : "");
+    }
+    if (!d->trend_is_detector)
+        printf("  * this item's measurement   o other measurements   x superseded readings\n");
+}
+
+static void print_factor(const char *name, double v, const char *fmt_unit)
+{
+    if (isfinite(v))
+        printf("  %-16s %.4f%s\n", name, v, fmt_unit);
+    else
+        printf("  %-16s --\n", name);
+}
+
+static void print_measurement(const fxl_review_measurement *m)
+{
+    static const char *const cf_names[FXL_CF_COUNT] = {"CF field size", "CF SSD", "CF wedge",
+                                                       "CF tray", "CF angle"};
+    int i;
+
+    printf("\nMeasurement #%lld: fraction %d, treated %s, recorded by %s at %s\n", (long long)m->id,
+           m->fraction_number, m->treated_at, m->recorded_by, m->recorded_at);
+    printf("  %-16s %s %s, beam %s, detector %s\n", "field", m->field, m->point, m->beam,
+           m->detector);
+    printf("  %-16s %.4g %s\n", "reading", m->reading, m->reading_unit);
+    printf("  %-16s %.1f degC (%s)\n", "temperature", m->temp_c,
+           m->temp_entered ? "entered" : "skin-temperature setting");
+    if (m->calibration_id)
+        printf("  %-16s #%lld, N = %.5g cGy/%s\n", "calibration", (long long)m->calibration_id,
+               m->factor_n, m->reading_unit);
+    else
+        printf("  %-16s none found\n", "calibration");
+    for (i = 0; i < FXL_CF_COUNT; i++)
+        print_factor(cf_names[i], m->cf[i], "");
+    print_factor("CF temperature", m->cf_temp, "");
+    if (isfinite(m->corrected_dose_cgy))
+        printf("  %-16s %.2f cGy\n", "corrected dose", m->corrected_dose_cgy);
+    else
+        printf("  %-16s --\n", "corrected dose");
+    if (isfinite(m->expected_dose_cgy))
+        printf("  %-16s %.2f cGy\n", "expected dose", m->expected_dose_cgy);
+    else
+        printf("  %-16s missing\n", "expected dose");
+    if (isfinite(m->deviation_pct))
+        printf("  %-16s %+.2f %%\n", "deviation", m->deviation_pct);
+    else
+        printf("  %-16s --\n", "deviation");
+    if (m->threshold_set_id)
+        printf("  %-16s set '%s' v%d: tolerance %.2f %%, action %.2f %%, floor %.2f cGy\n",
+               "levels", m->threshold_name, m->threshold_version, m->tolerance_pct, m->action_pct,
+               m->floor_cgy);
+    else
+        printf("  %-16s none applied\n", "levels");
+    printf("  %-16s %s\n", "verdict", m->verdict);
+    for (i = 0; i < m->reasons.n; i++)
+        printf("  %-16s %s\n", i == 0 ? "reasons" : "", m->reasons.text[i]);
+    if (m->supersedes_id)
+        printf("  %-16s #%lld: %s\n", "amends", (long long)m->supersedes_id, m->amend_reason);
+    if (m->superseded_by) {
+        if (isfinite(m->superseded_deviation_pct))
+            printf("  %-16s #%lld: %s (new result: %s, %+.2f %%)\n", "SUPERSEDED by",
+                   (long long)m->superseded_by, m->superseded_reason, m->superseded_verdict,
+                   m->superseded_deviation_pct);
+        else
+            printf("  %-16s #%lld: %s (new result: %s)\n", "SUPERSEDED by",
+                   (long long)m->superseded_by, m->superseded_reason, m->superseded_verdict);
+    }
+}
+
+static cJSON *measurement_json(const fxl_review_measurement *m)
+{
+    static const char *const cf_keys[FXL_CF_COUNT] = {"cf_field_size", "cf_ssd", "cf_wedge",
+                                                      "cf_tray", "cf_angle"};
+    cJSON *o = cJSON_CreateObject(), *reasons = cJSON_CreateArray();
+    int i;
+
+    cJSON_AddNumberToObject(o, "id", (double)m->id);
+    cJSON_AddNumberToObject(o, "fraction", m->fraction_number);
+    cJSON_AddStringToObject(o, "treated_at", m->treated_at);
+    cJSON_AddStringToObject(o, "recorded_at", m->recorded_at);
+    cJSON_AddStringToObject(o, "recorded_by", m->recorded_by);
+    cJSON_AddStringToObject(o, "field", m->field);
+    cJSON_AddStringToObject(o, "point", m->point);
+    cJSON_AddStringToObject(o, "beam", m->beam);
+    cJSON_AddStringToObject(o, "detector", m->detector);
+    add_num(o, "reading", m->reading);
+    cJSON_AddStringToObject(o, "reading_unit", m->reading_unit);
+    add_num(o, "temp_c", m->temp_c);
+    cJSON_AddBoolToObject(o, "temp_entered", m->temp_entered);
+    add_id(o, "calibration_id", m->calibration_id);
+    add_num(o, "factor_n_cgy_per_unit", m->factor_n);
+    for (i = 0; i < FXL_CF_COUNT; i++)
+        add_num(o, cf_keys[i], m->cf[i]);
+    add_num(o, "cf_temp", m->cf_temp);
+    add_num(o, "corrected_dose_cgy", m->corrected_dose_cgy);
+    add_num(o, "expected_dose_cgy", m->expected_dose_cgy);
+    add_num(o, "deviation_pct", m->deviation_pct);
+    add_id(o, "threshold_set_id", m->threshold_set_id);
+    add_text(o, "threshold_name", m->threshold_name);
+    add_num(o, "tolerance_pct", m->tolerance_pct);
+    add_num(o, "action_pct", m->action_pct);
+    add_num(o, "floor_cgy", m->floor_cgy);
+    cJSON_AddStringToObject(o, "verdict", m->verdict);
+    for (i = 0; i < m->reasons.n; i++)
+        cJSON_AddItemToArray(reasons, cJSON_CreateString(m->reasons.text[i]));
+    cJSON_AddItemToObject(o, "reasons", reasons);
+    add_id(o, "supersedes_id", m->supersedes_id);
+    add_text(o, "amend_reason", m->amend_reason);
+    add_id(o, "superseded_by", m->superseded_by);
+    add_text(o, "superseded_reason", m->superseded_reason);
+    add_text(o, "superseded_verdict", m->superseded_verdict);
+    return o;
+}
+
+static int queue_show(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    fxl_review_detail d = FXL_REVIEW_DETAIL_INIT;
+    const char *pos[1];
+    int64_t id;
+    char subject[400];
+    size_t i;
+    int npos, rc;
+
+    rc = cli_parse(env, "queue show ID",
+                   "Shows one review item: the measurement with every factor it was judged by,\n"
+                   "the history of its field (or, for an item on a detector, the detector's\n"
+                   "deviations and CUSUM sums) as a small text trend, and every signed event.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("queue show needs an item id (see 'fxledger queue list')");
+        return CLI_EXIT_USAGE;
+    }
+    if (parse_item_id(&id, pos[0]) != 0)
+        return CLI_EXIT_USAGE;
+    if ((rc = fxl_queue_show(env->ctx, &d, id)) != 0)
+        return cli_fail(env, rc);
+
+    if (env->json) {
+        cJSON *o = item_json(&d.item), *trend = cJSON_CreateArray(), *events = cJSON_CreateArray();
+        if (d.has_measurement)
+            cJSON_AddItemToObject(o, "measurement", measurement_json(&d.m));
+        else
+            cJSON_AddNullToObject(o, "measurement");
+        cJSON_AddStringToObject(o, "trend_kind", d.trend_is_detector ? "detector" : "field");
+        add_num(o, "trend_tolerance_pct", d.trend_tolerance_pct);
+        add_num(o, "trend_action_pct", d.trend_action_pct);
+        if (d.trend_is_detector) {
+            add_num(o, "cusum_target_pct", d.cusum_target_pct);
+            add_num(o, "cusum_k_pct", d.cusum_k_pct);
+            add_num(o, "cusum_h_pct", d.cusum_h_pct);
+        }
+        for (i = 0; i < d.n_trend; i++) {
+            const fxl_review_trend_point *t = &d.trend[i];
+            cJSON *p = cJSON_CreateObject();
+            cJSON_AddNumberToObject(p, "measurement_id", (double)t->measurement_id);
+            cJSON_AddNumberToObject(p, "fraction", t->fraction_number);
+            cJSON_AddStringToObject(p, "treated_at", t->treated_at);
+            cJSON_AddStringToObject(p, "mrn", t->mrn);
+            cJSON_AddStringToObject(p, "field", t->field);
+            add_num(p, "deviation_pct", t->deviation_pct);
+            cJSON_AddStringToObject(p, "verdict", t->verdict);
+            cJSON_AddBoolToObject(p, "superseded", t->superseded);
+            cJSON_AddBoolToObject(p, "this_item", t->is_item);
+            if (d.trend_is_detector) {
+                add_num(p, "cusum_high_pct", t->cusum_high);
+                add_num(p, "cusum_low_pct", t->cusum_low);
+            }
+            cJSON_AddItemToArray(trend, p);
+        }
+        cJSON_AddItemToObject(o, "trend", trend);
+        for (i = 0; i < d.n_events; i++) {
+            const fxl_review_event *e = &d.events[i];
+            cJSON *p = cJSON_CreateObject();
+            cJSON_AddNumberToObject(p, "id", (double)e->id);
+            cJSON_AddStringToObject(p, "kind", e->kind);
+            add_text(p, "disposition", e->disposition);
+            add_text(p, "comment", e->comment);
+            cJSON_AddStringToObject(p, "user", e->user);
+            cJSON_AddStringToObject(p, "user_name", e->user_name);
+            cJSON_AddStringToObject(p, "role", e->user_role);
+            cJSON_AddStringToObject(p, "at", e->at);
+            cJSON_AddItemToArray(events, p);
+        }
+        cJSON_AddItemToObject(o, "events", events);
+        fxl_review_detail_release(&d);
+        return cli_print_json(o);
+    }
+
+    subject_line(subject, sizeof subject, &d.item);
+    printf("%sReview item #%lld%s  [%s%s%s, %s]  rule: %s\n", cli_color(env, CLI_BOLD),
+           (long long)d.item.id, cli_color(env, CLI_RESET), severity_color(env, d.item.severity),
+           fxl_severity_name(d.item.severity), cli_color(env, CLI_RESET), d.item.status,
+           d.item.rule);
+    printf("  opened %s (%ld day%s ago)\n", d.item.opened_at, d.item.age_days,
+           d.item.age_days == 1 ? "" : "s");
+    if (d.item.patient_name[0])
+        printf("  patient %s (%s)%s%s%s\n", d.item.mrn, d.item.patient_name,
+               d.item.plan[0] ? ", plan '" : "", d.item.plan, d.item.plan[0] ? "'" : "");
+    if (subject[0])
+        printf("  %s\n", subject);
+    printf("  %s\n", d.item.summary);
+    if (d.has_measurement)
+        print_measurement(&d.m);
+    if (d.item.field_id || d.item.detector_id)
+        print_trend(env, &d);
+    printf("\nEvents:\n");
+    for (i = 0; i < d.n_events; i++) {
+        const fxl_review_event *e = &d.events[i];
+        printf("  %s  %-11s %s (%s, %s)", e->at, e->kind, e->user, e->user_name, e->user_role);
+        if (e->disposition[0])
+            printf("  disposition: %s", e->disposition);
+        printf("\n");
+        if (e->comment[0])
+            printf("      %s\n", e->comment);
+    }
+    printf("\n");
+    cli_print_caveat(stdout);
+    fxl_review_detail_release(&d);
+    return CLI_EXIT_OK;
+}
+
+/* ---- events ------------------------------------------------------------------- */
+
+static int print_event_done(cli_env *env, int64_t id, const char *kind, const char *done)
+{
+    fxl_review_detail d = FXL_REVIEW_DETAIL_INIT;
+    int rc = fxl_queue_show(env->ctx, &d, id);
+
+    if (rc != 0)
+        return cli_fail(env, rc);
+    if (env->json) {
+        cJSON *o = cJSON_CreateObject();
+        cJSON_AddNumberToObject(o, "id", (double)id);
+        cJSON_AddStringToObject(o, "event", kind);
+        cJSON_AddStringToObject(o, "status", d.item.status);
+        add_text(o, "disposition", strcmp(d.item.status, "closed") == 0 ? d.item.disposition : "");
+        cJSON_AddStringToObject(o, "user", fxl_user_login(env->ctx));
+        fxl_review_detail_release(&d);
+        return cli_print_json(o);
+    }
+    printf("review item #%lld %s by %s; status now %s\n", (long long)id, done,
+           fxl_user_login(env->ctx), d.item.status);
+    fxl_review_detail_release(&d);
+    return CLI_EXIT_OK;
+}
+
+static int queue_ack(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{"comment", "TEXT", "what was checked or done (optional)", NULL},
+                      {NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    int64_t id;
+    int npos, rc;
+
+    rc = cli_parse(env, "queue ack ID [--comment TEXT]",
+                   "Acknowledges an open item: someone has seen it and is on it. Therapists,\n"
+                   "physicists and admins may acknowledge; only physicists and admins close.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("queue ack needs an item id");
+        return CLI_EXIT_USAGE;
+    }
+    if (parse_item_id(&id, pos[0]) != 0)
+        return CLI_EXIT_USAGE;
+    if ((rc = fxl_review_acknowledge(env->ctx, id, cli_get(opts, "comment"))) != 0)
+        return cli_fail(env, rc);
+    return print_event_done(env, id, "acknowledge", "acknowledged");
+}
+
+static int queue_comment(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    const char *pos[2];
+    int64_t id;
+    int npos, rc;
+
+    rc = cli_parse(env, "queue comment ID TEXT",
+                   "Adds a signed comment to an item in any status (therapist, physicist, admin).",
+                   opts, argc, argv, pos, 2, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 2) {
+        cli_error("queue comment needs an item id and the comment text");
+        return CLI_EXIT_USAGE;
+    }
+    if (parse_item_id(&id, pos[0]) != 0)
+        return CLI_EXIT_USAGE;
+    if ((rc = fxl_review_comment(env->ctx, id, pos[1])) != 0)
+        return cli_fail(env, rc);
+    return print_event_done(env, id, "comment", "commented");
+}
+
+static int queue_close(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{"disposition", "D", "the outcome, one of the configured list (required)", NULL},
+                      {"comment", "TEXT", "findings and action taken (optional)", NULL},
+                      {NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    int64_t id;
+    int npos, rc;
+
+    rc = cli_parse(env, "queue close ID --disposition D [--comment TEXT]",
+                   "Closes an open or acknowledged item with a disposition (physicist or admin).\n"
+                   "The dispositions are the setting 'dispositions' (comma-separated); by default:\n"
+                   "set-up error, detector placement, detector fault, calibration, expected-dose\n"
+                   "error, anatomy change, clinically accepted, other.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("queue close needs an item id");
+        return CLI_EXIT_USAGE;
+    }
+    if (!cli_get(opts, "disposition")) {
+        cli_error("--disposition is required (see 'fxledger queue close --help')");
+        return CLI_EXIT_USAGE;
+    }
+    if (parse_item_id(&id, pos[0]) != 0)
+        return CLI_EXIT_USAGE;
+    if ((rc = fxl_review_close(env->ctx, id, cli_get(opts, "disposition"), cli_get(opts, "comment"))) != 0)
+        return cli_fail(env, rc);
+    return print_event_done(env, id, "close", "closed");
+}
+
+static int queue_reopen(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{"comment", "TEXT", "why it is reopened (required)", NULL},
+                      {NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    int64_t id;
+    int npos, rc;
+
+    rc = cli_parse(env, "queue reopen ID --comment TEXT",
+                   "Reopens a closed item (physicist or admin); the reason is required.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("queue reopen needs an item id");
+        return CLI_EXIT_USAGE;
+    }
+    if (!cli_get(opts, "comment")) {
+        cli_error("--comment is required: say why the item is reopened");
+        return CLI_EXIT_USAGE;
+    }
+    if (parse_item_id(&id, pos[0]) != 0)
+        return CLI_EXIT_USAGE;
+    if ((rc = fxl_review_reopen(env->ctx, id, cli_get(opts, "comment"))) != 0)
+        return cli_fail(env, rc);
+    return print_event_done(env, id, "reopen", "reopened");
+}
 
 int cmd_queue(cli_env *env, int argc, char **argv)
 {
-    (void)env;
-    (void)argc;
-    (void)argv;
-    cli_error("'queue' is not available in this build yet");
-    return CLI_EXIT_USAGE;
+    static const cli_sub subs[] = {
+        {"list", queue_list, "list review items (filters: patient, detector, status, severity, since)"},
+        {"show", queue_show, "show one item: measurement, factors, field trend, events"},
+        {"ack", queue_ack, "acknowledge an open item"},
+        {"comment", queue_comment, "add a signed comment to an item"},
+        {"close", queue_close, "close an item with a disposition (physicist, admin)"},
+        {"reopen", queue_reopen, "reopen a closed item (physicist, admin)"},
+        {NULL, NULL, NULL}};
+
+    return cli_dispatch_sub(env, subs,
+                            "The review queue: every result not within tolerance and every rule hit\n"
+                            "opens one item; physicists work and sign them (docs/review.md).",
+                            argc, argv);
 }

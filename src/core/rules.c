@@ -235,6 +235,7 @@ int fxl_cusum(fxl_cusum_result *out, double *s_high, double *s_low, const double
         if (!out->signal && (hi > p->h_pct || lo > p->h_pct)) {
             out->signal = hi > p->h_pct ? 1 : -1;
             out->signal_index = i;
+            out->signal_value = hi > p->h_pct ? hi : lo;
         }
     }
     out->n = n;
@@ -245,7 +246,7 @@ int fxl_cusum(fxl_cusum_result *out, double *s_high, double *s_low, const double
                  "CUSUM of deviations drifted %s: C%c = %.2f %% > h = %.2f %% after %zu "
                  "measurement%s (target %.2f %%, k = %.2f %%)",
                  out->signal > 0 ? "upward (detector reads high)" : "downward (detector reads low)",
-                 out->signal > 0 ? '+' : '-', out->signal > 0 ? hi : lo, p->h_pct,
+                 out->signal > 0 ? '+' : '-', out->signal_value, p->h_pct,
                  out->signal_index + 1, out->signal_index == 0 ? "" : "s", p->target_pct,
                  p->k_pct);
     else

@@ -670,6 +670,7 @@ static int load_detector_trend(fxl_ctx *ctx, fxl_review_detail *d)
         (rc = fxl_drift_series(ctx, &pts, &n, since, d->item.detector_id)) != 0)
         goto cleanup;
     d->trend_is_detector = 1;
+    d->cusum_target_pct = rs.cusum_target_pct;
     d->cusum_k_pct = rs.cusum_k_pct;
     d->cusum_h_pct = rs.cusum_h_pct;
     if (n == 0)
@@ -684,7 +685,7 @@ static int load_detector_trend(fxl_ctx *ctx, fxl_review_detail *d)
     }
     for (i = 0; i < n; i++)
         dev[i] = pts[i].deviation_pct;
-    p.target_pct = FXL_CUSUM_TARGET_PCT;
+    p.target_pct = rs.cusum_target_pct;
     p.k_pct = rs.cusum_k_pct;
     p.h_pct = rs.cusum_h_pct;
     if (fxl_cusum(&cr, hi, lo, dev, n, &p) != 0) {
@@ -764,7 +765,7 @@ int fxl_queue_show(fxl_ctx *ctx, fxl_review_detail *out, int64_t id)
 
     memset(out, 0, sizeof *out);
     out->trend_tolerance_pct = out->trend_action_pct = NAN;
-    out->cusum_k_pct = out->cusum_h_pct = NAN;
+    out->cusum_target_pct = out->cusum_k_pct = out->cusum_h_pct = NAN;
     if ((rc = fxl_require_role(ctx, FXL_ROLES_ANY, "reading the review queue")) != 0)
         return rc;
     memset(&all, 0, sizeof all);

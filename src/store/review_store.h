@@ -44,8 +44,9 @@ int fxl_review_follow_amendment(fxl_ctx *ctx, int64_t old_id, int64_t new_id);
 typedef struct fxl_rule_settings {
     int calibration_due_days;   /* calibration_due_days, 0..365, default 14 */
     int weekly_interval_days;   /* weekly_interval_days, 1..60, default 7 */
+    double cusum_target_pct;    /* cusum_target_pct, -20..20 %, default 0 */
     double cusum_k_pct;         /* cusum_k_pct, 0..20 %, default 1 */
-    double cusum_h_pct;         /* cusum_h_pct, 0.1..100 %, default 5 */
+    double cusum_h_pct;         /* cusum_h_pct, 0.1..100 %, default 10 */
 } fxl_rule_settings;
 
 int fxl_rule_settings_load(fxl_ctx *ctx, fxl_rule_settings *out);

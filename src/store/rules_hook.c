@@ -48,6 +48,8 @@ int fxl_rule_settings_load(fxl_ctx *ctx, fxl_rule_settings *out)
                              0, 365, 1, "days")) != 0 ||
         (rc = setting_number(ctx, &weekly, "weekly_interval_days", FXL_WEEKLY_INTERVAL_DAYS_DEFAULT,
                              1, 60, 1, "days")) != 0 ||
+        (rc = setting_number(ctx, &out->cusum_target_pct, "cusum_target_pct",
+                             FXL_CUSUM_TARGET_PCT_DEFAULT, -20, 20, 0, "%")) != 0 ||
         (rc = setting_number(ctx, &out->cusum_k_pct, "cusum_k_pct", FXL_CUSUM_K_PCT_DEFAULT, 0, 20,
                              0, "%")) != 0 ||
         (rc = setting_number(ctx, &out->cusum_h_pct, "cusum_h_pct", FXL_CUSUM_H_PCT_DEFAULT, 0.1,
@@ -390,6 +392,7 @@ static int rule_dose_limit(fxl_ctx *ctx, const hook_detector *d)
     snprintf(since, sizeof since, "%s", fxl_stmt_text(&s, 1));
     total = fxl_stmt_double(&s, 2);
     fxl_stmt_finalize(&s);
+    rc = 0;
     if (fxl_rule_dose_limit(&r, total, d->dose_limit_cgy) != 0) {
         rc = fxl_fail(ctx, FXL_EINVAL, "internal: accumulated dose %g cGy of detector %s is not valid",
                       total, d->serial);
@@ -509,7 +512,7 @@ static int rule_drift(fxl_ctx *ctx, const hook_detector *d, const fxl_rule_setti
     }
     for (i = 0; i < n; i++)
         dev[i] = pts[i].deviation_pct;
-    p.target_pct = FXL_CUSUM_TARGET_PCT;
+    p.target_pct = rs->cusum_target_pct;
     p.k_pct = rs->cusum_k_pct;
     p.h_pct = rs->cusum_h_pct;
     if (fxl_cusum(&r, NULL, NULL, dev, n, &p) != 0) {

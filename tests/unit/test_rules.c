@@ -302,8 +302,8 @@ static void test_rules_dose_limit_boundary(void **state)
 
 /* ---- CUSUM -------------------------------------------------------------- */
 
-static const fxl_cusum_params default_cusum = {FXL_CUSUM_TARGET_PCT, FXL_CUSUM_K_PCT_DEFAULT,
-                                               FXL_CUSUM_H_PCT_DEFAULT};
+/* target 0, k = 1 %, h = 5 %: small numbers for hand computation. */
+static const fxl_cusum_params default_cusum = {0.0, 1.0, 5.0};
 
 static void test_rules_cusum_upward_boundary(void **state)
 {
@@ -325,6 +325,7 @@ static void test_rules_cusum_upward_boundary(void **state)
     assert_near(hi[0], 1.0, 1e-12);
     assert_near(hi[5], 6.0, 1e-12);
     assert_near(lo[5], 0.0, 1e-12);
+    assert_near(r.signal_value, 6.0, 1e-12);
     assert_non_null(strstr(r.text, "upward"));
 }
 
@@ -379,6 +380,34 @@ static void test_rules_cusum_target_shifts_reference(void **state)
     assert_int_equal(fxl_cusum(&r, NULL, NULL, x, 7, &p), 0);
     assert_int_equal(r.signal, 0);
     assert_near(r.s_high, 0.0, 1e-12);
+}
+
+static void test_rules_cusum_defaults_slow_drift(void **state)
+{
+    /* Shipped defaults (target 0, k = 1 %, h = 10 %): a detector reading 3 %
+     * high every time - each result within a 5 % tolerance - adds 2 % per
+     * measurement: C+ = 2, 4, 6, 8, 10 (exactly h: no signal), 12 (signal at
+     * the sixth). One outlier of +8 % alone (C+ = 7) does not signal. */
+    fxl_cusum_params p = {FXL_CUSUM_TARGET_PCT_DEFAULT, FXL_CUSUM_K_PCT_DEFAULT,
+                          FXL_CUSUM_H_PCT_DEFAULT};
+    double x[] = {3.0, 3.0, 3.0, 3.0, 3.0, 3.0, -9.0};
+    double one[] = {8.0};
+    fxl_cusum_result r;
+
+    (void)state;
+    assert_int_equal(fxl_cusum(&r, NULL, NULL, x, 5, &p), 0);
+    assert_int_equal(r.signal, 0);
+    assert_near(r.s_high, 10.0, 1e-12);
+    /* The signal keeps the value at the moment it fired, even when a later
+     * deviation brings the sum back down (12 - 9 - 1 = 2). */
+    assert_int_equal(fxl_cusum(&r, NULL, NULL, x, 7, &p), 0);
+    assert_int_equal(r.signal, 1);
+    assert_int_equal(r.signal_index, 5);
+    assert_near(r.signal_value, 12.0, 1e-12);
+    assert_near(r.s_high, 2.0, 1e-12);
+    assert_non_null(strstr(r.text, "12.00"));
+    assert_int_equal(fxl_cusum(&r, NULL, NULL, one, 1, &p), 0);
+    assert_int_equal(r.signal, 0);
 }
 
 static void test_rules_cusum_refuses_bad_input(void **state)
@@ -440,6 +469,7 @@ int main(void)
         cmocka_unit_test(test_rules_cusum_downward_and_reset),
         cmocka_unit_test(test_rules_cusum_noise_within_k_never_signals),
         cmocka_unit_test(test_rules_cusum_target_shifts_reference),
+        cmocka_unit_test(test_rules_cusum_defaults_slow_drift),
         cmocka_unit_test(test_rules_cusum_refuses_bad_input),
         cmocka_unit_test(test_rules_imr_domain_check_values),
     };
