@@ -319,7 +319,7 @@ static int check_beam(fxl_model_result *r, const fxl_beam_model *m)
 static int check_input(fxl_model_result *r, const fxl_beam_model *m, const fxl_model_input *in,
                        double *ssd)
 {
-    int ok = 1;
+    int ok = 1, ssd_ok = 1;
 
     if (!(in->mu > 0) || !isfinite(in->mu)) {
         fxl_reasons_add(&r->reasons, "MU '%g' must be > 0", in->mu);
@@ -330,7 +330,7 @@ static int check_input(fxl_model_result *r, const fxl_beam_model *m, const fxl_m
         if (!(in->iso_depth_cm > 0) || in->iso_depth_cm >= m->sad_cm) {
             fxl_reasons_add(&r->reasons, "isocentre depth '%g' cm must be > 0 and < the SAD %g cm",
                             in->iso_depth_cm, m->sad_cm);
-            ok = 0;
+            ok = ssd_ok = 0;
         } else {
             *ssd = m->sad_cm - in->iso_depth_cm;  /* skin on the axis above the isocentre */
         }
@@ -341,9 +341,9 @@ static int check_input(fxl_model_result *r, const fxl_beam_model *m, const fxl_m
         fxl_reasons_add(&r->reasons,
                         "SSD %g cm and isocentre depth %g cm do not add up to the SAD %g cm (within 0.5 cm)",
                         *ssd, in->iso_depth_cm, m->sad_cm);
-        ok = 0;
+        ok = ssd_ok = 0;
     }
-    if (ok && (!isfinite(*ssd) || *ssd < 50 || *ssd > 200)) {
+    if (ssd_ok && (!isfinite(*ssd) || *ssd < 50 || *ssd > 200)) {
         fxl_reasons_add(&r->reasons, "SSD '%g' cm must be 50 to 200 cm", *ssd);
         ok = 0;
     }
