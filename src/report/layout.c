@@ -1,0 +1,576 @@
+/* Page layout of the PDF reports: libharu document set-up with embedded
+ * TrueType fonts and UTF-8 text, running header and footer, text measuring,
+ * wrapping and cutting, boxes and lines, number formatting. */
+#include "report/layout.h"
+
+#include <math.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <unistd.h>
+
+#include "fxl/core.h"
+
+#define MARGIN_SIDE 36.0
+#define MARGIN_TOP 28.0
+#define MARGIN_BOTTOM 24.0
+#define HEADER_H 34.0        /* running header band, from the top margin */
+#define FOOTER_H 34.0        /* footer band, above the bottom margin */
+#define TEXT_GRAY 0.0
+#define SOFT_GRAY 0.35
+
+static void on_hpdf_error(HPDF_STATUS error_no, HPDF_STATUS detail_no, void *user)
+{
+    rpt_doc *d = user;
+
+    if (d && !d->hpdf_error) {
+        d->hpdf_error = error_no;
+        d->hpdf_detail = detail_no;
+    }
+}
+
+static int font_path(fxl_ctx *ctx, char *out, size_t n, const char *dir, const char *file)
+{
+    snprintf(out, n, "%s/%s", dir, file);
+    if (access(out, R_OK) != 0)
+        return fxl_fail(ctx, FXL_EIO,
+                        "font '%s' not found (install the Debian package fonts-dejavu-core)", out);
+    return 0;
+}
+
+int rpt_doc_init(rpt_doc *d, fxl_ctx *ctx, const char *font_dir, int landscape)
+{
+    char regular[1024], bold[1024];
+    const char *name;
+    int rc;
+
+    memset(d, 0, sizeof *d);
+    if (!font_dir || !*font_dir)
+        font_dir = FXL_FONT_DIR;
+    if ((rc = font_path(ctx, regular, sizeof regular, font_dir, "DejaVuSans.ttf")) != 0 ||
+        (rc = font_path(ctx, bold, sizeof bold, font_dir, "DejaVuSans-Bold.ttf")) != 0)
+        return rc;
+    d->pdf = HPDF_New(on_hpdf_error, d);
+    if (!d->pdf)
+        return fxl_fail(ctx, FXL_EIO, "out of memory creating the PDF document");
+    HPDF_SetCompressionMode(d->pdf, HPDF_COMP_ALL);
+    HPDF_UseUTFEncodings(d->pdf);
+    HPDF_SetCurrentEncoder(d->pdf, "UTF-8");
+    /* Embedded (HPDF_TRUE): the file prints the same anywhere. */
+    if ((name = HPDF_LoadTTFontFromFile(d->pdf, regular, HPDF_TRUE)) != NULL)
+        d->font = HPDF_GetFont(d->pdf, name, "UTF-8");
+    if ((name = HPDF_LoadTTFontFromFile(d->pdf, bold, HPDF_TRUE)) != NULL)
+        d->bold = HPDF_GetFont(d->pdf, name, "UTF-8");
+    if (!d->font || !d->bold || d->hpdf_error)
+        return fxl_fail(ctx, FXL_EIO, "cannot load the report fonts from '%s' (PDF library error 0x%04lX)",
+                        font_dir, d->hpdf_error);
+    d->page_w = landscape ? RPT_A4_LONG : RPT_A4_SHORT;
+    d->page_h = landscape ? RPT_A4_SHORT : RPT_A4_LONG;
+    d->left = MARGIN_SIDE;
+    d->right = d->page_w - MARGIN_SIDE;
+    d->top = d->page_h - MARGIN_TOP - HEADER_H;
+    d->bottom = MARGIN_BOTTOM + FOOTER_H;
+    return 0;
+}
+
+void rpt_doc_release(rpt_doc *d)
+{
+    if (d->pdf)
+        HPDF_Free(d->pdf);
+    free(d->pages);
+    memset(d, 0, sizeof *d);
+}
+
+static int parse_stored(const char *t, int v[6])
+{
+    return t && sscanf(t, "%4d-%2d-%2dT%2d:%2d:%2d", &v[0], &v[1], &v[2], &v[3], &v[4], &v[5]) == 6;
+}
+
+void rpt_doc_info(rpt_doc *d, const char *title, const char *generated_utc)
+{
+    HPDF_Date date;
+    int v[6];
+
+    HPDF_SetInfoAttr(d->pdf, HPDF_INFO_TITLE, title);
+    HPDF_SetInfoAttr(d->pdf, HPDF_INFO_CREATOR, "fxledger " FXL_VERSION);
+    HPDF_SetInfoAttr(d->pdf, HPDF_INFO_AUTHOR, d->department);
+    if (parse_stored(generated_utc, v)) {
+        memset(&date, 0, sizeof date);
+        date.year = v[0];
+        date.month = v[1];
+        date.day = v[2];
+        date.hour = v[3];
+        date.minutes = v[4];
+        date.seconds = v[5];
+        date.ind = 'Z';
+        HPDF_SetInfoDateAttr(d->pdf, HPDF_INFO_CREATION_DATE, date);
+    }
+}
+
+static void draw_footer(rpt_doc *d, int index)
+{
+    char buf[600];
+    double y = MARGIN_BOTTOM + FOOTER_H - 6;
+
+    d->page = d->pages[index];
+    rpt_line(d, d->left, y, d->right, y, 0.5, 0.55);
+    rpt_text(d, d->bold, 7, TEXT_GRAY, d->left, y - 9, RPT_CAVEAT_1);
+    rpt_text(d, d->font, 7, TEXT_GRAY, d->left, y - 18, RPT_CAVEAT_2);
+    rpt_fit(d, d->font, 7, d->department, (d->right - d->left) * 0.45, buf, sizeof buf);
+    rpt_text(d, d->font, 7, SOFT_GRAY, d->left, y - 27, buf);
+    snprintf(buf, sizeof buf, "Generated %s", d->generated);
+    rpt_text_center(d, d->font, 7, SOFT_GRAY, (d->left + d->right) / 2 + 40, y - 27, buf);
+    snprintf(buf, sizeof buf, "Page %d of %d", index + 1, d->npages);
+    rpt_text_right(d, d->bold, 8, TEXT_GRAY, d->right, y - 27, buf);
+}
+
+int rpt_doc_save(rpt_doc *d, fxl_ctx *ctx, const char *path)
+{
+    char tmp[4096];
+    int i;
+
+    for (i = 0; i < d->npages; i++)
+        draw_footer(d, i);
+    if (d->oom)
+        return fxl_fail(ctx, FXL_EIO, "out of memory while laying out the report");
+    if (d->hpdf_error)
+        return fxl_fail(ctx, FXL_EIO, "PDF library error 0x%04lX (detail %lu) while drawing the report",
+                        d->hpdf_error, d->hpdf_detail);
+    if (snprintf(tmp, sizeof tmp, "%s.part", path) >= (int)sizeof tmp)
+        return fxl_fail(ctx, FXL_EINVAL, "output path '%s' is too long", path);
+    if (HPDF_SaveToFile(d->pdf, tmp) != HPDF_OK || d->hpdf_error) {
+        unlink(tmp);
+        return fxl_fail(ctx, FXL_EIO, "cannot write report '%s' (check the directory exists and is writable)",
+                        path);
+    }
+    if (rename(tmp, path) != 0) {
+        unlink(tmp);
+        return fxl_fail(ctx, FXL_EIO, "cannot write report '%s'", path);
+    }
+    return 0;
+}
+
+void rpt_page_new(rpt_doc *d)
+{
+    double y = d->page_h - MARGIN_TOP;
+    char buf[600];
+
+    if (d->npages == d->cap) {
+        int cap = d->cap ? d->cap * 2 : 16;
+        HPDF_Page *p = realloc(d->pages, (size_t)cap * sizeof *p);
+        if (!p) {
+            d->oom = 1;
+            return;
+        }
+        d->pages = p;
+        d->cap = cap;
+    }
+    d->page = HPDF_AddPage(d->pdf);
+    HPDF_Page_SetSize(d->page, HPDF_PAGE_SIZE_A4,
+                      d->page_w > d->page_h ? HPDF_PAGE_LANDSCAPE : HPDF_PAGE_PORTRAIT);
+    d->pages[d->npages++] = d->page;
+
+    rpt_fit(d, d->bold, 10, d->department, (d->right - d->left) * 0.55, buf, sizeof buf);
+    rpt_text(d, d->bold, 10, TEXT_GRAY, d->left, y - 10, buf);
+    rpt_text_right(d, d->font, 9, SOFT_GRAY, d->right, y - 10, d->title);
+    rpt_fit(d, d->font, 8, d->subtitle, d->right - d->left, buf, sizeof buf);
+    rpt_text(d, d->font, 8, SOFT_GRAY, d->left, y - 22, buf);
+    rpt_line(d, d->left, y - 27, d->right, y - 27, 0.8, 0.2);
+    d->y = d->top;
+}
+
+int rpt_need(rpt_doc *d, double h)
+{
+    if (d->page && d->y - h >= d->bottom)
+        return 0;
+    rpt_page_new(d);
+    if (d->hook)
+        d->hook(d, d->hook_arg);
+    return 1;
+}
+
+/* ---- text ------------------------------------------------------------------ */
+
+/* Length of the valid UTF-8 sequence at s, 0 if invalid. */
+static int utf8_len(const unsigned char *s)
+{
+    int n, i;
+    unsigned cp;
+
+    if (s[0] < 0x80)
+        return 1;
+    if ((s[0] & 0xE0) == 0xC0) {
+        n = 2;
+        cp = s[0] & 0x1F;
+    } else if ((s[0] & 0xF0) == 0xE0) {
+        n = 3;
+        cp = s[0] & 0x0F;
+    } else if ((s[0] & 0xF8) == 0xF0) {
+        n = 4;
+        cp = s[0] & 0x07;
+    } else {
+        return 0;
+    }
+    for (i = 1; i < n; i++) {
+        if ((s[i] & 0xC0) != 0x80)
+            return 0;
+        cp = (cp << 6) | (s[i] & 0x3F);
+    }
+    /* Overlong forms, surrogates and values past U+10FFFF are invalid. */
+    if ((n == 2 && cp < 0x80) || (n == 3 && cp < 0x800) || (n == 4 && cp < 0x10000) ||
+        (cp >= 0xD800 && cp <= 0xDFFF) || cp > 0x10FFFF)
+        return 0;
+    return n;
+}
+
+/* Copies text with invalid bytes as '?' and control characters as spaces. */
+static void sanitize(char *out, size_t outsz, const char *text)
+{
+    const unsigned char *s = (const unsigned char *)(text ? text : "");
+    size_t o = 0;
+
+    while (*s && o + 5 < outsz) {
+        int n = utf8_len(s);
+        if (n == 0) {
+            out[o++] = '?';
+            s++;
+        } else if (n == 1) {
+            out[o++] = (*s < 0x20 || *s == 0x7F) ? ' ' : (char)*s;
+            s++;
+        } else {
+            memcpy(out + o, s, (size_t)n);
+            o += (size_t)n;
+            s += n;
+        }
+    }
+    out[o] = '\0';
+}
+
+static double width_raw(HPDF_Font f, double size, const char *text, size_t len)
+{
+    HPDF_TextWidth tw;
+
+    if (len == 0)
+        return 0;
+    tw = HPDF_Font_TextWidth(f, (const HPDF_BYTE *)text, (HPDF_UINT)len);
+    return tw.width * size / 1000.0;
+}
+
+double rpt_width(rpt_doc *d, HPDF_Font f, double size, const char *text)
+{
+    char buf[2048];
+
+    (void)d;
+    sanitize(buf, sizeof buf, text);
+    return width_raw(f, size, buf, strlen(buf));
+}
+
+void rpt_text_rgb(rpt_doc *d, HPDF_Font f, double size, double r, double g, double b,
+                  double x, double y, const char *text)
+{
+    char buf[2048];
+
+    if (!d->page || !text || !*text)
+        return;
+    sanitize(buf, sizeof buf, text);
+    HPDF_Page_SetRGBFill(d->page, (HPDF_REAL)r, (HPDF_REAL)g, (HPDF_REAL)b);
+    HPDF_Page_BeginText(d->page);
+    HPDF_Page_SetFontAndSize(d->page, f, (HPDF_REAL)size);
+    HPDF_Page_TextOut(d->page, (HPDF_REAL)x, (HPDF_REAL)y, buf);
+    HPDF_Page_EndText(d->page);
+    HPDF_Page_SetRGBFill(d->page, 0, 0, 0);
+}
+
+void rpt_text(rpt_doc *d, HPDF_Font f, double size, double gray, double x, double y,
+              const char *text)
+{
+    rpt_text_rgb(d, f, size, gray, gray, gray, x, y, text);
+}
+
+void rpt_text_right(rpt_doc *d, HPDF_Font f, double size, double gray, double x_right,
+                    double y, const char *text)
+{
+    rpt_text(d, f, size, gray, x_right - rpt_width(d, f, size, text), y, text);
+}
+
+void rpt_text_center(rpt_doc *d, HPDF_Font f, double size, double gray, double x_mid,
+                     double y, const char *text)
+{
+    rpt_text(d, f, size, gray, x_mid - rpt_width(d, f, size, text) / 2, y, text);
+}
+
+void rpt_fit(rpt_doc *d, HPDF_Font f, double size, const char *text, double width, char *out,
+             size_t outsz)
+{
+    char buf[2048];
+    double w = 0, mark;
+    size_t i = 0;
+
+    (void)d;
+    sanitize(buf, sizeof buf, text);
+    if (width_raw(f, size, buf, strlen(buf)) <= width) {
+        snprintf(out, outsz, "%s", buf);
+        return;
+    }
+    mark = width_raw(f, size, RPT_CUT_MARK, strlen(RPT_CUT_MARK));
+    while (buf[i]) {
+        int n = utf8_len((const unsigned char *)buf + i);
+        double cw = width_raw(f, size, buf + i, (size_t)n);
+        if (w + cw + mark > width || i + (size_t)n + sizeof RPT_CUT_MARK > outsz)
+            break;
+        w += cw;
+        i += (size_t)n;
+    }
+    while (i > 0 && buf[i - 1] == ' ')
+        i--;
+    memcpy(out, buf, i);
+    memcpy(out + i, RPT_CUT_MARK, sizeof RPT_CUT_MARK);
+}
+
+const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text, double width,
+                          char *out, size_t outsz)
+{
+    const char *p = text, *q, *brk = NULL, *brk_next = NULL, *end, *rest;
+    double w = 0;
+    size_t len;
+
+    (void)d;
+    if (!p)
+        return NULL;
+    while (*p == ' ')
+        p++;
+    if (!*p)
+        return NULL;
+    q = p;
+    while (*q && *q != '\n') {
+        int n = utf8_len((const unsigned char *)q);
+        double cw;
+        if (n == 0)
+            n = 1;  /* drawn as '?' by sanitize; about as wide as a letter */
+        cw = width_raw(f, size, n == 1 && (unsigned char)*q >= 0x80 ? "?" : q, (size_t)n);
+        if (w + cw > width && q > p) {
+            if (brk) {
+                end = brk;
+                rest = brk_next;
+            } else {
+                end = q;
+                rest = q;
+            }
+            goto done;
+        }
+        w += cw;
+        if (*q == ' ') {
+            brk = q;
+            brk_next = q + 1;
+        } else if (*q == '-' || *q == '/') {
+            brk = q + 1;
+            brk_next = q + 1;
+        }
+        q += n;
+    }
+    end = q;
+    rest = *q == '\n' ? q + 1 : q;
+done:
+    while (end > p && end[-1] == ' ')
+        end--;
+    len = (size_t)(end - p);
+    if (len >= outsz)
+        len = outsz - 1;
+    /* Never end the copy inside a multi-byte character. */
+    while (len > 0 && ((unsigned char)p[len] & 0xC0) == 0x80)
+        len--;
+    memcpy(out, p, len);
+    out[len] = '\0';
+    return rest;
+}
+
+void rpt_wrap(rpt_doc *d, HPDF_Font f, double size, const char *text, double width,
+              int max_lines, rpt_lines *out)
+{
+    const char *rest = text;
+    char line[RPT_LINE_LEN];
+
+    if (max_lines > RPT_LINES_MAX)
+        max_lines = RPT_LINES_MAX;
+    out->n = 0;
+    while (out->n < max_lines &&
+           (rest = rpt_next_line(d, f, size, rest, width, line, sizeof line)) != NULL)
+        snprintf(out->line[out->n++], RPT_LINE_LEN, "%s", line);
+    if (rest && out->n > 0) {
+        /* Something is left: cut the last line with the mark. */
+        const char *r = rest;
+        while (*r == ' ' || *r == '\n')
+            r++;
+        if (*r) {
+            char joined[2 * RPT_LINE_LEN];
+            snprintf(joined, sizeof joined, "%s %s", out->line[out->n - 1], r);
+            rpt_fit(d, f, size, joined, width, out->line[out->n - 1], RPT_LINE_LEN);
+            if (strstr(out->line[out->n - 1], RPT_CUT_MARK) == NULL) {
+                /* the joined text fitted after all (cannot happen with a
+                 * greedy wrap), mark the cut anyway */
+                rpt_fit(d, f, size, out->line[out->n - 1], width - 1, out->line[out->n - 1],
+                        RPT_LINE_LEN);
+            }
+        }
+    }
+}
+
+void rpt_paragraph(rpt_doc *d, HPDF_Font f, double size, double x, double width,
+                   const char *text)
+{
+    const char *rest = text;
+    char line[RPT_LINE_LEN];
+    double lead = size * 1.35;
+
+    while ((rest = rpt_next_line(d, f, size, rest, width, line, sizeof line)) != NULL) {
+        rpt_need(d, lead);
+        rpt_text(d, f, size, TEXT_GRAY, x, d->y - size, line);
+        d->y -= lead;
+    }
+}
+
+/* ---- blocks ------------------------------------------------------------------- */
+
+void rpt_heading(rpt_doc *d, const char *text, double keep)
+{
+    double h = 24;
+
+    if (d->page && d->y < d->top - 1)
+        d->y -= 8;
+    rpt_need(d, h + keep);
+    rpt_text(d, d->bold, 11.5, TEXT_GRAY, d->left, d->y - 13, text);
+    rpt_line(d, d->left, d->y - 17.5, d->right, d->y - 17.5, 0.6, 0.45);
+    d->y -= h;
+}
+
+void rpt_keyval(rpt_doc *d, double x, double key_w, double val_w, const char *key,
+                const char *value)
+{
+    rpt_lines lines;
+    int i;
+
+    rpt_wrap(d, d->font, 9, value && *value ? value : "\xE2\x80\x93", val_w, 3, &lines);
+    rpt_need(d, 12.5 * lines.n);
+    rpt_text(d, d->font, 8.5, SOFT_GRAY, x, d->y - 9, key);
+    for (i = 0; i < lines.n; i++)
+        rpt_text(d, d->font, 9, TEXT_GRAY, x + key_w, d->y - 9 - 12 * i, lines.line[i]);
+    d->y -= 12.5 * (lines.n > 0 ? lines.n : 1);
+}
+
+void rpt_notice(rpt_doc *d, const char *headline, const char *text)
+{
+    double w = d->right - d->left, pad = 12, top;
+    rpt_lines lines;
+    int i;
+
+    rpt_wrap(d, d->font, 10, text, w - 2 * pad, RPT_LINES_MAX, &lines);
+    rpt_need(d, 40 + 13.5 * lines.n);
+    top = d->y - 6;
+    rpt_fill_rect(d, d->left, top - (30 + 13.5 * lines.n), w, 30 + 13.5 * lines.n, 0.96, 0.96, 0.93);
+    rpt_stroke_rect(d, d->left, top - (30 + 13.5 * lines.n), w, 30 + 13.5 * lines.n, 1.0, 0.3);
+    rpt_text(d, d->bold, 13, TEXT_GRAY, d->left + pad, top - 19, headline);
+    for (i = 0; i < lines.n; i++)
+        rpt_text(d, d->font, 10, TEXT_GRAY, d->left + pad, top - 35 - 13.5 * i, lines.line[i]);
+    d->y = top - (30 + 13.5 * lines.n) - 8;
+}
+
+/* ---- drawing ------------------------------------------------------------------ */
+
+void rpt_fill_rect(rpt_doc *d, double x, double y, double w, double h, double r, double g,
+                   double b)
+{
+    if (!d->page)
+        return;
+    HPDF_Page_SetRGBFill(d->page, (HPDF_REAL)r, (HPDF_REAL)g, (HPDF_REAL)b);
+    HPDF_Page_Rectangle(d->page, (HPDF_REAL)x, (HPDF_REAL)y, (HPDF_REAL)w, (HPDF_REAL)h);
+    HPDF_Page_Fill(d->page);
+    HPDF_Page_SetRGBFill(d->page, 0, 0, 0);
+}
+
+void rpt_stroke_rect(rpt_doc *d, double x, double y, double w, double h, double width,
+                     double gray)
+{
+    if (!d->page)
+        return;
+    HPDF_Page_SetLineWidth(d->page, (HPDF_REAL)width);
+    HPDF_Page_SetGrayStroke(d->page, (HPDF_REAL)gray);
+    HPDF_Page_Rectangle(d->page, (HPDF_REAL)x, (HPDF_REAL)y, (HPDF_REAL)w, (HPDF_REAL)h);
+    HPDF_Page_Stroke(d->page);
+}
+
+void rpt_dash_line(rpt_doc *d, double x1, double y1, double x2, double y2, double width,
+                   double r, double g, double b, double on, double off)
+{
+    HPDF_UINT16 dash[2];
+
+    if (!d->page)
+        return;
+    HPDF_Page_SetLineWidth(d->page, (HPDF_REAL)width);
+    HPDF_Page_SetRGBStroke(d->page, (HPDF_REAL)r, (HPDF_REAL)g, (HPDF_REAL)b);
+    if (on > 0) {
+        dash[0] = (HPDF_UINT16)on;
+        dash[1] = (HPDF_UINT16)off;
+        HPDF_Page_SetDash(d->page, dash, 2, 0);
+    }
+    HPDF_Page_MoveTo(d->page, (HPDF_REAL)x1, (HPDF_REAL)y1);
+    HPDF_Page_LineTo(d->page, (HPDF_REAL)x2, (HPDF_REAL)y2);
+    HPDF_Page_Stroke(d->page);
+    if (on > 0)
+        HPDF_Page_SetDash(d->page, NULL, 0, 0);
+    HPDF_Page_SetRGBStroke(d->page, 0, 0, 0);
+}
+
+void rpt_line(rpt_doc *d, double x1, double y1, double x2, double y2, double width, double gray)
+{
+    rpt_dash_line(d, x1, y1, x2, y2, width, gray, gray, gray, 0, 0);
+}
+
+/* ---- formatting ------------------------------------------------------------------ */
+
+#define DASH "\xE2\x80\x93"  /* U+2013, shown where a value is missing */
+
+void rpt_fmt_pct(char *out, size_t n, double v, int decimals, int sign)
+{
+    if (!isfinite(v))
+        snprintf(out, n, DASH);
+    else if (sign)
+        snprintf(out, n, "%+.*f %%", decimals, fabs(v) < 0.5 * pow(10, -decimals) ? 0.0 : v);
+    else
+        snprintf(out, n, "%.*f %%", decimals, v);
+}
+
+void rpt_fmt_cgy(char *out, size_t n, double v)
+{
+    if (!isfinite(v))
+        snprintf(out, n, DASH);
+    else
+        snprintf(out, n, "%.1f cGy", v);
+}
+
+void rpt_fmt_reading(char *out, size_t n, double v, const char *unit)
+{
+    double a = fabs(v);
+    int dec = a >= 1000 ? 0 : a >= 100 ? 1 : a >= 10 ? 2 : 3;
+
+    if (!isfinite(v))
+        snprintf(out, n, DASH);
+    else
+        snprintf(out, n, "%.*f %s", dec, v, unit && *unit ? unit : "");
+}
+
+const char *rpt_verdict_label(const char *verdict)
+{
+    fxl_verdict v;
+
+    if (verdict && fxl_verdict_parse(&v, verdict) == 0)
+        return fxl_verdict_label(v);
+    return verdict ? verdict : "";
+}
+
+void rpt_fmt_name(char *out, size_t n, const char *family, const char *given)
+{
+    if (given && *given)
+        snprintf(out, n, "%s, %s", family ? family : "", given);
+    else
+        snprintf(out, n, "%s", family ? family : "");
+}
