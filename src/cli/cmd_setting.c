@@ -49,7 +49,7 @@ static int setting_set(cli_env *env, int argc, char **argv)
     cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
     const fxl_setting_def *d;
     const char *pos[2];
-    char about[2048];
+    char about[4096];
     size_t off;
     int npos, rc;
 

@@ -7,10 +7,16 @@
 #include <string.h>
 #include <sys/stat.h>
 
+#include "fxl/review.h"
+#include "fxl/rules.h"
 #include "fxl/settings.h"
 #include "store/stmt.h"
 
-typedef enum { KIND_TEXT, KIND_NUMBER, KIND_INT, KIND_TIMEZONE } value_kind;
+typedef enum { KIND_TEXT, KIND_NUMBER, KIND_INT, KIND_TIMEZONE, KIND_DISPOSITIONS } value_kind;
+
+/* Fallbacks shown by 'setting list' come from the readers' own defaults. */
+#define STR_(x) #x
+#define STR(x) STR_(x)
 
 typedef struct setting_rule {
     fxl_setting_def def;
@@ -19,8 +25,9 @@ typedef struct setting_rule {
 } setting_rule;
 
 /* Ranges: skin temperature from DOMAIN.md (skin 28 to 34 degC) widened to what
- * the measurements table accepts; the rest are local policy choices
- * documented in docs/equipment.md. */
+ * the measurements table accepts; the rules-over-history keys use the ranges
+ * their reader checks (src/store/rules_hook.c, docs/rules.md); the rest are
+ * local policy choices documented in docs/equipment.md. Sorted by key. */
 static const setting_rule rules[] = {
     {{"alert_command", "command run on an outside-action result (empty: none)",
       "0 to 1000 characters", ""}, KIND_TEXT, 0, 1000},
@@ -30,14 +37,25 @@ static const setting_rule rules[] = {
       "0 to 365 days", "14"}, KIND_INT, 0, 365},
     {{"calibration_interval_days", "validity of a new calibration when none is given",
       "1 to 3650 days", "90"}, KIND_INT, 1, 3650},
+    {{"cusum_h_pct", "CUSUM decision interval for detector and course drift",
+      "0.1 to 100 %", STR(FXL_CUSUM_H_PCT_DEFAULT)}, KIND_NUMBER, 0.1, 100},
+    {{"cusum_k_pct", "CUSUM allowance (slack) for detector and course drift",
+      "0 to 20 %", STR(FXL_CUSUM_K_PCT_DEFAULT)}, KIND_NUMBER, 0, 20},
+    {{"cusum_target_pct", "CUSUM target mean deviation", "-20 to 20 %",
+      STR(FXL_CUSUM_TARGET_PCT_DEFAULT)}, KIND_NUMBER, -20, 20},
     {{"department", "department name printed on reports", "1 to 200 characters", NULL},
      KIND_TEXT, 1, 200},
+    {{"dispositions", "comma-separated dispositions offered when closing a review item",
+      "a comma-separated list of at most " STR(FXL_DISPOSITIONS_MAX) " entries of at most "
+      STR(FXL_DISPOSITION_MAX) " characters", FXL_DISPOSITIONS_DEFAULT}, KIND_DISPOSITIONS, 0, 4000},
     {{"implausible_pct", "|deviation| above this is flagged as a probable entry error",
       "5 to 100 %", "50"}, KIND_NUMBER, 5, 100},
     {{"skin_temp_c", "skin temperature used when none is entered", "10 to 45 degC", "32"},
      KIND_NUMBER, 10, 45},
     {{"timezone", "department time zone for monthly reports", "UTC or an IANA zone name such as Europe/Paris",
       "UTC"}, KIND_TIMEZONE, 1, 64},
+    {{"weekly_interval_days", "days between measurements for a field measured weekly",
+      "1 to 60 days", STR(FXL_WEEKLY_INTERVAL_DAYS_DEFAULT)}, KIND_INT, 1, 60},
 };
 #define N_RULES (sizeof rules / sizeof rules[0])
 
@@ -111,6 +129,12 @@ int fxl_setting_validate(fxl_ctx *ctx, const char *key, const char *value)
         if (len < r->lo || len > r->hi)
             return fxl_fail(ctx, FXL_EINVAL, "setting '%s' must be %s", key, r->def.accepts);
         break;
+    case KIND_DISPOSITIONS: {
+        fxl_disposition_list list;
+        if (len > r->hi || fxl_disposition_list_parse(&list, value) != 0)
+            return fxl_fail(ctx, FXL_EINVAL, "setting '%s' must be %s", key, r->def.accepts);
+        break;
+    }
     case KIND_TIMEZONE:
         if (!timezone_valid(value))
             return fxl_fail(ctx, FXL_EINVAL, "timezone '%s' is not known: must be %s", value,

@@ -219,6 +219,12 @@ static void test_store_admin_setting_ranges(void **state)
     assert_int_equal(fxl_setting_validate(f->ctx, "alert_command", ""), 0);
     assert_int_equal(fxl_setting_validate(f->ctx, "timezone", "UTC"), 0);
     assert_int_equal(fxl_setting_validate(f->ctx, "timezone", "../etc/passwd"), FXL_EINVAL);
+    /* keys read by the rules over history and the review queue */
+    assert_int_equal(fxl_setting_validate(f->ctx, "weekly_interval_days", "7"), 0);
+    assert_int_equal(fxl_setting_validate(f->ctx, "weekly_interval_days", "61"), FXL_EINVAL);
+    assert_int_equal(fxl_setting_validate(f->ctx, "cusum_h_pct", "0.05"), FXL_EINVAL);
+    assert_int_equal(fxl_setting_validate(f->ctx, "cusum_target_pct", "-20"), 0);
+    assert_int_equal(fxl_setting_validate(f->ctx, "dispositions", "set-up error, other"), 0);
     assert_int_equal(fxl_setting_validate(f->ctx, "colour", "blue"), FXL_EINVAL);
     assert_msg(f->ctx, "unknown setting 'colour'");
 
