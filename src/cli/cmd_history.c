@@ -128,7 +128,7 @@ int cmd_history(cli_env *env, int argc, char **argv)
         free(rows);
         return CLI_EXIT_OK;
     }
-    printf("%-6s %-16s %-12s %-4s %-10s %-8s %-10s %-13s %-11s %-11s %-9s %-20s %s\n", "id",
+    printf("%-6s %-16s %-12s %-4s %-10s %-9s %-10s %-13s %-11s %-11s %-9s %-20s %s\n", "id",
            "treated (UTC)", "plan", "fx", "field", "point", "detector", "reading", "corrected",
            "expected", "deviation", "verdict", "note");
     for (i = 0; i < n; i++) {
@@ -148,7 +148,7 @@ int cmd_history(cli_env *env, int argc, char **argv)
             snprintf(note + used, sizeof note - used, "%samends #%lld: %.40s", used ? "; " : "",
                      (long long)r->supersedes_id, r->amend_reason);
         }
-        printf("%-6s %-16s %-12s %-4d %-10s %-8s %-10s %-13s %-11s %-11s %-9s %-20s %s\n", id, when,
+        printf("%-6s %-16s %-12s %-4d %-10s %-9s %-10s %-13s %-11s %-11s %-9s %-20s %s\n", id, when,
                r->plan, r->fraction_number, r->field, r->point, r->detector, reading, dose, expected, dev,
                fxl_verdict_label(r->verdict), note);
     }

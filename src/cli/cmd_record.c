@@ -293,6 +293,10 @@ static int ask(const cli_env *env, char *buf, size_t size, const char *fmt, ...)
         fputc('\n', out);
         return -1;
     }
+    /* Piped answers are not echoed by a terminal: show them, so that the
+     * transcript reads like the session. */
+    if (!env->interactive)
+        fprintf(out, "%s\n", buf);
     return 0;
 }
 

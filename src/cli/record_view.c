@@ -73,7 +73,7 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r)
     printf("%sFraction %d of %d%s - patient %s (%s), plan '%s' (%s, %s), treated %s\n\n",
            cli_color(env, CLI_BOLD), r->fraction_number, r->plan_fractions, cli_color(env, CLI_RESET),
            r->mrn, r->patient_name, r->plan, r->site, r->technique, t);
-    printf("%-6s %-12s %-8s %-12s %-14s %-12s %-12s %-10s %s\n", "id", "field", "point", "detector",
+    printf("%-6s %-12s %-9s %-12s %-14s %-12s %-12s %-10s %s\n", "id", "field", "point", "detector",
            "reading", "corrected", "expected", "deviation", "verdict");
     for (i = 0; i < r->n; i++) {
         const fxl_measurement_result *m = &r->items[i];
@@ -83,7 +83,7 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r)
         num(dose, sizeof dose, m->corrected_dose_cgy, "%.1f", "cGy");
         num(expected, sizeof expected, m->expected_dose_cgy, "%.1f", "cGy");
         num(dev, sizeof dev, m->deviation_pct, "%+.2f", "%");
-        printf("%-6s %-12s %-8s %-12s %-14s %-12s %-12s %-10s %s%s%s%s\n", id, m->field, m->point,
+        printf("%-6s %-12s %-9s %-12s %-14s %-12s %-12s %-10s %s%s%s%s\n", id, m->field, m->point,
                m->detector, reading, dose, expected, dev, cli_color(env, verdict_color(m->verdict)),
                fxl_verdict_label(m->verdict), m->escalated ? " (escalated)" : "",
                cli_color(env, CLI_RESET));

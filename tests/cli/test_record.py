@@ -1,0 +1,326 @@
+"""fxledger record and history: every verdict on an invented department, the
+factors against the reading to dose formula (record_fixture.py, AAPM TG-62),
+the boundary exactly at a level, inputs that make a result not evaluable, the
+escalation rule, the readings file, JSON output and the alert hook."""
+import json
+import os
+import sqlite3
+import time
+
+from fxlcli import main
+from record_fixture import (MRN, PLAN, READINGS, SKIN_DEFAULT_C, RecordTestCase, deviation,
+                            dose, equiv_square)
+
+
+class RecordVerdictTest(RecordTestCase):
+    def test_within_tolerance_factors_and_snapshot(self):
+        out = self.record_json("--field", "AP", "--detector", "D-1001", "--reading", "20.0")
+        self.assertEqual(out["fraction"], 1)
+        self.assertEqual(out["plan"]["label"], PLAN)
+        r = out["results"][0]
+        fs = equiv_square(10, 20)  # 13.333 cm, Sterling rule
+        self.assertAlmostEqual(r["parameters"]["field_size_cm"], 13.333333333, places=8)
+        want = dose(20.0, fs, 100, temp=SKIN_DEFAULT_C)  # formula, record_fixture.py
+        self.assertAlmostEqual(r["corrected_dose_cgy"], want, places=9)
+        self.assertEqual(r["deviation_pct"], deviation(want, 200.0))
+        self.assertEqual(r["verdict"], "within_tolerance")
+        self.assertFalse(r["temp_entered"])
+        self.assertEqual(r["temp_c"], SKIN_DEFAULT_C)
+        self.assertEqual(r["calibration"]["factor_n_cgy_per_unit"], 10.0)
+        self.assertEqual(r["levels"]["tolerance_pct"], 5)
+        self.assertEqual(r["levels"]["action_pct"], 8)
+        self.assertIsNone(r["review_item_id"])
+        # The stored row carries the same snapshot.
+        con = sqlite3.connect(self.fx.db)
+        row = con.execute("SELECT factor_n, cf_field_size, cf_ssd, cf_temp, corrected_dose_cgy, "
+                          "expected_dose_cgy, threshold_set_id, tolerance_pct, action_pct, verdict, "
+                          "temp_entered FROM measurements").fetchone()
+        con.close()
+        self.assertEqual(row[0], 10.0)
+        self.assertAlmostEqual(row[1], r["factors"]["field_size"], places=12)
+        self.assertAlmostEqual(row[4], want, places=9)
+        self.assertEqual(row[5], 200.0)
+        self.assertIsNotNone(row[6])
+        self.assertEqual(row[7:11], (5.0, 8.0, "within_tolerance", 0))
+        self.fx.ok("verify")
+
+    def test_every_factor_of_a_wedged_oblique_field(self):
+        # LAT entrance: 10 x 10 cm, SSD 90, wedge 30, incidence 30 deg, 28 degC.
+        out = self.record_json("--field", "LAT:entrance", "--detector", "D-1001", "--reading", "15.3",
+                               "--temp", "28")
+        r = out["results"][0]
+        want = dose(15.3, 10, 90, wedge=30, angle=30, temp=28)  # formula, record_fixture.py
+        self.assertAlmostEqual(r["corrected_dose_cgy"], want, places=9)
+        self.assertAlmostEqual(r["factors"]["ssd"], (0.985 + 1.000) / 2, places=12)  # midpoint 80..100
+        self.assertEqual(r["factors"]["wedge"], 1.013)
+        self.assertEqual(r["factors"]["angle"], 0.995)
+        self.assertTrue(r["temp_entered"])
+        self.assertEqual(r["deviation_pct"], deviation(want, 150.0))
+
+    def test_outside_tolerance_text_and_exit_code(self):
+        # REF is at every reference condition: D = M x 10 cGy/nC at T_cal.
+        want = dose(21.2, 10, 100, temp=20)
+        self.assertGreater(deviation(want, 200), 5)
+        self.assertLess(deviation(want, 200), 8)
+        r = self.record("--field", "REF", "--detector", "D-1001", "--reading", "21.2", "--temp", "20")
+        self.assertEqual(r.returncode, 11, r.stderr)
+        self.assertIn("outside tolerance", r.stdout)
+        self.assertIn("Check detector placement", r.stdout)  # fxl_verdict_guidance
+        self.assertIn("%.1f cGy" % want, r.stdout)
+        self.assertIn("21.200 nC", r.stdout)
+        self.assertIn("qualified", r.stdout)  # the caveat
+        con = sqlite3.connect(self.fx.db)
+        items = con.execute("SELECT severity, status FROM review_items WHERE rule = 'result'").fetchall()
+        events = con.execute("SELECT count(*) FROM review_events WHERE kind = 'open'").fetchone()[0]
+        con.close()
+        self.assertEqual(items, [(2, "open")])
+        self.assertGreaterEqual(events, 1)
+
+    def test_outside_action(self):
+        want = dose(22.0, 10, 100, temp=20)
+        self.assertGreater(deviation(want, 200), 8)
+        out = self.record_json("--field", "REF", "--detector", "D-1001", "--reading", "22.0",
+                               "--temp", "20", expect_code=12)
+        self.assertEqual(out["results"][0]["verdict"], "outside_action")
+        self.assertEqual(out["worst_verdict"], "outside_action")
+        self.assertIn("physicist", out["results"][0]["guidance"])
+
+    def test_boundary_exactly_at_the_tolerance_level_is_inside(self):
+        # 21.0 nC x 10 cGy/nC = 210 cGy: exactly +5.00 % (arithmetic), and the
+        # tolerance level is 5 %: a deviation at a level counts as inside it.
+        out = self.record_json("--field", "REF", "--detector", "D-1001", "--reading", "21.0",
+                               "--temp", "20")
+        self.assertEqual(out["results"][0]["deviation_pct"], 5.0)
+        self.assertEqual(out["results"][0]["verdict"], "within_tolerance")
+
+    def test_boundary_exactly_at_the_action_level(self):
+        # 21.6 nC: 216 cGy, +8.00 % exactly at the action level (arithmetic):
+        # outside tolerance, not outside action.
+        out = self.record_json("--field", "REF", "--detector", "D-1001", "--reading", "21.6",
+                               "--temp", "20", expect_code=11)
+        self.assertEqual(out["results"][0]["deviation_pct"], 8.0)
+        self.assertEqual(out["results"][0]["verdict"], "outside_tolerance")
+
+    def test_just_above_the_tolerance_level(self):
+        # 21.002 nC: 210.02 cGy, +5.01 % (arithmetic): outside tolerance.
+        out = self.record_json("--field", "REF", "--detector", "D-1001", "--reading", "21.002",
+                               "--temp", "20", expect_code=11)
+        self.assertEqual(out["results"][0]["deviation_pct"], 5.01)
+        self.assertEqual(out["results"][0]["verdict"], "outside_tolerance")
+
+    def test_implausible_reading(self):
+        # Ten times the expected reading: a unit slip, never a dose result.
+        out = self.record_json("--field", "REF", "--detector", "D-1001", "--reading", "200",
+                               "--temp", "20", expect_code=10)
+        r = out["results"][0]
+        self.assertEqual(r["verdict"], "implausible")
+        self.assertIn("entry", " ".join(r["reasons"]))
+        con = sqlite3.connect(self.fx.db)
+        self.assertEqual(con.execute("SELECT severity FROM review_items WHERE rule = 'result'").fetchone()[0], 3)
+        con.close()
+
+    def test_several_fields_worst_result_wins(self):
+        r = self.record("--detector", "D-1001", "--temp", "20",
+                        "--field", "REF", "--reading", "20.0",
+                        "--field", "AP", "--reading", "22.5")
+        self.assertEqual(r.returncode, 12, r.stderr)
+        self.assertIn("within tolerance", r.stdout)
+        self.assertIn("outside action level", r.stdout)
+        hist = self.fx.json("history", "--patient", MRN)
+        self.assertEqual([h["field"] for h in hist], ["REF", "AP"])
+        self.assertTrue(all(h["temp_c"] == 20 and h["detector"] == "D-1001" for h in hist))
+
+    def test_background_is_subtracted(self):
+        out = self.record_json("--field", "REF", "--detector", "D-1001", "--reading", "20.1",
+                               "--background", "0.1", "--temp", "20")
+        # (M - M_0) x N at the reference: (20.1 - 0.1) x 10 = 200 cGy (formula).
+        self.assertAlmostEqual(out["results"][0]["corrected_dose_cgy"],
+                               dose(20.1, 10, 100, temp=20, background=0.1), places=9)
+        self.assertEqual(out["results"][0]["verdict"], "within_tolerance")
+
+
+class RecordNotEvaluableTest(RecordTestCase):
+    def assertNotEvaluable(self, out, needle):
+        r = out["results"][0]
+        self.assertEqual(r["verdict"], "not_evaluable")
+        self.assertIsNone(r["corrected_dose_cgy"])
+        self.assertIsNone(r["deviation_pct"])
+        self.assertTrue(any(needle in x for x in r["reasons"]), r["reasons"])
+        self.assertEqual(out["worst_verdict"], "not_evaluable")
+
+    def test_no_levels_is_never_a_pass(self):
+        self.fx.ok("levels", "set", "general", "--deactivate", "--effective", "2026-11-01")
+        out = self.record_json("--field", "REF", "--detector", "D-1001", "--reading", "20.0",
+                               "--temp", "20", expect_code=10)
+        r = out["results"][0]
+        self.assertEqual(r["verdict"], "not_evaluable")
+        self.assertIsNone(r["levels"])
+        self.assertTrue(any("levels" in x for x in r["reasons"]), r["reasons"])
+        text = self.record("--field", "AP", "--detector", "D-1001", "--reading", "20.0")
+        self.assertEqual(text.returncode, 10)
+        self.assertNotIn("within tolerance", text.stdout)
+        self.assertIn("not evaluable", text.stdout)
+
+    def test_retired_detector(self):
+        self.fx.ok("detector", "retire", "D-2002", "--reason", "worn out", "--at", "2026-11-01",
+                   user="phil")
+        out = self.record_json("--field", "REF", "--detector", "D-2002", "--reading", "20.0",
+                               expect_code=10)
+        self.assertNotEvaluable(out, "retired")
+        # Before its retirement the same detector was fine.
+        out = self.record_json("--field", "REF", "--detector", "D-2002", "--reading", "20.0",
+                               "--temp", "20", "--at", "2026-10-30T09:00", "--fraction", "2")
+        self.assertEqual(out["results"][0]["verdict"], "within_tolerance")
+
+    def test_expired_calibration(self):
+        out = self.record_json("--field", "REF", "--detector", "D-3003", "--reading", "20.0",
+                               expect_code=10)
+        self.assertNotEvaluable(out, "calibration expired on 2026-08-31")
+
+    def test_no_calibration_for_exit(self):
+        out = self.record_json("--field", "LAT:exit", "--detector", "D-1001", "--reading", "6.0",
+                               expect_code=10)
+        self.assertNotEvaluable(out, "no calibration")
+
+    def test_parameter_outside_table(self):
+        out = self.record_json("--field", "OBL", "--detector", "D-1001", "--reading", "18.0",
+                               expect_code=10)
+        self.assertNotEvaluable(out, "SSD 130.0 cm is outside the commissioned table 80.0-120.0 cm")
+
+    def test_no_table_and_not_at_reference(self):
+        # D-2002 has no correction tables: AP's 13.3 cm field differs from the
+        # 10 cm reference, so no factor can be given.
+        out = self.record_json("--field", "AP", "--detector", "D-2002", "--reading", "20.0",
+                               expect_code=10)
+        self.assertNotEvaluable(out, "field size")
+
+
+class RecordHistoryRuleTest(RecordTestCase):
+    def test_two_consecutive_outside_same_sign_escalate(self):
+        self.assertEqual(self.record("--field", "REF", "--detector", "D-1001", "--reading", "21.2",
+                                     "--temp", "20", now="2026-11-02T09:00:00Z").returncode, 11)
+        r = self.record("--field", "REF", "--detector", "D-1001", "--reading", "21.3", "--temp", "20",
+                        now="2026-11-03T09:00:00Z")
+        self.assertEqual(r.returncode, 12, r.stdout + r.stderr)
+        self.assertIn("escalated", r.stdout)
+        self.assertIn("two consecutive measured fractions", r.stdout)
+        hist = self.fx.json("history", "--patient", MRN, "--field", "REF")
+        self.assertEqual([h["verdict"] for h in hist], ["outside_tolerance", "outside_action"])
+        self.assertEqual([h["deviation_pct"] for h in hist], [6.0, 6.5])  # 213 cGy vs 200, arithmetic
+
+    def test_opposite_signs_do_not_escalate(self):
+        self.record("--field", "REF", "--detector", "D-1001", "--reading", "21.2", "--temp", "20")
+        r = self.record("--field", "REF", "--detector", "D-1001", "--reading", "18.8", "--temp", "20",
+                        now="2026-11-03T09:00:00Z")
+        self.assertEqual(r.returncode, 11, r.stdout)
+        self.assertNotIn("escalated", r.stdout)
+
+
+class RecordFileTest(RecordTestCase):
+    def test_readings_file_example(self):
+        out = self.fx.json("record", "--file", os.path.join(READINGS, "fraction_two_fields.json"),
+                           user="tina")
+        self.assertEqual(out["fraction"], 2)
+        self.assertEqual(out["treated_at"], "2026-11-02T08:30:00Z")
+        self.assertEqual([r["field"] for r in out["results"]], ["REF", "LAT"])
+        lat = out["results"][1]
+        self.assertEqual(lat["point"], "entrance")
+        want = dose(15.5, 10, 90, wedge=30, angle=30, temp=30.5)  # formula, record_fixture.py
+        self.assertAlmostEqual(lat["corrected_dose_cgy"], want, places=9)
+        self.assertEqual(out["results"][0]["background"], 0.02)
+
+    def test_readings_file_on_stdin_and_patient_must_agree(self):
+        with open(os.path.join(READINGS, "fraction_two_fields.json"), encoding="utf-8") as f:
+            text = f.read()
+        self.assertFailsUnchanged("record", "--patient", "TEST-0999", "--file", "-", stdin=text,
+                                  user="tina", expect_code=2, expect_in="differs")
+        self.fx.ok("record", "--file", "-", stdin=text, user="tina")
+
+
+class HistoryTest(RecordTestCase):
+    def test_history_lists_and_marks_superseded(self):
+        self.record("--field", "REF", "--detector", "D-1001", "--reading", "2.0", "--temp", "20")
+        # A superseding row as 'fxledger amend' writes it (append-only: INSERT).
+        con = sqlite3.connect(self.fx.db)
+        con.execute("INSERT INTO measurements (fraction_id, field_id, detector_id, reading, reading_unit, "
+                    "temp_c, temp_entered, verdict, supersedes_id, amend_reason, user_id, created_at) "
+                    "SELECT fraction_id, field_id, detector_id, 20.0, reading_unit, temp_c, temp_entered, "
+                    "'within_tolerance', id, 'decimal point', user_id, created_at FROM measurements")
+        con.commit()
+        con.close()
+        hist = self.fx.json("history", "--patient", MRN)
+        self.assertEqual(len(hist), 2)
+        self.assertEqual(hist[0]["superseded_by"], hist[1]["measurement_id"])
+        self.assertFalse(hist[0]["current"])
+        self.assertEqual(hist[1]["supersedes_id"], hist[0]["measurement_id"])
+        text = self.fx.ok("history", "--patient", MRN, "--plan", PLAN).stdout
+        self.assertIn("superseded by #%d" % hist[1]["measurement_id"], text)
+        self.assertIn("amends #%d" % hist[0]["measurement_id"], text)
+        self.assertIn("2.000 nC", text)
+
+    def test_history_filters_and_unknowns(self):
+        self.record("--field", "REF", "--detector", "D-1001", "--reading", "20.0")
+        self.assertEqual(self.fx.json("history", "--patient", MRN, "--field", "AP"), [])
+        self.assertEqual(len(self.fx.json("history", "--patient", MRN, "--field", "REF")), 1)
+        self.assertFailsUnchanged("history", "--patient", "NOPE", expect_code=2, expect_in="unknown patient")
+        self.assertFailsUnchanged("history", "--patient", MRN, "--field", "XX", expect_code=2,
+                                  expect_in="unknown field 'XX'")
+        self.assertFailsUnchanged("history", "--patient", MRN, "--plan", "X", expect_code=2,
+                                  expect_in="unknown plan 'X'")
+        self.assertIn("usage: fxledger history", self.fx.ok("history", "--help").stdout)
+        self.assertIn("usage: fxledger record", self.fx.ok("record", "--help").stdout)
+
+
+class AlertHookTest(RecordTestCase):
+    def action(self, now="2026-11-02T09:00:00Z"):
+        return self.record("--field", "REF", "--detector", "D-1001", "--reading", "22.0", "--temp",
+                           "20", now=now)
+
+    def alert_audit(self):
+        con = sqlite3.connect(self.fx.db)
+        rows = con.execute("SELECT content FROM audit_log WHERE action = 'alert'").fetchall()
+        con.close()
+        return [json.loads(r[0]) for r in rows]
+
+    def test_hook_gets_the_results_on_stdin(self):
+        dest = self.fx.path("alert.json")
+        self.fx.ok("setting", "set", "alert_command", "cat > '%s'" % dest)
+        # A result within tolerance does not call the hook.
+        self.record("--field", "AP", "--detector", "D-1001", "--reading", "20.0")
+        self.assertFalse(os.path.exists(dest))
+        r = self.action(now="2026-11-03T09:00:00Z")
+        self.assertEqual(r.returncode, 12)
+        self.assertNotIn("warning", r.stderr)
+        with open(dest, encoding="utf-8") as f:
+            sent = json.load(f)
+        self.assertEqual(sent["event"], "outside_action_level")
+        self.assertEqual(sent["patient"]["mrn"], MRN)
+        self.assertEqual(sent["fraction"], 2)
+        self.assertEqual(sent["results"][0]["verdict"], "outside_action")
+        self.assertEqual(self.alert_audit()[0]["outcome"], "ok")
+        self.fx.ok("verify")
+
+    def test_failing_hook_keeps_the_record(self):
+        self.fx.ok("setting", "set", "alert_command", "exit 3")
+        r = self.action()
+        self.assertEqual(r.returncode, 12)
+        self.assertIn("warning: the alert command failed (exit 3)", r.stderr)
+        self.assertEqual(len(self.fx.json("history", "--patient", MRN)), 1)
+        audit = self.alert_audit()
+        self.assertEqual((audit[0]["outcome"], audit[0]["exit_code"]), ("failed", 3))
+
+    def test_hanging_hook_is_stopped(self):
+        self.fx.ok("setting", "set", "alert_command", "sleep 30")
+        self.fx.ok("setting", "set", "alert_timeout_s", "1")
+        start = time.monotonic()
+        r = self.action()
+        self.assertLess(time.monotonic() - start, 10)
+        self.assertEqual(r.returncode, 12)
+        self.assertIn("did not finish within 1 s", r.stderr)
+        self.assertEqual(len(self.fx.json("history", "--patient", MRN)), 1)
+        self.assertEqual(self.alert_audit()[0]["outcome"], "timed_out")
+        self.fx.ok("verify")
+
+
+if __name__ == "__main__":
+    main()
