@@ -35,6 +35,22 @@ static void line_col(const char *text, size_t pos, int *line, int *col)
     }
 }
 
+/* 1 when the text ends inside a string that was never closed: a file cut
+ * in the middle of a name or value (cJSON then points at the string start). */
+static int ends_inside_string(const char *text, size_t len)
+{
+    size_t i;
+    int in_string = 0;
+
+    for (i = 0; i < len; i++) {
+        if (in_string && text[i] == '\\')
+            i++;
+        else if (text[i] == '"')
+            in_string = !in_string;
+    }
+    return in_string;
+}
+
 /* Where parsing stopped. cJSON reports the last byte both for a document
  * that ends too early and for a wrong last byte; parsing once more with a
  * sentinel appended separates them: a truncated document then fails at or
@@ -58,6 +74,8 @@ static int syntax_error(fxl_ctx *ctx, const char *name, const char *text, size_t
     if (err && err >= padded && err <= padded + len + 2)
         pos = (size_t)(err - padded);
     free(padded);
+    if (ends_inside_string(text, len))
+        pos = len;
     if (pos >= len) {
         line_col(text, len, &line, &col);
         return fxl_fail(ctx, FXL_EINVAL,
