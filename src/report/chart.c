@@ -93,9 +93,12 @@ static void level_lines(rpt_doc *d, const rpt_axes *a, double tol, double act, i
             rpt_dash_line(d, a->x, py(a, v[i]), a->x + a->w, py(a, v[i]), 0.7, r, g, b, 3, 2);
             /* label at the right end, just inside the band it bounds */
             snprintf(buf, sizeof buf, "%s %+g %%", is_act ? "action" : "tol.", v[i]);
-            rpt_text_rgb(d, d->font, 5.5, r, g, b,
-                         a->x + a->w - rpt_width(d, d->font, 5.5, buf) - 2,
-                         v[i] > 0 ? py(a, v[i]) + 1.5 : py(a, v[i]) - 6.0, buf);
+            {
+                double tw = rpt_width(d, d->font, 5.5, buf);
+                double ty = v[i] > 0 ? py(a, v[i]) + 1.8 : py(a, v[i]) - 6.3;
+                rpt_fill_rect(d, a->x + a->w - tw - 3, ty - 1.2, tw + 2, 6.6, 1, 1, 1);
+                rpt_text_rgb(d, d->font, 5.5, r, g, b, a->x + a->w - tw - 2, ty, buf);
+            }
         }
     }
 }

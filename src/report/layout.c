@@ -349,7 +349,11 @@ const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text
             n = 1;  /* drawn as '?' by sanitize; about as wide as a letter */
         cw = width_raw(f, size, n == 1 && (unsigned char)*q >= 0x80 ? "?" : q, (size_t)n);
         if (w + cw > width && q > p) {
-            if (brk) {
+            if (*q == ' ') {
+                /* a space that does not fit is the break itself */
+                end = q;
+                rest = q + 1;
+            } else if (brk) {
                 end = brk;
                 rest = brk_next;
             } else {
@@ -362,7 +366,8 @@ const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text
         if (*q == ' ') {
             brk = q;
             brk_next = q + 1;
-        } else if (*q == '-' || *q == '/') {
+        } else if ((*q == '-' || *q == '/') && !(q[1] >= '0' && q[1] <= '9')) {
+            /* after a hyphen or slash, but never inside a number or a date */
             brk = q + 1;
             brk_next = q + 1;
         }

@@ -83,7 +83,7 @@ static int on_correction(void *arg, const fxl_rq_correction *c)
     correction_words(c->parameter, c->x_min, c->x_max, name, sizeof name, range, sizeof range);
     snprintf(beam, sizeof beam, "%s %s", c->machine, c->beam);
     snprintf(pts, sizeof pts, "%lld", (long long)c->points);
-    rpt_session_date(since, sizeof since, c->effective_from);
+    rpt_session_calendar_date(since, sizeof since, c->effective_from);
     cells[0] = c->detector;
     cells[1] = c->detector_serial;
     cells[2] = beam;

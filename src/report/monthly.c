@@ -197,7 +197,7 @@ static int group_table(mreport *r, fxl_rq_grouping by, const char *heading, cons
 
     memcpy(cols, group_cols, sizeof cols);
     cols[0].title = first;
-    rpt_heading(d, heading, 60);
+    rpt_heading(d, heading, 80);
     rpt_table_begin(&r->table, d, cols, NGROUP_COLS, 7.5, 2, "");
     r->by = by;
     r->have = 0;
@@ -339,7 +339,7 @@ static int actions(mreport *r)
     rpt_doc *d = &r->s->doc;
     int rc;
 
-    rpt_heading(d, "6. Results outside the action level", 60);
+    rpt_heading(d, "6. Results outside the action level", 100);
     rpt_table_begin(&r->table, d, action_cols, NACTION_COLS, 7, 2, "");
     r->rows = 0;
     rc = fxl_rq_month_actions_each(r->s->ctx, r->from, r->to, on_action, r);
@@ -396,7 +396,7 @@ static int queue(mreport *r)
     char when[48], line[200];
     int rc;
 
-    rpt_heading(d, "7. Review queue items open", 60);
+    rpt_heading(d, "7. Review queue items open", 100);
     rpt_session_datetime(when, sizeof when, r->as_of);
     snprintf(line, sizeof line, "Items opened and not closed as of %s; age in whole days at that time.",
              when);
@@ -432,8 +432,8 @@ static int on_cal_done(void *arg, const fxl_rq_calibration *c)
     char date[32], until[32], beam[200], factor[64];
     const char *cells[8];
 
-    rpt_session_date(date, sizeof date, c->calibrated_at);
-    rpt_session_date(until, sizeof until, c->valid_until);
+    rpt_session_calendar_date(date, sizeof date, c->calibrated_at);
+    rpt_session_calendar_date(until, sizeof until, c->valid_until);
     snprintf(beam, sizeof beam, "%s %s", c->machine, c->beam);
     snprintf(factor, sizeof factor, "%.4g cGy/%s", c->factor_cgy_per_unit, c->reading_unit);
     cells[0] = date;
@@ -456,8 +456,8 @@ static int on_cal_due(void *arg, const fxl_rq_calibration *c)
     const char *cells[7];
     rpt_row_style st = {0, 0, 0};
 
-    rpt_session_date(date, sizeof date, c->calibrated_at);
-    rpt_session_date(until, sizeof until, c->valid_until);
+    rpt_session_calendar_date(date, sizeof date, c->calibrated_at);
+    rpt_session_calendar_date(until, sizeof until, c->valid_until);
     snprintf(beam, sizeof beam, "%s %s", c->machine, c->beam);
     if (c->days_left < 0) {
         snprintf(state, sizeof state, "overdue by %.0f d", ceil(-c->days_left));
@@ -491,7 +491,7 @@ static int calibrations(mreport *r)
         if (end != buf && *end == '\0' && v >= 0 && v <= 365)
             due_days = v;
     }
-    rpt_heading(d, "8. Calibrations", 60);
+    rpt_heading(d, "8. Calibrations", 100);
     rpt_table_begin(&r->table, d, cal_done_cols, 8, 7, 2, "Cross-calibrations performed this month");
     r->rows = 0;
     rc = fxl_rq_calibrations_done_each(r->s->ctx, r->from, r->to, r->as_of, on_cal_done, r);
@@ -542,7 +542,7 @@ static int on_dose(void *arg, const fxl_rq_detector_dose *x)
 
     words(kind, sizeof kind, x->kind);
     words(status, sizeof status, x->status);
-    rpt_session_date(cal, sizeof cal, x->last_calibrated_at);
+    rpt_session_calendar_date(cal, sizeof cal, x->last_calibrated_at);
     snprintf(acc, sizeof acc, "%.0f cGy", x->accumulated_cgy);
     snprintf(lim, sizeof lim, "%.0f cGy", x->limit_cgy);
     rpt_fmt_pct(share, sizeof share, 100.0 * x->accumulated_cgy / x->limit_cgy, 0, 0);
@@ -567,7 +567,7 @@ static int detector_doses(mreport *r)
     char line[400], when[48];
     int rc;
 
-    rpt_heading(d, "9. Detectors near their accumulated-dose limit", 60);
+    rpt_heading(d, "9. Detectors near their accumulated-dose limit", 100);
     rpt_session_datetime(when, sizeof when, r->as_of);
     snprintf(line, sizeof line,
              "Detectors with a dose limit whose dose accumulated since their latest calibration "
@@ -607,8 +607,10 @@ static void title_block(mreport *r)
     d->y -= 48;
     rpt_session_datetime(a, sizeof a, r->from);
     rpt_session_datetime(b, sizeof b, r->to);
-    snprintf(v, sizeof v, "%s to %s, %s time (UTC %s to %s)", a, b, r->s->tz_name, r->from, r->to);
+    snprintf(v, sizeof v, "%s to %s, %s time", a, b, r->s->tz_name);
     rpt_keyval(d, d->left, 140, d->right - d->left - 140, "Period (start to end)", v);
+    snprintf(v, sizeof v, "%s to %s", r->from, r->to);
+    rpt_keyval(d, d->left, 140, d->right - d->left - 140, "The same in UTC", v);
     rpt_session_datetime(a, sizeof a, r->as_of);
     rpt_keyval(d, d->left, 140, d->right - d->left - 140, "Queue and equipment as of", a);
     snprintf(n, sizeof n, "%ld (superseded readings excluded)", r->total);

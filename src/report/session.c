@@ -70,3 +70,8 @@ void rpt_session_datetime(char *out, size_t n, const char *stored)
 {
     rpt_local(out, n, stored, "%Y-%m-%d %H:%M");
 }
+
+void rpt_session_calendar_date(char *out, size_t n, const char *stored)
+{
+    snprintf(out, n, "%.10s", stored ? stored : "");
+}

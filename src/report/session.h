@@ -30,6 +30,9 @@ int rpt_session_close(rpt_session *s, const char *path, int rc);
 /* Local display of a stored time: "%Y-%m-%d" (date) or "%Y-%m-%d %H:%M". */
 void rpt_session_date(char *out, size_t n, const char *stored);
 void rpt_session_datetime(char *out, size_t n, const char *stored);
+/* The date part of a stored time as it was entered, for dates that people
+ * type as calendar days (valid until, effective from): no zone shift. */
+void rpt_session_calendar_date(char *out, size_t n, const char *stored);
 
 /* The limits of the method: a paragraph on relative detectors,
  * cross-calibration and commissioned ranges (report's first page). */

@@ -48,6 +48,8 @@ static void draw_header(rpt_table *t, int continued)
     int i, maxn = 1;
     char cap[300];
 
+    if (!t->caption[0] && !continued)
+        d->y -= 3;
     if (t->caption[0]) {
         rpt_lines cl;
         int k;

@@ -431,7 +431,23 @@ class MonthlyReportTest(ReportTestCase):
         c.measure(pl2, f3, 1, "2026-10-05T08:00:00Z", 0.2, detector=c.ediode)
         c.measure(pl2, f2, 2, "2026-10-31T23:30:00Z", 0.1)
         c.measure(pl2, f2, 3, "2026-09-30T21:30:00Z", 0.3)  # 23:30 local on 30 September
-        # a calibration that ran out on 20 October and was not renewed
+        # a calibration done in October for the electron diode
+        c.insert("calibrations", detector_id=c.ediode, beam_id=c.beam9e, point="entrance",
+                 calibrated_at="2026-10-15T08:00:00Z", valid_until="2026-12-15T23:59:59Z",
+                 chamber_dose_cgy=100, readings="[50.0]", reading_n=1, reading_mean=50.0,
+                 reading_sd=0, factor_cgy_per_unit=2.0, temp_c=21, ssd_cm=100,
+                 field_size_cm=10, user_id=c.phys, created_at="2026-10-15T08:00:00Z")
+        # a detector past its dose limit: 3 x 200 cGy in September against 500 cGy
+        worn = c.insert("detectors", serial="PD-003", label="Diode P3", kind="photon_diode",
+                        dose_limit_cgy=500, created_at="2026-01-01T00:00:00Z")
+        c.insert("calibrations", detector_id=worn, beam_id=c.beam6, point="entrance",
+                 calibrated_at="2026-09-01T08:00:00Z", valid_until="2026-12-01T23:59:59Z",
+                 chamber_dose_cgy=100, readings="[95.0]", reading_n=1, reading_mean=95.0,
+                 reading_sd=0, factor_cgy_per_unit=FACTOR, temp_c=21, ssd_cm=100,
+                 field_size_cm=10, user_id=c.phys, created_at="2026-09-01T08:00:00Z")
+        for n in (4, 5, 6):
+            c.measure(pl2, f2, n, "2026-09-1%dT08:00:00Z" % n, 0.0, detector=worn)
+        # the calibration of PD-001 ran out on 20 October and was not renewed
         c.commit()
         self.out = self.fx.path("month.pdf")
 
@@ -460,6 +476,10 @@ class MonthlyReportTest(ReportTestCase):
         self.assertRegex(t, r"\d+\s+2026-10-05\s+26 d\s+3 of 4\s+MRN-B")
         # the calibration valid until 20 October is overdue at the end of the month
         self.assertRegex(t, r"Diode P1\s+PD-001\s+Linac A 6X\s+entrance.*overdue by 11 d")
+        self.assertRegex(t, r"2026-10-15\s+Diode E2\s+ED-002\s+Linac A 9E\s+entrance\s+2 cGy/nC\s+2026-12-15")
+        # 600 cGy of 500 cGy (fixture arithmetic)
+        self.assertRegex(t, r"Diode P3\s+PD-003\s+photon diode\s+in service\s+2026-09-01\s+600 cGy\s+500 cGy\s+120 %")
+        self.assertNotRegex(t, r"Diode P1\s+PD-001\s+photon diode")
         self.assertNothingOffPage(self.out)
 
     def test_bad_timezone_is_refused(self):
