@@ -327,6 +327,11 @@ int fxl_plan_json_parse(fxl_ctx *ctx, fxl_plan_spec *out, const char *text, size
 
     memset(out, 0, sizeof *out);
     out->dose_per_fraction_cgy = NAN;
+    /* A UTF-8 byte order mark, as some editors write, is not part of the JSON. */
+    if (len >= 3 && memcmp(text, "\xEF\xBB\xBF", 3) == 0) {
+        text += 3;
+        len -= 3;
+    }
     if (!(buf = malloc(len + 1))) {
         rc = fxl_fail(ctx, FXL_EIO, "out of memory reading plan file '%s'", p.source);
         goto cleanup;

@@ -232,6 +232,12 @@ class PlanTest(FxlTestCase):
         self.assertFailsUnchanged("plan", "import", self.fx.write("dup.json", text), user="phys",
                                   expect_code=2, expect_in="has the key 'label' twice")
 
+    def test_byte_order_mark_accepted(self):
+        path = self.fx.path("bom.json")
+        with open(path, "wb") as f:
+            f.write(b"\xef\xbb\xbf" + json.dumps(self.plan).encode("utf-8"))
+        self.assertEqual(self.fx.json("plan", "import", path, user="phys")["label"], "BR-L-1")
+
     def test_lists_and_help(self):
         self.assertEqual(self.fx.json("plan", "list"), [])
         self.assertFailsUnchanged("plan", "list", "NOBODY", expect_code=2, expect_in="unknown patient")
