@@ -17,34 +17,36 @@ static int parse_readings(double *out, size_t *n, const char *text, const char *
     size_t count = 0;
 
     if (!text || !*text) {
-        cli_error("--readings is required: comma-separated readings in %s, e.g. 10.01,10.03,9.98",
+        cli_error("--readings is required: comma-separated readings %s, e.g. 10.01,10.03,9.98",
                   unit);
         return -1;
     }
     while (*p) {
         char item[64], *end = NULL;
         const char *comma = strchr(p, ',');
-        size_t len = comma ? (size_t)(comma - p) : strlen(p);
+        size_t len = comma ? (size_t)(comma - p) : strlen(p), t;
         double v;
         if (count == FXL_CALIB_READINGS_MAX) {
             cli_error("at most %d readings are accepted", FXL_CALIB_READINGS_MAX);
             return -1;
         }
         if (len == 0 || len >= sizeof item) {
-            cli_error("reading %zu '%.*s' is not a number (> 0 %s)", count + 1, (int)(len < 40 ? len : 40),
+            cli_error("reading %zu '%.*s' is not a number (> 0, %s)", count + 1, (int)(len < 40 ? len : 40),
                       p, unit);
             return -1;
         }
         memcpy(item, p, len);
         item[len] = '\0';
+        for (t = len; t > 0 && (item[t - 1] == ' ' || item[t - 1] == '\t'); t--)
+            item[t - 1] = '\0';  /* "10.01, 10.03" is fine; strtod skips leading blanks */
         errno = 0;
         v = strtod(item, &end);
         if (errno != 0 || end == item || *end != '\0' || !isfinite(v)) {
-            cli_error("reading %zu '%s' is not a number (> 0 %s)", count + 1, item, unit);
+            cli_error("reading %zu '%s' is not a number (> 0, %s)", count + 1, item, unit);
             return -1;
         }
         if (v <= 0) {
-            cli_error("reading %zu '%s' must be > 0 %s", count + 1, item, unit);
+            cli_error("reading %zu '%s' must be > 0 (%s)", count + 1, item, unit);
             return -1;
         }
         out[count++] = v;
@@ -164,7 +166,7 @@ static int calib_add(cli_env *env, int argc, char **argv)
     if (cli_double(&c.chamber_dose_cgy, cli_get(opts, "chamber-dose"), "chamber dose", 0.001,
                    FXL_CALIB_CHAMBER_DOSE_MAX_CGY, "cGy") != 0)
         return CLI_EXIT_DATA;
-    if (parse_readings(readings, &c.n_readings, cli_get(opts, "readings"), "the detector's unit") != 0)
+    if (parse_readings(readings, &c.n_readings, cli_get(opts, "readings"), "in the detector's reading unit") != 0)
         return CLI_EXIT_DATA;
     c.readings = readings;
     if ((cli_get(opts, "temp") &&

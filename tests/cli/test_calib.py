@@ -75,6 +75,10 @@ class CalibTest(FxlTestCase):
         self.assertEqual(len(listing), 3)
         self.assertIn("entrance", self.fx.ok("calib", "list").stdout)
 
+    def test_readings_with_blanks(self):
+        out = self.fx.json(*self.calib(readings="10.01, 10.03 ,9.98"))
+        self.assertEqual(out["readings"], [10.01, 10.03, 9.98])
+
     def test_expired_calibration_listed_as_expired(self):
         self.fx.ok(*self.calib("--at", "2026-08-01", "--valid-days", "30"))
         self.assertEqual(self.fx.json("calib", "list")[0]["state"], "expired")
