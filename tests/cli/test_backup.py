@@ -1,0 +1,109 @@
+"""fxledger backup: an online copy through SQLite's backup API, made in steps
+while another process keeps logging fractions; every copy opens and
+verifies. Refuses to overwrite a file, and is for physicists and admins.
+Data are invented (review_scenario.py)."""
+import json
+import os
+import sqlite3
+import threading
+
+from fxlcli import main
+from review_scenario import ReviewCase, reading_for
+
+
+class BackupTest(ReviewCase):
+    def count(self, db, table):
+        con = sqlite3.connect(db)
+        n = con.execute("SELECT count(*) FROM %s" % table).fetchone()[0]
+        con.close()
+        return n
+
+    def test_backup_copy_verifies(self):
+        self.record("P-1", "2026-11-02T08:00:00Z", ("AP", 6.0), ("PA", 0.0))
+        copy = self.fx.path("copy.db")
+        audit_before = self.count(self.fx.db, "audit_log")
+        out = self.fx.json("backup", copy, user="phys")
+        self.assertEqual(out["file"], copy)
+        self.assertTrue(out["quick_check_ok"])
+        self.assertEqual(out["audit_rows"], audit_before)
+        self.assertEqual(oct(os.stat(copy).st_mode & 0o777), "0o600")
+        v = self.fx.run("--db", copy, "--json", "verify", user="aud")
+        self.assertEqual(v.returncode, 0, v.stderr)
+        self.assertTrue(json.loads(v.stdout)["ok"])
+        self.assertEqual(self.count(copy, "measurements"), 2)
+        # The backup itself is recorded in the source's audit log (after the copy).
+        con = sqlite3.connect(self.fx.db)
+        row = con.execute("SELECT user, action, entity, content FROM audit_log ORDER BY id DESC "
+                          "LIMIT 1").fetchone()
+        con.close()
+        self.assertEqual(row[:3], ("phys", "backup", "database"))
+        self.assertEqual(json.loads(row[3])["file"], copy)
+        self.assertEqual(self.count(copy, "audit_log"), audit_before)
+        self.assertTrue(self.fx.json("verify")["ok"])
+
+    def test_refuses_existing_file_and_other_roles(self):
+        existing = self.fx.write("existing.db", "keep me\n")
+        self.assertFailsUnchanged("backup", existing, user="phys", expect_code=2,
+                                  expect_in="already exists")
+        with open(existing) as f:
+            self.assertEqual(f.read(), "keep me\n")
+        target = self.fx.path("new.db")
+        self.assertFailsUnchanged("backup", target, user="ther", expect_code=4,
+                                  expect_in="backing up the database needs the role physicist or admin")
+        self.assertFalse(os.path.exists(target))
+        self.assertFailsUnchanged("backup", self.fx.path("no/such/dir/x.db"), user="phys", expect_code=3,
+                                  expect_in="cannot create backup file")
+        r = self.fx.run("backup", user="phys")
+        self.assertEqual(r.returncode, 1)
+
+    def test_backup_while_another_process_logs(self):
+        # Padding (not part of the record) so that each copy takes many steps.
+        con = sqlite3.connect(self.fx.db)
+        con.execute("CREATE TABLE test_padding (b BLOB)")
+        con.executemany("INSERT INTO test_padding VALUES (?)", [(os.urandom(4000),) for _ in range(800)])
+        con.commit()
+        con.close()
+
+        results = []
+        errors = []
+
+        def writer():
+            # 20 fractions, one process each, as a therapist would log them.
+            for n in range(1, 21):
+                mrn = "P-1" if n % 2 else "P-2"
+                at = "2026-11-%02dT08:00:00Z" % (n // 2 + 2)
+                r = self.fx.run("record", "--patient", mrn, "--at", at, "--field", "AP",
+                                "--detector", "D-1", "--reading", reading_for(1.0),
+                                user="ther", now="2026-12-01T09:00:00Z")
+                results.append(r.returncode)
+                if r.returncode not in (0, 10, 11, 12):
+                    errors.append(r.stderr)
+
+        t = threading.Thread(target=writer)
+        t.start()
+        copies = []
+        i = 0
+        while t.is_alive() or i < 2:
+            copy = self.fx.path("copy-%d.db" % i)
+            r = self.fx.run("--json", "backup", copy, user="phys", now="2026-12-01T09:00:00Z")
+            self.assertEqual(r.returncode, 0, r.stderr)
+            out = json.loads(r.stdout)
+            self.assertGreater(out["steps"], 1)      # copied in steps, not in one go
+            copies.append(copy)
+            i += 1
+        t.join()
+        self.assertEqual(errors, [])
+        self.assertEqual(len(results), 20)
+        for copy in copies:
+            v = self.fx.run("--db", copy, "--json", "verify", user="aud")
+            self.assertEqual(v.returncode, 0, copy + v.stdout + v.stderr)
+            n = self.count(copy, "fractions")
+            self.assertTrue(0 <= n <= 20, n)
+            # Each copy is one snapshot: every fraction in it has its measurement.
+            self.assertEqual(self.count(copy, "measurements"), n)
+        self.assertEqual(self.count(self.fx.db, "fractions"), 20)
+        self.assertTrue(self.fx.json("verify")["ok"])
+
+
+if __name__ == "__main__":
+    main()
