@@ -41,7 +41,17 @@ typedef struct mreport {
     long levels_count, levels_n;
     char other_levels[400];
     double mean, m2;
+    int section;                  /* number of the last section heading */
 } mreport;
+
+/* A numbered section heading, kept with `keep` points of what follows. */
+static void section(mreport *r, const char *title, double keep)
+{
+    char buf[200];
+
+    snprintf(buf, sizeof buf, "%d. %s", ++r->section, title);
+    rpt_heading(&r->s->doc, buf, keep);
+}
 
 static const char *const verdict_names[NVERDICT] = {"within_tolerance", "outside_tolerance",
                                                     "outside_action", "not_evaluable",
@@ -100,7 +110,7 @@ static void overall_table(mreport *r)
     rpt_row_style bold = {7u, 0, 0};
     int i;
 
-    rpt_heading(d, "1. Results by verdict", 110);
+    section(r, "Results by verdict", 110);
     rpt_table_begin(&t, d, overall_cols, 3, 8.5, 1, "");
     for (i = 0; i < NVERDICT; i++) {
         snprintf(n, sizeof n, "%ld", r->verdict[i]);
@@ -197,7 +207,7 @@ static int group_table(mreport *r, fxl_rq_grouping by, const char *heading, cons
 
     memcpy(cols, group_cols, sizeof cols);
     cols[0].title = first;
-    rpt_heading(d, heading, 80);
+    section(r, heading, 80);
     rpt_table_begin(&r->table, d, cols, NGROUP_COLS, 7.5, 2, "");
     r->by = by;
     r->have = 0;
@@ -263,7 +273,7 @@ static int histogram(mreport *r)
     if ((rc = fxl_rq_month_deviations_each(r->s->ctx, r->from, r->to, on_deviation, r)) != 0)
         return rc;
 
-    rpt_heading(d, "5. Distribution of deviations", h + 40);
+    section(r, "Distribution of deviations", h + 40);
     if (r->hist.n == 0) {
         rpt_paragraph(d, d->font, 9, d->left, d->right - d->left,
                       "No result of this month could be judged against levels.");
@@ -339,7 +349,7 @@ static int actions(mreport *r)
     rpt_doc *d = &r->s->doc;
     int rc;
 
-    rpt_heading(d, "6. Results outside the action level", 100);
+    section(r, "Results outside the action level", 100);
     rpt_table_begin(&r->table, d, action_cols, NACTION_COLS, 7, 2, "");
     r->rows = 0;
     rc = fxl_rq_month_actions_each(r->s->ctx, r->from, r->to, on_action, r);
@@ -396,7 +406,7 @@ static int queue(mreport *r)
     char when[48], line[200];
     int rc;
 
-    rpt_heading(d, "7. Review queue items open", 100);
+    section(r, "Review queue items open", 100);
     rpt_session_datetime(when, sizeof when, r->as_of);
     snprintf(line, sizeof line, "Items opened and not closed as of %s; age in whole days at that time.",
              when);
@@ -491,7 +501,7 @@ static int calibrations(mreport *r)
         if (end != buf && *end == '\0' && v >= 0 && v <= 365)
             due_days = v;
     }
-    rpt_heading(d, "8. Calibrations", 100);
+    section(r, "Calibrations", 100);
     rpt_table_begin(&r->table, d, cal_done_cols, 8, 7, 2, "Cross-calibrations performed this month");
     r->rows = 0;
     rc = fxl_rq_calibrations_done_each(r->s->ctx, r->from, r->to, r->as_of, on_cal_done, r);
@@ -567,7 +577,7 @@ static int detector_doses(mreport *r)
     char line[400], when[48];
     int rc;
 
-    rpt_heading(d, "9. Detectors near their accumulated-dose limit", 100);
+    section(r, "Detectors near their accumulated-dose limit", 100);
     rpt_session_datetime(when, sizeof when, r->as_of);
     snprintf(line, sizeof line,
              "Detectors with a dose limit whose dose accumulated since their latest calibration "
@@ -677,10 +687,10 @@ int fxl_report_month(fxl_ctx *ctx, fxl_report_result *out, const char *path, con
         if ((rc = rpt_method_corrections(&s, &scope)) != 0)
             goto cleanup;
         overall_table(r);
-        if ((rc = group_table(r, FXL_RQ_BY_SITE_TECHNIQUE, "2. By treatment site and technique",
+        if ((rc = group_table(r, FXL_RQ_BY_SITE_TECHNIQUE, "By treatment site and technique",
                               "Site / technique")) != 0 ||
-            (rc = group_table(r, FXL_RQ_BY_ENERGY, "3. By beam modality and energy", "Beam")) != 0 ||
-            (rc = group_table(r, FXL_RQ_BY_DETECTOR, "4. By detector", "Detector")) != 0 ||
+            (rc = group_table(r, FXL_RQ_BY_ENERGY, "By beam modality and energy", "Beam")) != 0 ||
+            (rc = group_table(r, FXL_RQ_BY_DETECTOR, "By detector", "Detector")) != 0 ||
             (rc = histogram(r)) != 0 || (rc = actions(r)) != 0)
             goto cleanup;
     }
