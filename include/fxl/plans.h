@@ -127,4 +127,10 @@ void fxl_plan_release(fxl_plan *plan);
  * *out is malloc'ed (free with free(); NULL when *n is 0). */
 int fxl_plan_list(fxl_ctx *ctx, fxl_plan **out, size_t *n, const char *mrn);
 
+/* Number of plans (replaced ones included) whose site equals `site` and, when
+ * technique is not NULL, whose technique equals `technique`, both ignoring
+ * ASCII case as level-set matching does. Lets `levels set` warn about a
+ * scope that no plan uses (a likely misspelling). */
+int fxl_plan_count_matching(fxl_ctx *ctx, int *out_n, const char *site, const char *technique);
+
 #endif

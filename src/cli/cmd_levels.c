@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "fxl/plans.h"
 #include "fxl/scope.h"
 #include "fxl/thresholds.h"
 
@@ -63,6 +64,27 @@ static const char *scope_opt(const cli_opt *opts, const char *name)
 {
     const char *v = cli_get(opts, name);
     return v && strcmp(v, "any") == 0 ? "" : v;
+}
+
+/* A site or technique no plan uses is most likely misspelt: the set would
+ * silently never apply. Saved anyway (plans may follow), with a warning. */
+static void warn_unused_scope(cli_env *env, const fxl_threshold_set *t)
+{
+    char what[200];
+    int n = 0;
+
+    if (!t->active || (!t->site[0] && !t->technique[0]))
+        return;
+    if (fxl_plan_count_matching(env->ctx, &n, t->site, t->technique) != 0 || n > 0)
+        return;
+    if (t->site[0] && t->technique[0])
+        snprintf(what, sizeof what, "site '%s' and technique '%s'", t->site, t->technique);
+    else if (t->site[0])
+        snprintf(what, sizeof what, "site '%s'", t->site);
+    else
+        snprintf(what, sizeof what, "technique '%s'", t->technique);
+    fprintf(stderr, "fxledger: warning: no plan has %s yet; check the spelling against "
+                    "'fxledger plan list'\n", what);
 }
 
 static int levels_set(cli_env *env, int argc, char **argv)
@@ -126,6 +148,7 @@ static int levels_set(cli_env *env, int argc, char **argv)
     chg.deactivate = cli_get(opts, "deactivate") != NULL;
     if ((rc = fxl_thresholds_save(env->ctx, &saved, &chg)) != 0)
         return cli_fail(env, rc);
+    warn_unused_scope(env, &saved);
     if (env->json)
         return cli_print_json(set_json(&saved));
     if (saved.active) {

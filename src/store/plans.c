@@ -594,3 +594,26 @@ cleanup:
     *n = count;
     return 0;
 }
+
+int fxl_plan_count_matching(fxl_ctx *ctx, int *out_n, const char *site, const char *technique)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    *out_n = 0;
+    /* SQLite's lower() folds ASCII only, the same folding as scope matching. */
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+                               "SELECT count(*) FROM plans WHERE (:site IS NULL OR lower(site) = lower(:site)) "
+                               "AND (:technique IS NULL OR lower(technique) = lower(:technique))")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_text(&s, ":site", site && *site ? site : NULL);
+    fxl_stmt_bind_text(&s, ":technique", technique && *technique ? technique : NULL);
+    rc = fxl_stmt_step(&s);
+    if (rc == 1) {
+        *out_n = (int)fxl_stmt_int(&s, 0);
+        rc = 0;
+    }
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}

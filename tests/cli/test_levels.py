@@ -137,6 +137,14 @@ class LevelsTest(FxlTestCase):
                                   expect_code=1, expect_in="needs the set NAME")
         self.assertFailsUnchanged("levels", "list", "--at", "yesterday", expect_code=1, expect_in="--at")
 
+    def test_warns_when_no_plan_has_the_site(self):
+        r = self.fx.run("levels", "set", "breast", "--tolerance", "7", "--action", "10",
+                        "--site", "Breats", user="phys")
+        self.assertEqual(r.returncode, 0, r.stderr)   # saved anyway: plans may follow
+        self.assertIn("warning: no plan has site 'Breats' yet", r.stderr)
+        r = self.fx.run("levels", "set", "default", "--tolerance", "5", "--action", "7", user="phys")
+        self.assertEqual(r.stderr, "")
+
     def test_help(self):
         for sub in ("set", "list"):
             self.assertIn("usage: fxledger levels " + sub, self.fx.ok("levels", sub, "--help").stdout)

@@ -76,6 +76,10 @@ class PlanTest(FxlTestCase):
         self.assertEqual(pshow["plan_count"], 1)
         self.assertEqual(len(pshow["plans"][0]["fields"]), 3)
         self.assertTrue(self.fx.json("verify")["ok"])
+        # a level set scoped by this plan's site (any letter case) draws no warning
+        r = self.fx.ok("levels", "set", "breast", "--tolerance", "7", "--action", "10",
+                       "--site", "BREAST", "--technique", "3d tangents", user="phys")
+        self.assertEqual(r.stderr, "")
 
     def test_import_writes_one_transaction_with_audit_rows(self):
         self.fx.ok("plan", "import", os.path.join(PLANS, "breast_tangents.json"), user="phys")
