@@ -160,8 +160,10 @@ void fxl_amend_request_init(fxl_amend_request *r);
  * fxl_record_fraction, at the fraction's treatment time (calibration, tables
  * and levels in force then), including the history rule. The earlier row is
  * never changed: listings mark it "superseded by #new". One transaction: the
- * new row, its review item when not within tolerance, audit rows. The review
- * item of the superseded row, if any, stays for the physicist to close.
+ * new row, its review item when not within tolerance, audit rows, and the
+ * rules over history for the fraction (which link the superseded row's queue
+ * items to the new row). The review item of the superseded row, if any,
+ * stays open for the physicist to close.
  * *out holds the fraction with the one new item (n == 1). */
 int fxl_record_amend(fxl_ctx *ctx, fxl_record_result *out, const fxl_amend_request *req);
 

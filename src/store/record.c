@@ -610,8 +610,12 @@ int fxl_record_amend(fxl_ctx *ctx, fxl_record_result *out, const fxl_amend_reque
     fxl_now(ctx, now);
     if ((rc = fxl_begin(ctx)) != 0)
         goto cleanup;
+    /* The rules over history run again for the fraction: they link the
+     * superseded row's queue items to the new row and open items only for
+     * hits not yet open (store/rules_hook.h). */
     if ((rc = insert_measurement(ctx, &in, orig.fraction_id, now)) != 0 ||
-        (rc = open_review_item(ctx, &in, &plan, orig.number, now)) != 0) {
+        (rc = open_review_item(ctx, &in, &plan, orig.number, now)) != 0 ||
+        (rc = fxl_rules_after_record(ctx, orig.fraction_id)) != 0) {
         if (rc == FXL_ECONFLICT)
             rc = fxl_fail(ctx, FXL_ECONFLICT, "measurement #%lld was amended meanwhile; nothing written",
                           (long long)req->measurement_id);

@@ -415,6 +415,14 @@ static void test_store_record_amend_supersedes_and_history_marks(void **state)
     assert_near(am.items[0].corrected_dose_cgy, 20.0 * 10.0 * ap_cf_fs(), 1e-9);
     assert_int_equal(count(f, "SELECT count(*) FROM measurements"), 2);
     assert_int_equal(count(f, "SELECT count(*) FROM fractions"), 1);
+    /* The superseded row's queue item stays open and is linked by a comment
+     * (rules over history, run in the same transaction). */
+    assert_int_equal(count(f, "SELECT count(*) FROM review_items i JOIN measurements m "
+                              "ON m.id = i.measurement_id WHERE m.supersedes_id IS NULL "
+                              "AND i.rule = 'result' AND i.status = 'open'"), 1);
+    assert_true(count(f, "SELECT count(*) FROM review_events e JOIN review_items i ON i.id = e.item_id "
+                         "JOIN measurements m ON m.id = i.measurement_id "
+                         "WHERE m.supersedes_id IS NULL AND e.kind = 'comment'") >= 1);
     /* A superseded row cannot be amended again. */
     assert_int_equal(fxl_record_amend(f->ctx, &am, &a), FXL_ECONFLICT);
 
