@@ -96,6 +96,55 @@ typedef struct parser {
 
 /* ---- structure of the JSON Model -------------------------------------------- */
 
+static void line_col(const char *text, size_t pos, int *line, int *col)
+{
+    size_t i;
+
+    *line = 1;
+    *col = 1;
+    for (i = 0; i < pos; i++) {
+        if (text[i] == '\n') {
+            (*line)++;
+            *col = 1;
+        } else {
+            (*col)++;
+        }
+    }
+}
+
+/* Where malformed JSON stops. cJSON points at the last byte both when the
+ * text ends early and when that byte is wrong; a second parse with a
+ * sentinel appended tells the two apart. */
+static int syntax_error(const parser *p, const char *text, size_t len)
+{
+    char *padded = malloc(len + 3);
+    const char *err = NULL;
+    size_t pos = len;
+    cJSON *again;
+    int line, col;
+
+    if (!padded)
+        return fxl_fail(p->ctx, FXL_EIO, "out of memory reading '%s'", p->name);
+    memcpy(padded, text, len);
+    memcpy(padded + len, " @", 3);
+    again = cJSON_ParseWithLengthOpts(padded, len + 2, &err, 0);
+    cJSON_Delete(again);
+    if (!err)
+        err = cJSON_GetErrorPtr();
+    if (err && err >= padded && err <= padded + len + 2)
+        pos = (size_t)(err - padded);
+    free(padded);
+    if (pos >= len) {
+        line_col(text, len, &line, &col);
+        return fxl_fail(p->ctx, FXL_EINVAL,
+                        "file '%s': malformed JSON: the file ends too early at line %d, column %d (truncated?)",
+                        p->name, line, col);
+    }
+    line_col(text, pos, &line, &col);
+    return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': malformed JSON at line %d, column %d near '%.12s'",
+                    p->name, line, col, text + pos);
+}
+
 static int is_tag_key(const char *s)
 {
     int i;
@@ -582,7 +631,7 @@ static int read_meterset(const parser *p, const char *where, const cJSON *fg, in
             b->beam_dose_cgy *= 100.0;  /* Gy to cGy */
         return 0;
     }
-    return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: not in the fraction group's %s (%.4s,%.4s): no meterset",
+    return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s is not in the fraction group's %s (%.4s,%.4s): no meterset",
                     p->name, where, T_REF_BEAM_SEQ.keyword, T_REF_BEAM_SEQ.hex, T_REF_BEAM_SEQ.hex + 4);
 }
 
@@ -601,20 +650,20 @@ static int check_static(const parser *p, const char *where, const cJSON *cps, co
             return rc;
         if (rc > 0 && strcmp(dir, "NONE") != 0)
             return fxl_fail(p->ctx, FXL_EINVAL,
-                            "file '%s': %s: is an arc (gantry rotation %s from %g deg): arcs are not supported",
+                            "file '%s': %s is an arc (gantry rotation %s from %g deg): arcs are not supported",
                             p->name, where, dir, g0);
         if ((rc = get_num(p, where, cp, &T_GANTRY, 0, 0, &g)) < 0)
             return rc;
         if (rc > 0 && fabs(g - g0) > 0.01)
             return fxl_fail(p->ctx, FXL_EINVAL,
-                            "file '%s': %s: is an arc (gantry moves from %g to %g deg): arcs are not supported",
+                            "file '%s': %s is an arc (gantry moves from %g to %g deg): arcs are not supported",
                             p->name, where, g0, g);
         if (i > 0) {
             if ((rc = read_positions(p, where, cp, &c)) != 0)
                 return rc;
             if (!same_positions(c0, &c))
                 return fxl_fail(p->ctx, FXL_EINVAL,
-                                "file '%s': %s: is modulated (jaws or MLC move during the beam: IMRT, VMAT or a "
+                                "file '%s': %s is modulated (jaws or MLC move during the beam: IMRT, VMAT or a "
                                 "dynamic wedge): not supported", p->name, where);
         }
         i++;
@@ -691,7 +740,7 @@ static int read_beam(const parser *p, fxl_dicom_plan *plan, const cJSON *item, c
         return rc;
     if (n_comp > 0)
         return fxl_fail(p->ctx, FXL_EINVAL,
-                        "file '%s': %s: carries %d compensator(s): compensators are not supported", p->name, where,
+                        "file '%s': %s carries %d compensator(s): compensators are not supported", p->name, where,
                         n_comp);
     if ((rc = get_int(p, where, item, &T_N_BOLI, 0, &b->bolus_count)) < 0)
         return rc;
@@ -902,7 +951,6 @@ int fxl_dicom_plan_parse(fxl_ctx *ctx, fxl_dicom_plan *out, const char *text, si
     parser p = {ctx, source ? source : "RT Plan"};
     cJSON *root = NULL;
     const cJSON *ds;
-    const char *err;
     int rc;
 
     if (!out)
@@ -912,15 +960,7 @@ int fxl_dicom_plan_parse(fxl_ctx *ctx, fxl_dicom_plan *out, const char *text, si
     if (!text || len == 0)
         return fxl_fail(ctx, FXL_EINVAL, "file '%s' is empty", p.name);
     if (!(root = cJSON_ParseWithLength(text, len))) {
-        size_t pos = len;
-        int line = 1;
-        err = cJSON_GetErrorPtr();
-        if (err && err >= text && err <= text + len)
-            pos = (size_t)(err - text);
-        for (size_t i = 0; i < pos && i < len; i++)
-            line += text[i] == '\n';
-        rc = fxl_fail(ctx, FXL_EINVAL, "file '%s': malformed JSON near line %d%s", p.name, line,
-                      pos >= len ? " (the file ends too early: truncated?)" : "");
+        rc = syntax_error(&p, text, len);
         goto cleanup;
     }
     ds = root;

@@ -563,9 +563,9 @@ static void test_beam_model_file_parses_and_computes(void **state)
     char *json = NULL;
 
     (void)state;
-    data_path(path, sizeof path, "beams/linac_a_6x.json");
+    data_path(path, sizeof path, "beams/linac1_6x.json");
     assert_int_equal(fxl_beam_json_read(NULL, &m, path), 0);
-    assert_string_equal(m.machine, "LINAC-A");
+    assert_string_equal(m.machine, "LINAC1");
     assert_string_equal(m.beam, "6X");
     assert_near(m.ref_distance_cm, 101.5, 0);
     assert_int_equal(m.sc.n, 8);
