@@ -24,7 +24,7 @@ test: build
 	cd $(BUILD) && ctest --output-on-failure -j2
 
 demo: build
-	sh demo/run-demo.sh $(BUILD)/fxledger
+	/usr/bin/python3 demo/run_demo.py $(BUILD)/fxledger
 
 clean:
 	rm -rf $(BUILD) demo/out
