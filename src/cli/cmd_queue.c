@@ -515,8 +515,11 @@ static int queue_show(cli_env *env, int argc, char **argv)
     if (d.item.patient_name[0])
         printf("  patient %s (%s)%s%s%s\n", d.item.mrn, d.item.patient_name,
                d.item.plan[0] ? ", plan '" : "", d.item.plan, d.item.plan[0] ? "'" : "");
+    /* field, fraction and detector (the patient is on the line above) */
     if (subject[0])
-        printf("  %s\n", subject);
+        printf("  %s\n", d.item.patient_name[0] && strchr(subject, ',')
+                              ? strchr(subject, ',') + 2
+                              : subject);
     printf("  %s\n", d.item.summary);
     if (d.has_measurement)
         print_measurement(&d.m);
