@@ -424,7 +424,9 @@ static void test_store_record_amend_supersedes_and_history_marks(void **state)
                          "JOIN measurements m ON m.id = i.measurement_id "
                          "WHERE m.supersedes_id IS NULL AND e.kind = 'comment'") >= 1);
     /* A superseded row cannot be amended again. */
+    fxl_record_result_release(&am);
     assert_int_equal(fxl_record_amend(f->ctx, &am, &a), FXL_ECONFLICT);
+    assert_int_equal(am.n, 0);
 
     assert_int_equal(fxl_history_list(f->ctx, &rows, &n, &q), 0);
     assert_int_equal(n, 2);
