@@ -135,8 +135,8 @@ void fxl_record_result_release(fxl_record_result *r);
  * and runs the rules over history (store/rules_hook.h); any failure rolls
  * everything back. A retired detector, an expired calibration or a parameter
  * outside its table is not an input error: the reading is logged as not
- * evaluable with the reason. On success *out holds what was written; on
- * failure *out is empty. */
+ * evaluable with the reason. *out is overwritten (release an earlier result
+ * first). On success it holds what was written; on failure it is empty. */
 int fxl_record_fraction(fxl_ctx *ctx, fxl_record_result *out, const fxl_record_request *req);
 
 /* ---- amendments ----------------------------------------------------------- */
