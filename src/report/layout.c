@@ -327,6 +327,23 @@ void rpt_fit(rpt_doc *d, HPDF_Font f, double size, const char *text, double widt
     memcpy(out + i, RPT_CUT_MARK, sizeof RPT_CUT_MARK);
 }
 
+/* 1 when the word at s is a unit that must stay with the number before it. */
+static int unit_follows(const char *s)
+{
+    static const char *const units[] = {"%", "cGy", "nC", "pC", "mV", "MV", "MeV", "cm", "deg",
+                                        "d", "degC", "kGy", "Gy"};
+    size_t i, n;
+
+    for (i = 0; i < sizeof units / sizeof units[0]; i++) {
+        n = strlen(units[i]);
+        if (strncmp(s, units[i], n) == 0 &&
+            (s[n] == '\0' || s[n] == ' ' || s[n] == ',' || s[n] == '.' || s[n] == ')' ||
+             s[n] == ';' || s[n] == '/' || s[n] == ':'))
+            return 1;
+    }
+    return 0;
+}
+
 const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text, double width,
                           char *out, size_t outsz)
 {
@@ -349,7 +366,7 @@ const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text
             n = 1;  /* drawn as '?' by sanitize; about as wide as a letter */
         cw = width_raw(f, size, n == 1 && (unsigned char)*q >= 0x80 ? "?" : q, (size_t)n);
         if (w + cw > width && q > p) {
-            if (*q == ' ') {
+            if (*q == ' ' && !(q[-1] >= '0' && q[-1] <= '9' && unit_follows(q + 1))) {
                 /* a space that does not fit is the break itself */
                 end = q;
                 rest = q + 1;
@@ -363,7 +380,8 @@ const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text
             goto done;
         }
         w += cw;
-        if (*q == ' ') {
+        if (*q == ' ' && !(q > p && q[-1] >= '0' && q[-1] <= '9' && unit_follows(q + 1))) {
+            /* a space, unless it joins a number to its unit */
             brk = q;
             brk_next = q + 1;
         } else if ((*q == '-' || *q == '/') && !(q[1] >= '0' && q[1] <= '9')) {

@@ -262,10 +262,10 @@ static int histogram(mreport *r)
     r->other_levels[0] = '\0';
     if ((rc = fxl_rq_month_levels_each(r->s->ctx, r->from, r->to, on_levels, r)) != 0)
         return rc;
-    /* Twice the action level, at least 10 %, at most the usual bound of
-     * implausibility (50 %), as a whole number of percent. */
+    /* Twice the action level rounded up to 5 %, at least 10 %, at most the
+     * usual bound of implausibility (50 %). */
     if (isfinite(r->act) && 2 * r->act > range)
-        range = ceil(2 * r->act);
+        range = ceil(2 * r->act / 5) * 5;   /* round bins: range / 10 */
     if (range > 50)
         range = 50;
     rpt_hist_init(&r->hist, range);

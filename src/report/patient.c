@@ -168,7 +168,7 @@ static void title_block(preport *r)
 static const rpt_col meas_cols[] = {
     {"No.", 30, RPT_RIGHT},          {"Date", 52, RPT_LEFT},
     {"Fx", 22, RPT_RIGHT},           {"Field", 74, RPT_LEFT},
-    {"Point", 42, RPT_LEFT},         {"Detector", 70, RPT_LEFT},
+    {"Point", 42, RPT_LEFT},         {"Detector serial", 70, RPT_LEFT},
     {"Reading", 54, RPT_RIGHT},      {"Corrected dose", 56, RPT_RIGHT},
     {"Expected dose", 56, RPT_RIGHT}, {"Deviation", 46, RPT_RIGHT},
     {"Verdict", 86, RPT_LEFT},       {"Review disposition", 100, RPT_LEFT},
@@ -207,7 +207,7 @@ static int on_measurement(void *arg, const fxl_rq_measurement *m)
     cells[2] = fx;
     cells[3] = m->field;
     cells[4] = m->point;
-    cells[5] = m->detector;
+    cells[5] = m->detector_serial;  /* unique and short; labels are in the corrections table */
     cells[6] = reading;
     cells[7] = corr;
     cells[8] = exp;

@@ -528,7 +528,7 @@ class EndToEndTest(record_fixture.RecordTestCase, ReportTestCase):
         self.report("patient", mrn, "--out", pdf)
         t = pdftext(pdf)
         self.assertIn("Example, Invented", t)
-        self.assertRegex(t, r"2026-10-05\s+1\s+REF\s+entrance\s+Diode D-1001\s+20\.20 nC\s+202\.0 cGy\s+200\.0 cGy\s+\+1\.00 %\s+within tolerance")
+        self.assertRegex(t, r"2026-10-05\s+1\s+REF\s+entrance\s+D-1001\s+20\.20 nC\s+202\.0 cGy\s+200\.0 cGy\s+\+1\.00 %\s+within tolerance")
         self.assertRegex(t, r"2026-10-06\s+2\s+REF.*\+9\.00 %\s+outside action level\s+detector placement")
         month = fx.path("month.pdf")
         self.report("month", "2026-10", "--out", month)
