@@ -217,6 +217,9 @@ static int queue_list(cli_env *env, int argc, char **argv)
         if (subject[0])
             printf("        %s\n", subject);
         printf("        %s\n", it->summary);
+        if (it->last_event[0] && strcmp(it->last_event, "open") != 0)
+            printf("        last: %s by %s at %s\n", it->last_event, it->last_event_by,
+                   it->last_event_at);
         if (it->superseded_by)
             printf("        reading superseded by measurement #%lld (see 'fxledger queue show %lld')\n",
                    (long long)it->superseded_by, (long long)it->id);
