@@ -110,8 +110,8 @@ static int syntax_error(fxl_ctx *ctx, const char *name, const char *text, size_t
                         name, line, col);
     }
     line_col(text, pos, &line, &col);
-    return fxl_fail(ctx, FXL_EINVAL, "file '%s': malformed JSON at line %d, column %d near '%.12s'",
-                    name, line, col, text + pos);
+    return fxl_fail(ctx, FXL_EINVAL, "file '%s': malformed JSON at line %d, column %d near '%.*s'",
+                    name, line, col, (int)(len - pos < 12 ? len - pos : 12), text + pos);
 }
 
 /* Refuses keys other than the allowed ones, and duplicated keys. */

@@ -141,8 +141,8 @@ static int syntax_error(const parser *p, const char *text, size_t len)
                         p->name, line, col);
     }
     line_col(text, pos, &line, &col);
-    return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': malformed JSON at line %d, column %d near '%.12s'",
-                    p->name, line, col, text + pos);
+    return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': malformed JSON at line %d, column %d near '%.*s'",
+                    p->name, line, col, (int)(len - pos < 12 ? len - pos : 12), text + pos);
 }
 
 static int is_tag_key(const char *s)
