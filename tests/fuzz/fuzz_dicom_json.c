@@ -1,0 +1,22 @@
+/* libFuzzer harness: DICOM RT Plans in the DICOM JSON Model (fxl_dicom_plan_parse).
+ * The parser's contract is checked in fuzz_checks.h; a broken promise aborts
+ * so that libFuzzer keeps the input. Build and run: `make fuzz`
+ * (docs/robustness.md). */
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+
+#include "fuzz_checks.h"
+
+int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
+
+int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
+{
+    const char *why = fuzz_check_dicom_json(data, size);
+
+    if (why) {
+        fprintf(stderr, "dicom_json: contract broken: %s\n", why);
+        abort();
+    }
+    return 0;
+}
