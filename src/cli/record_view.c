@@ -67,7 +67,7 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r)
 {
     char t[40], reading[32], dose[24], expected[24], dev[16], id[16];
     size_t i;
-    int j, flagged = 0;
+    int j, flagged = 0, implausible;
 
     when(t, sizeof t, r->treated_at);
     printf("%sFraction %d of %d%s - patient %s (%s), plan '%s' (%s, %s), treated %s\n\n",
@@ -80,9 +80,12 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r)
 
         snprintf(id, sizeof id, "#%lld", (long long)m->measurement_id);
         num(reading, sizeof reading, m->reading, "%.3f", m->reading_unit);
-        num(dose, sizeof dose, m->corrected_dose_cgy, "%.1f", "cGy");
+        /* An implausible entry is a probable typing or unit error, never a
+         * dose result: its arithmetic stays in the record, not on screen. */
+        implausible = m->verdict == FXL_VERDICT_IMPLAUSIBLE;
+        num(dose, sizeof dose, implausible ? NAN : m->corrected_dose_cgy, "%.1f", "cGy");
         num(expected, sizeof expected, m->expected_dose_cgy, "%.1f", "cGy");
-        num(dev, sizeof dev, m->deviation_pct, "%+.2f", "%");
+        num(dev, sizeof dev, implausible ? NAN : m->deviation_pct, "%+.2f", "%");
         printf("%-6s %-12s %-9s %-12s %-14s %-12s %-12s %-10s %s%s%s%s\n", id, m->field, m->point,
                m->detector, reading, dose, expected, dev, cli_color(env, verdict_color(m->verdict)),
                fxl_verdict_label(m->verdict), m->escalated ? " (escalated)" : "",

@@ -189,9 +189,13 @@ static int on_measurement(void *arg, const fxl_rq_measurement *m)
     rpt_session_date(date, sizeof date, m->treated_at);
     snprintf(fx, sizeof fx, "%d", m->fraction);
     rpt_fmt_reading(reading, sizeof reading, m->reading, m->reading_unit);
-    rpt_fmt_cgy(corr, sizeof corr, m->corrected_dose_cgy);
+    /* An implausible entry is a probable typing or unit error, never shown
+     * as a dose result (its arithmetic stays in the database). */
+    int dose_result = strcmp(m->verdict, "implausible") != 0;
+
+    rpt_fmt_cgy(corr, sizeof corr, dose_result ? m->corrected_dose_cgy : NAN);
     rpt_fmt_cgy(exp, sizeof exp, m->expected_dose_cgy);
-    rpt_fmt_pct(dev, sizeof dev, m->deviation_pct, 2, 1);
+    rpt_fmt_pct(dev, sizeof dev, dose_result ? m->deviation_pct : NAN, 2, 1);
     disp = m->review == FXL_RQ_REVIEW_PENDING ? "review pending"
            : m->review == FXL_RQ_REVIEW_CLOSED
                ? (m->disposition[0] ? m->disposition : "closed")

@@ -119,6 +119,17 @@ class RecordVerdictTest(RecordTestCase):
         self.assertEqual(con.execute("SELECT severity FROM review_items WHERE rule = 'result'").fetchone()[0], 3)
         con.close()
 
+    def test_implausible_reading_shows_no_dose(self):
+        # An implausible entry is never reported as a dose result (DESIGN.md
+        # section 4): the verdict table shows no corrected dose or deviation.
+        # 200 nC x 10 cGy/nC would be 2000 cGy, ten times the expected 200 cGy.
+        r = self.record("--field", "REF", "--detector", "D-1001", "--reading", "200", "--temp", "20")
+        self.assertEqual(r.returncode, 10, r.stderr)
+        row = next(line for line in r.stdout.splitlines() if "implausible entry" in line)
+        self.assertNotIn("2000.0 cGy", row)
+        self.assertNotIn("%", row)
+        self.assertIn("200.000 nC", row)
+
     def test_several_fields_worst_result_wins(self):
         r = self.record("--detector", "D-1001", "--temp", "20",
                         "--field", "REF", "--reading", "20.0",
