@@ -790,6 +790,9 @@ static int read_beam(const parser *p, fxl_dicom_plan *plan, const cJSON *item, c
         (rc = field_size(p, where, item, &c0, b)) != 0 || (rc = read_wedges(p, where, item, cps, b)) != 0 ||
         (rc = read_meterset(p, where, fg, b->number, b)) != 0)
         return rc;
+    if (b->wedge_count && strcmp(b->wedge_type, "DYNAMIC") == 0)
+        fxl_reasons_add(&plan->notes, "%s: dynamic wedge %g deg: its wedge factor and the detector's wedge "
+                        "correction must be those of the dynamic wedge", where, b->wedge_deg);
     return 0;
 }
 
