@@ -164,9 +164,13 @@ typedef struct fxl_cusum_result {
 } fxl_cusum_result;
 
 /* Tabular CUSUM (Page 1954; Montgomery, Introduction to Statistical Quality
- * Control, ch. 9) over deviations x_i in the order given:
- *   C+_i = max(0, C+_(i-1) + x_i - (mu_0 + k)),
- *   C-_i = max(0, C-_(i-1) + (mu_0 - k) - x_i),  C+_0 = C-_0 = 0;
+ * Control, chapter on cumulative sum charts) over deviations x_i in the
+ * order given, each first limited to mu_0 +/- h/2 (winsorized, so that no
+ * single result - a gross set-up error - can carry a sum past h: at least
+ * three results pointing the same way are needed):
+ *   y_i = min(max(x_i, mu_0 - h/2), mu_0 + h/2)
+ *   C+_i = max(0, C+_(i-1) + y_i - (mu_0 + k)),
+ *   C-_i = max(0, C-_(i-1) + (mu_0 - k) - y_i),  C+_0 = C-_0 = 0;
  * signals at the first i where C+_i > h (upward) or C-_i > h (downward);
  * exactly h does not signal. The sums run to the end; the result keeps the
  * first signal. s_high / s_low (may be NULL) receive C+_i and C-_i for each

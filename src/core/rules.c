@@ -226,8 +226,11 @@ int fxl_cusum(fxl_cusum_result *out, double *s_high, double *s_low, const double
         if (!isfinite(dev_pct[i]))
             return FXL_EINVAL;
     for (i = 0; i < n; i++) {
-        hi = fmax(0.0, hi + dev_pct[i] - (p->target_pct + p->k_pct));
-        lo = fmax(0.0, lo + (p->target_pct - p->k_pct) - dev_pct[i]);
+        /* Winsorized at mu_0 +/- h/2: one outlier alone never signals. */
+        double y = fmin(fmax(dev_pct[i], p->target_pct - p->h_pct / 2.0),
+                        p->target_pct + p->h_pct / 2.0);
+        hi = fmax(0.0, hi + y - (p->target_pct + p->k_pct));
+        lo = fmax(0.0, lo + (p->target_pct - p->k_pct) - y);
         if (s_high)
             s_high[i] = hi;
         if (s_low)

@@ -382,18 +382,19 @@ static void test_review_drift_ignores_superseded_and_not_evaluable(void **state)
     int i;
 
     sql(f, "INSERT INTO settings (key, value) VALUES ('cusum_h_pct', '5')");
-    /* +3 %: C+ = 2, 4; a not-evaluable reading adds nothing; a superseded
-     * +30 % adds nothing. */
-    log_fraction(f, 1, 1, "2026-11-02T08:00:00Z", "3:1:3.0");
-    log_fraction(f, 1, 2, "2026-11-03T08:00:00Z", "3:1:3.0 1:1:NAN");
+    /* h = 5 %, k = 1 %, deviations limited to +/- 2.5 %: +2 % gives C+ = 1,
+     * 2; a not-evaluable reading adds nothing; a +30 % entry error adds only
+     * 1.5 (C+ = 3.5, no item); a fourth and fifth +2 % give 4.5, 5.5 > 5. */
+    log_fraction(f, 1, 1, "2026-11-02T08:00:00Z", "3:1:2.0");
+    log_fraction(f, 1, 2, "2026-11-03T08:00:00Z", "3:1:2.0 1:1:NAN");
     log_fraction(f, 1, 3, "2026-11-04T08:00:00Z", "3:1:30.0");
-    assert_int_equal(items(f, FXL_RULE_DRIFT), 1);   /* 4 + 29 > 5 */
-    /* Same with the +30 % superseded by an amendment: fresh fixture state is
-     * not available here, so check the series directly. */
+    assert_int_equal(items(f, FXL_RULE_DRIFT), 0);
+    /* The +30 % superseded by an amendment to +2 %: the series holds the
+     * amendment instead. */
     sql(f, "INSERT INTO measurements (fraction_id, field_id, detector_id, reading, reading_unit, temp_c, "
            "temp_entered, corrected_dose_cgy, deviation_pct, verdict, supersedes_id, amend_reason, "
-           "user_id, created_at) SELECT 103, 3, 1, 20.6, 'nC', 32, 0, 206, 3.0, 'within_tolerance', id, "
-           "'typed 26 for 20.6', 2, '2026-11-04T09:00:00Z' FROM measurements WHERE deviation_pct = 30");
+           "user_id, created_at) SELECT 103, 3, 1, 20.4, 'nC', 32, 0, 204, 2.0, 'within_tolerance', id, "
+           "'typed 26 for 20.4', 2, '2026-11-04T09:00:00Z' FROM measurements WHERE deviation_pct = 30");
     {
         fxl_drift_point *pts = NULL;
         char since[FXL_TIME_LEN];
@@ -402,9 +403,15 @@ static void test_review_drift_ignores_superseded_and_not_evaluable(void **state)
         assert_int_equal(n, 3);
         assert_string_equal(since, "2026-10-01T08:00:00Z");
         for (i = 0; i < 3; i++)
-            assert_true(fabs(pts[i].deviation_pct - 3.0) < 1e-9);
+            assert_true(fabs(pts[i].deviation_pct - 2.0) < 1e-9);
         free(pts);
     }
+    log_fraction(f, 1, 4, "2026-11-05T08:00:00Z", "3:1:2.0");
+    assert_int_equal(items(f, FXL_RULE_DRIFT), 0);   /* 1, 2, 3, 4 */
+    log_fraction(f, 1, 5, "2026-11-06T08:00:00Z", "3:1:2.0");
+    assert_int_equal(items(f, FXL_RULE_DRIFT), 0);   /* 5: exactly h */
+    log_fraction(f, 1, 6, "2026-11-07T08:00:00Z", "3:1:2.0");
+    assert_int_equal(items(f, FXL_RULE_DRIFT), 1);   /* 6 > 5 */
 }
 
 static void test_review_bad_setting_refuses_logging(void **state)

@@ -331,25 +331,49 @@ static void test_rules_cusum_upward_boundary(void **state)
 
 static void test_rules_cusum_downward_and_reset(void **state)
 {
-    /* C- = max(0, C-_(i-1) - k - x_i): -3 gives 2, 4, 6 -> signals at the
-     * third (6 > 5). A +4 between them resets the low side: 2, 0, 2, 4. */
-    double down[] = {-3.0, -3.0, -3.0};
-    double mixed[] = {-3.0, 4.0, -3.0, -3.0};
+    /* k = 1 %, h = 5 %, so deviations are limited to +/- 2.5 % first:
+     * C- = max(0, C-_(i-1) - k - y_i): -2 gives 1, 2, 3, 4, 5 (at h, no
+     * signal), 6 (signal at the sixth). A +2.5 between them resets the low
+     * side: -2, +2.5, -2, -2 gives C- = 1, 0, 1, 2 and C+ = 0, 1.5, 0, 0. */
+    double down[] = {-2.0, -2.0, -2.0, -2.0, -2.0, -2.0};
+    double mixed[] = {-2.0, 2.5, -2.0, -2.0};
+    double hi[6], lo[6];
+    fxl_cusum_result r;
+
+    (void)state;
+    assert_int_equal(fxl_cusum(&r, NULL, lo, down, 5, &default_cusum), 0);
+    assert_int_equal(r.signal, 0);
+    assert_near(r.s_low, 5.0, 1e-12);
+    assert_int_equal(fxl_cusum(&r, NULL, lo, down, 6, &default_cusum), 0);
+    assert_int_equal(r.signal, -1);
+    assert_int_equal(r.signal_index, 5);
+    assert_near(r.s_low, 6.0, 1e-12);
+    assert_non_null(strstr(r.text, "downward"));
+
+    assert_int_equal(fxl_cusum(&r, hi, lo, mixed, 4, &default_cusum), 0);
+    assert_int_equal(r.signal, 0);
+    assert_near(lo[1], 0.0, 1e-12);
+    assert_near(lo[3], 2.0, 1e-12);
+    assert_near(hi[1], 1.5, 1e-12);
+    assert_near(r.s_high, 0.0, 1e-12);
+}
+
+static void test_rules_cusum_single_outliers_are_limited(void **state)
+{
+    /* Winsorized at h/2 = 2.5 %: a -30 % entry error adds only 2.5 - 1 = 1.5
+     * to C-; even three in a row (4.5) stay below h = 5; a fourth signals. */
+    double x[] = {-30.0, -30.0, -30.0, -30.0};
     double lo[4];
     fxl_cusum_result r;
 
     (void)state;
-    assert_int_equal(fxl_cusum(&r, NULL, lo, down, 3, &default_cusum), 0);
-    assert_int_equal(r.signal, -1);
-    assert_int_equal(r.signal_index, 2);
-    assert_near(r.s_low, 6.0, 1e-12);
-    assert_non_null(strstr(r.text, "downward"));
-
-    assert_int_equal(fxl_cusum(&r, NULL, lo, mixed, 4, &default_cusum), 0);
+    assert_int_equal(fxl_cusum(&r, NULL, lo, x, 3, &default_cusum), 0);
     assert_int_equal(r.signal, 0);
-    assert_near(lo[1], 0.0, 1e-12);
-    assert_near(lo[3], 4.0, 1e-12);
-    assert_near(r.s_high, 0.0, 1e-12);   /* +4 gave C+ = 3, then -3 - 1 took it to 0 */
+    assert_near(lo[0], 1.5, 1e-12);
+    assert_near(r.s_low, 4.5, 1e-12);
+    assert_int_equal(fxl_cusum(&r, NULL, lo, x, 4, &default_cusum), 0);
+    assert_int_equal(r.signal, -1);
+    assert_int_equal(r.signal_index, 3);
 }
 
 static void test_rules_cusum_noise_within_k_never_signals(void **state)
@@ -384,10 +408,11 @@ static void test_rules_cusum_target_shifts_reference(void **state)
 
 static void test_rules_cusum_defaults_slow_drift(void **state)
 {
-    /* Shipped defaults (target 0, k = 1 %, h = 10 %): a detector reading 3 %
-     * high every time - each result within a 5 % tolerance - adds 2 % per
-     * measurement: C+ = 2, 4, 6, 8, 10 (exactly h: no signal), 12 (signal at
-     * the sixth). One outlier of +8 % alone (C+ = 7) does not signal. */
+    /* Shipped defaults (target 0, k = 1 %, h = 10 %, deviations limited to
+     * +/- 5 %): a detector reading 3 % high every time - each result within a
+     * 5 % tolerance - adds 2 % per measurement: C+ = 2, 4, 6, 8, 10 (exactly
+     * h: no signal), 12 (signal at the sixth). One outlier of +8 % alone
+     * (limited to 5: C+ = 4) does not signal. */
     fxl_cusum_params p = {FXL_CUSUM_TARGET_PCT_DEFAULT, FXL_CUSUM_K_PCT_DEFAULT,
                           FXL_CUSUM_H_PCT_DEFAULT};
     double x[] = {3.0, 3.0, 3.0, 3.0, 3.0, 3.0, -9.0};
@@ -399,15 +424,16 @@ static void test_rules_cusum_defaults_slow_drift(void **state)
     assert_int_equal(r.signal, 0);
     assert_near(r.s_high, 10.0, 1e-12);
     /* The signal keeps the value at the moment it fired, even when a later
-     * deviation brings the sum back down (12 - 9 - 1 = 2). */
+     * deviation brings the sum back down (-9 limited to -5: 12 - 5 - 1 = 6). */
     assert_int_equal(fxl_cusum(&r, NULL, NULL, x, 7, &p), 0);
     assert_int_equal(r.signal, 1);
     assert_int_equal(r.signal_index, 5);
     assert_near(r.signal_value, 12.0, 1e-12);
-    assert_near(r.s_high, 2.0, 1e-12);
+    assert_near(r.s_high, 6.0, 1e-12);
     assert_non_null(strstr(r.text, "12.00"));
     assert_int_equal(fxl_cusum(&r, NULL, NULL, one, 1, &p), 0);
     assert_int_equal(r.signal, 0);
+    assert_near(r.s_high, 4.0, 1e-12);
 }
 
 static void test_rules_cusum_refuses_bad_input(void **state)
@@ -467,6 +493,7 @@ int main(void)
         cmocka_unit_test(test_rules_dose_limit_boundary),
         cmocka_unit_test(test_rules_cusum_upward_boundary),
         cmocka_unit_test(test_rules_cusum_downward_and_reset),
+        cmocka_unit_test(test_rules_cusum_single_outliers_are_limited),
         cmocka_unit_test(test_rules_cusum_noise_within_k_never_signals),
         cmocka_unit_test(test_rules_cusum_target_shifts_reference),
         cmocka_unit_test(test_rules_cusum_defaults_slow_drift),
