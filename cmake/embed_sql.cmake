@@ -1,5 +1,7 @@
 # Turns the numbered files in sql/ into a C array of migrations.
-# Called by the build with -DOUT=<file.c> -DFILES=<list of .sql files>.
+# Called by the build with -DOUT=<file.c> -DSQL_DIR=<the sql/ directory>.
+file(GLOB FILES ${SQL_DIR}/[0-9][0-9][0-9]_*.sql)
+list(SORT FILES)
 set(body "/* generated from the sql/ migrations by cmake/embed_sql.cmake; do not edit */\n")
 string(APPEND body "#include \"store/migrations.h\"\n\n")
 set(table "")
