@@ -48,6 +48,13 @@ class AmendTest(ReviewCase):
         self.assertEqual(d["measurement"]["superseded_reason"], "typed 18.0 for 19.9")
         self.assertEqual(d["measurement"]["superseded_verdict"], "within_tolerance")
         self.assertEqual([t["superseded"] for t in d["trend"]], [True, False])
+        # ... and carries a signed event naming the new measurement, written in
+        # the amending transaction.
+        ev = d["events"][-1]
+        self.assertEqual((ev["kind"], ev["user"], ev["at"]), ("comment", "ther", "2026-11-02T08:30:00Z"))
+        self.assertEqual(ev["comment"], "superseded by measurement #%d: typed 18.0 for 19.9; new result: "
+                         "within tolerance, deviation -0.50 %%" % new["measurement_id"])
+        self.assertEqual(d["status"], "open")
         text = self.fx.ok("queue", "show", str(self.item), user="aud").stdout
         self.assertIn("SUPERSEDED by    #%d: typed 18.0 for 19.9" % new["measurement_id"], text)
         self.assertIn("(superseded)", text)
@@ -65,6 +72,14 @@ class AmendTest(ReviewCase):
         self.assertEqual(len(new_ids), 1)
         self.assertEqual(items[new_ids[0]]["severity"], 2)
         self.assertEqual(items[self.old]["superseded_by"], new_ids[0])
+        new_events = self.queue("show", str(items[new_ids[0]]["id"]))["events"]
+        self.assertEqual([e["kind"] for e in new_events], ["open", "comment"])
+        self.assertTrue(new_events[1]["comment"].startswith(
+            "supersedes measurement #%d (one item): read the wrong display; its item #%d stays for review"
+            % (self.old, self.item)), new_events[1]["comment"])
+        old_events = self.queue("show", str(self.item))["events"]
+        self.assertEqual([e["kind"] for e in old_events], ["open", "comment"])
+        self.assertIn("new result: outside tolerance, deviation +6.50 %", old_events[1]["comment"])
 
     def test_amend_refusals_write_nothing(self):
         self.assertFailsUnchanged("amend", str(self.old), "--reading", "19.9", user="ther",
