@@ -8,6 +8,7 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#include "fxl/core.h"
 #include "fxl/fxl.h"
 
 /* Accepted ranges, the same as the schema's checks (plus upper bounds the
@@ -27,8 +28,12 @@
 /* One measured point of a beam. */
 typedef struct fxl_point_spec {
     char point[9];                /* "entrance" or "exit" */
-    double expected_dose_cgy;     /* > 0 and <= FXL_PLAN_DOSE_CGY_MAX */
-    char expected_source[7];      /* "tps" or "manual" */
+    double expected_dose_cgy;     /* > 0 and <= FXL_PLAN_DOSE_CGY_MAX; NaN with
+                                     source "model" */
+    char expected_source[7];      /* "tps" or "manual"; or "model": the expected
+                                     dose is the independent model's value at
+                                     import, and stays missing (results not
+                                     evaluable) when the model gives none */
     double thickness_cm;          /* patient thickness along the beam; NaN if
                                      not given (required for exit) */
 } fxl_point_spec;
@@ -42,6 +47,9 @@ typedef struct fxl_field_spec {
     double mu;
     double ssd_cm;
     double x_cm, y_cm;            /* jaw sizes at the reference distance */
+    double shaped_eqsq_cm;        /* equivalent square of the field shaped by an
+                                     MLC or blocks at the SAD, for the model's
+                                     S_p; 0 or NaN: the jaws (x_cm x y_cm) */
     double wedge_deg;             /* 0 = open */
     int tray;                     /* 0 or 1 */
     double gantry_deg;            /* 0 <= g < 360 */
@@ -59,11 +67,17 @@ typedef struct fxl_plan_spec {
     int fractions;
     double dose_per_fraction_cgy; /* NaN when not given */
     char replaces[65];            /* label of the plan replaced, "" if none */
+    char origin[6];               /* plans.source: "json" or "dicom"; "" = json */
+    char origin_note[256];        /* for the audit row (file, SOP Instance UID); "" */
     size_t n_fields;
     fxl_field_spec *fields;       /* malloc'ed; freed by fxl_plan_spec_release */
 } fxl_plan_spec;
 
 void fxl_plan_spec_release(fxl_plan_spec *spec);
+
+/* Name and severity of the review item a cross-check disagreement opens. */
+#define FXL_RULE_MODEL_CROSSCHECK "model_crosscheck"
+#define FXL_RULE_MODEL_CROSSCHECK_SEVERITY 3      /* high: before any patient is measured */
 
 /* Imports a plan (physicist or admin): resolves the patient, every machine
  * and beam and the plan it replaces, re-checks every value, then writes the
@@ -71,7 +85,18 @@ void fxl_plan_spec_release(fxl_plan_spec *spec);
  * rows. Refuses (nothing written): unknown patient, machine or beam; a label
  * already used for the patient; a replaced plan that does not exist or was
  * already replaced; an exit point on an electron beam or with a thickness not
- * beyond the beam's d_max. *out_id (may be NULL) is the new plans.id. */
+ * beyond the beam's d_max.
+ * In the same transaction, for every measured point, the independent model
+ * (docs/expected-dose.md) is evaluated with the beam data in force now and
+ * stored with the field (model_dose_cgy, model_factors with every factor and
+ * the cross-check, model_beam_data_id): a point whose expected dose comes
+ * from the planning system ("tps") is cross-checked at setting
+ * model_crosscheck_pct (default FXL_MODEL_CROSSCHECK_PCT_DEFAULT) and a
+ * disagreement opens a review item (rule "model_crosscheck", severity 3) on
+ * the patient and field; a point with source "model" takes the model's value
+ * as its expected dose. A point the model cannot compute (electron beam, no
+ * beam data, a value outside a table) is stored as not checked with the
+ * reason, never as agreement. *out_id (may be NULL) is the new plans.id. */
 int fxl_plan_import(fxl_ctx *ctx, int64_t *out_id, const fxl_plan_spec *spec);
 
 /* ---- reading plans back ---------------------------------------------------- */
@@ -93,6 +118,17 @@ typedef struct fxl_field {
     double expected_dose_cgy;     /* NaN when not given */
     char expected_source[7];      /* "" when not given */
     char policy[7];
+    /* The independent model at import (docs/expected-dose.md). */
+    double model_dose_cgy;        /* NaN when the model gave no value */
+    int64_t model_beam_data_id;   /* beam data version used, 0 if none */
+    char model_factors[6144];     /* the stored JSON (every factor, reasons and the
+                                     cross-check); "" for a field imported before
+                                     the model existed */
+    char crosscheck[12];          /* "agrees", "disagrees", "not_checked"; "" as above */
+    double crosscheck_dev_pct;    /* (TPS - model)/model x 100; NaN unless compared */
+    double crosscheck_level_pct;  /* NaN unless compared */
+    char model_note[FXL_REASON_LEN]; /* the cross-check summary or why not checked */
+    int64_t crosscheck_item_id;   /* review item opened by a disagreement, 0 if none */
 } fxl_field;
 
 typedef struct fxl_plan {

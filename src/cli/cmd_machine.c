@@ -1,9 +1,11 @@
-/* fxledger machine: add treatment machines, add their beams, list both. */
+/* fxledger machine: add treatment machines, add their beams, load the beam
+ * data of the independent model, list and show them. */
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "cli/cli.h"
+#include "fxl/beam_data.h"
 #include "fxl/machines.h"
 
 static void add_opt_number(cJSON *o, const char *key, double v)
@@ -124,6 +126,80 @@ static int machine_beam(cli_env *env, int argc, char **argv)
     return CLI_EXIT_OK;
 }
 
+static cJSON *beam_data_json(const fxl_beam_data_info *d)
+{
+    cJSON *o = cJSON_CreateObject();
+
+    cJSON_AddNumberToObject(o, "id", (double)d->id);
+    cJSON_AddStringToObject(o, "machine", d->machine);
+    cJSON_AddStringToObject(o, "beam", d->beam);
+    cJSON_AddStringToObject(o, "effective_from", d->effective_from);
+    cJSON_AddBoolToObject(o, "in_force", d->in_force);
+    cJSON_AddStringToObject(o, "sha256", d->sha256);
+    if (d->source[0])
+        cJSON_AddStringToObject(o, "source", d->source);
+    else
+        cJSON_AddNullToObject(o, "source");
+    cJSON_AddStringToObject(o, "loaded_by", d->loaded_by);
+    cJSON_AddStringToObject(o, "loaded_at", d->created_at);
+    return o;
+}
+
+static int machine_beamdata(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {
+        {"effective", "DATE", "in force from this date, YYYY-MM-DD or a UTC time (default: now)", NULL},
+        {NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    fxl_beam_data_info d;
+    int npos, rc;
+
+    rc = cli_parse(env, "machine beamdata FILE [--effective DATE]",
+                   "Loads the beam data of the independent expected-dose model for one photon beam\n"
+                   "from a file in fxledger's beam-data format (docs/format-beam-data.md): output\n"
+                   "factors, wedge and tray factors, TMR or PDD tables. The machine and beam the\n"
+                   "file names must exist and agree with it. Each load is a new version in force\n"
+                   "from its effective date; earlier versions are kept, and every field keeps the\n"
+                   "version it was checked with at plan import. Physicists and admins only.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("machine beamdata needs the beam data FILE (see 'fxledger machine beamdata --help')");
+        return CLI_EXIT_USAGE;
+    }
+    if ((rc = fxl_beam_data_load(env->ctx, &d, pos[0], cli_get(opts, "effective"))) != 0)
+        return cli_fail(env, rc);
+    if (env->json)
+        return cli_print_json(beam_data_json(&d));
+    printf("loaded beam data #%lld for beam '%s' of machine '%s' (%g MV), effective from %s%s\n",
+           (long long)d.id, d.beam, d.machine, d.energy, d.effective_from,
+           d.in_force ? "" : " (not yet in force)");
+    printf("  sha256 %s\n", d.sha256);
+    if (d.source[0])
+        printf("  source: %s\n", d.source);
+    printf("  plans imported from now on get the model's expected dose and cross-check for this beam\n");
+    return CLI_EXIT_OK;
+}
+
+/* The version in force for a beam (NULL if none) and how many versions exist. */
+static const fxl_beam_data_info *in_force(const fxl_beam_data_info *list, size_t n, int64_t beam_id,
+                                          int *versions)
+{
+    const fxl_beam_data_info *found = NULL;
+    size_t i;
+
+    *versions = 0;
+    for (i = 0; i < n; i++) {
+        if (list[i].beam_id != beam_id)
+            continue;
+        (*versions)++;
+        if (list[i].in_force)
+            found = &list[i];
+    }
+    return found;
+}
+
 static void print_opt(const char *label, double v, const char *fmt_unit)
 {
     if (isnan(v))
@@ -137,15 +213,22 @@ static int machine_list(cli_env *env, int argc, char **argv)
     cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
     const char *pos[1];
     fxl_machine *list = NULL;
-    size_t n = 0, i, j;
-    int npos, rc;
+    fxl_beam_data_info *data = NULL;
+    size_t n = 0, n_data = 0, i, j;
+    int npos, rc, versions;
 
-    rc = cli_parse(env, "machine list", "Lists the treatment machines and their beams.", opts, argc,
-                   argv, pos, 0, &npos);
+    rc = cli_parse(env, "machine list",
+                   "Lists the treatment machines and their beams, with the beam data of the\n"
+                   "independent model in force for each beam (or none).",
+                   opts, argc, argv, pos, 0, &npos);
     if (rc != 0)
         return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
     if ((rc = fxl_machine_list(env->ctx, &list, &n)) != 0)
         return cli_fail(env, rc);
+    if ((rc = fxl_beam_data_list(env->ctx, &data, &n_data, NULL)) != 0) {
+        fxl_machine_list_free(list, n);
+        return cli_fail(env, rc);
+    }
     if (env->json) {
         cJSON *arr = cJSON_CreateArray();
         for (i = 0; i < n; i++) {
@@ -157,6 +240,7 @@ static int machine_list(cli_env *env, int argc, char **argv)
             beams = cJSON_AddArrayToObject(m, "beams");
             for (j = 0; j < list[i].n_beams; j++) {
                 const fxl_beam *b = &list[i].beams[j];
+                const fxl_beam_data_info *bd;
                 cJSON *o = cJSON_CreateObject();
                 cJSON_AddNumberToObject(o, "id", (double)b->id);
                 cJSON_AddStringToObject(o, "name", b->name);
@@ -166,11 +250,18 @@ static int machine_list(cli_env *env, int argc, char **argv)
                 add_opt_number(o, "dmax_cm", b->dmax_cm);
                 add_opt_number(o, "ref_dose_cgy_per_mu", b->ref_dose_cgy_per_mu);
                 add_opt_number(o, "norm_distance_cm", b->norm_distance_cm);
+                bd = in_force(data, n_data, b->id, &versions);
+                if (bd)
+                    cJSON_AddItemToObject(o, "beam_data", beam_data_json(bd));
+                else
+                    cJSON_AddNullToObject(o, "beam_data");
+                cJSON_AddNumberToObject(o, "beam_data_versions", versions);
                 cJSON_AddItemToArray(beams, o);
             }
             cJSON_AddItemToArray(arr, m);
         }
         fxl_machine_list_free(list, n);
+        free(data);
         return cli_print_json(arr);
     }
     if (n == 0)
@@ -181,25 +272,132 @@ static int machine_list(cli_env *env, int argc, char **argv)
             printf("  no beams yet\n");
         for (j = 0; j < list[i].n_beams; j++) {
             const fxl_beam *b = &list[i].beams[j];
+            const fxl_beam_data_info *bd;
             printf("  %-8s %-8s %5g %-3s", b->name, b->modality, b->energy,
                    strcmp(b->modality, "photon") == 0 ? "MV" : "MeV");
             print_opt("d_max", b->dmax_cm, "cm");
             print_opt(" dose/MU", b->ref_dose_cgy_per_mu, "cGy/MU");
             print_opt(" norm. distance", b->norm_distance_cm, "cm");
             printf("\n");
+            bd = in_force(data, n_data, b->id, &versions);
+            if (bd)
+                printf("           beam data #%lld in force since %.10s (%d version%s)\n", (long long)bd->id,
+                       bd->effective_from, versions, versions == 1 ? "" : "s");
+            else if (strcmp(b->modality, "photon") == 0)
+                printf("           beam data: none in force%s (no model expected dose or cross-check)\n",
+                       versions ? " yet" : "");
         }
     }
     fxl_machine_list_free(list, n);
+    free(data);
+    return CLI_EXIT_OK;
+}
+
+static int machine_show(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    fxl_machine *list = NULL;
+    const fxl_machine *m = NULL;
+    fxl_beam_data_info *data = NULL;
+    size_t n = 0, n_data = 0, i, j, k;
+    int npos, rc, versions;
+
+    rc = cli_parse(env, "machine show NAME",
+                   "Shows one machine, its beams and every version of their beam data (the one\n"
+                   "in force marked), with the SHA-256 of each file as loaded.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("machine show needs a machine NAME (see 'fxledger machine list')");
+        return CLI_EXIT_USAGE;
+    }
+    if ((rc = fxl_beam_data_list(env->ctx, &data, &n_data, pos[0])) != 0)
+        return cli_fail(env, rc);
+    if ((rc = fxl_machine_list(env->ctx, &list, &n)) != 0) {
+        free(data);
+        return cli_fail(env, rc);
+    }
+    for (i = 0; i < n; i++)
+        if (strcmp(list[i].name, pos[0]) == 0)
+            m = &list[i];
+    if (!m) {
+        cli_error("unknown machine '%s' (see 'fxledger machine list')", pos[0]);
+        fxl_machine_list_free(list, n);
+        free(data);
+        return CLI_EXIT_DATA;
+    }
+    if (env->json) {
+        cJSON *o = cJSON_CreateObject(), *beams = NULL;
+        cJSON_AddNumberToObject(o, "id", (double)m->id);
+        cJSON_AddStringToObject(o, "name", m->name);
+        cJSON_AddNumberToObject(o, "sad_cm", m->sad_cm);
+        cJSON_AddStringToObject(o, "created_at", m->created_at);
+        beams = cJSON_AddArrayToObject(o, "beams");
+        for (j = 0; j < m->n_beams; j++) {
+            const fxl_beam *b = &m->beams[j];
+            cJSON *bo = cJSON_CreateObject(), *va;
+            cJSON_AddNumberToObject(bo, "id", (double)b->id);
+            cJSON_AddStringToObject(bo, "name", b->name);
+            cJSON_AddStringToObject(bo, "modality", b->modality);
+            cJSON_AddNumberToObject(bo, "energy", b->energy);
+            cJSON_AddStringToObject(bo, "energy_unit", strcmp(b->modality, "photon") == 0 ? "MV" : "MeV");
+            add_opt_number(bo, "dmax_cm", b->dmax_cm);
+            add_opt_number(bo, "ref_dose_cgy_per_mu", b->ref_dose_cgy_per_mu);
+            add_opt_number(bo, "norm_distance_cm", b->norm_distance_cm);
+            va = cJSON_AddArrayToObject(bo, "beam_data");
+            for (k = 0; k < n_data; k++)
+                if (data[k].beam_id == b->id)
+                    cJSON_AddItemToArray(va, beam_data_json(&data[k]));
+            cJSON_AddItemToArray(beams, bo);
+        }
+        fxl_machine_list_free(list, n);
+        free(data);
+        return cli_print_json(o);
+    }
+    printf("machine %s (SAD %g cm), added %s\n", m->name, m->sad_cm, m->created_at);
+    if (m->n_beams == 0)
+        printf("  no beams yet\n");
+    for (j = 0; j < m->n_beams; j++) {
+        const fxl_beam *b = &m->beams[j];
+        printf("\n  beam %s: %s %g %s", b->name, b->modality, b->energy,
+               strcmp(b->modality, "photon") == 0 ? "MV" : "MeV");
+        print_opt("d_max", b->dmax_cm, "cm");
+        print_opt(" dose/MU", b->ref_dose_cgy_per_mu, "cGy/MU");
+        print_opt(" norm. distance", b->norm_distance_cm, "cm");
+        printf("\n");
+        in_force(data, n_data, b->id, &versions);
+        if (versions == 0)
+            printf("    beam data: none%s\n", strcmp(b->modality, "photon") == 0
+                                                 ? " (load with 'fxledger machine beamdata FILE')"
+                                                 : " (the model covers photon beams only)");
+        for (k = 0; k < n_data; k++) {
+            const fxl_beam_data_info *d = &data[k];
+            if (d->beam_id != b->id)
+                continue;
+            printf("    beam data #%-4lld effective %s%s, loaded by %s at %s\n", (long long)d->id,
+                   d->effective_from, d->in_force ? " IN FORCE" : "", d->loaded_by, d->created_at);
+            printf("      sha256 %s%s%s\n", d->sha256, d->source[0] ? "; source: " : "", d->source);
+        }
+    }
+    fxl_machine_list_free(list, n);
+    free(data);
     return CLI_EXIT_OK;
 }
 
 static const cli_sub subs[] = {
     {"add", machine_add, "add a treatment machine (physicist or admin)"},
     {"beam", machine_beam, "add a beam to a machine (physicist or admin)"},
+    {"beamdata", machine_beamdata, "load the beam data of the independent model for a beam (physicist or admin)"},
     {"list", machine_list, "list machines and their beams"},
+    {"show", machine_show, "show one machine, its beams and their beam data versions"},
     {NULL, NULL, NULL}};
 
 int cmd_machine(cli_env *env, int argc, char **argv)
 {
-    return cli_dispatch_sub(env, subs, "Treatment machines and their beams.", argc, argv);
+    return cli_dispatch_sub(env, subs,
+                            "Treatment machines, their beams and the beam data of the independent\n"
+                            "expected-dose model (docs/expected-dose.md).",
+                            argc, argv);
 }

@@ -1,13 +1,19 @@
 /* Plans and fields in the database: import (names resolved, everything
- * re-checked, one transaction with audit rows), read back one plan with its
- * fields, list plans. Plans and fields are never edited (schema triggers). */
+ * re-checked, the independent model evaluated and cross-checked, one
+ * transaction with audit rows and any review items), read back one plan with
+ * its fields, list plans. Plans and fields are never edited (schema
+ * triggers). */
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
+#include "fxl/beam_json.h"
+#include "fxl/beam_model.h"
 #include "fxl/plans.h"
 #include "store/audit.h"
+#include "store/model_store.h"
+#include "store/review_store.h"
 #include "store/stmt.h"
 
 static void copy(char *dst, size_t size, const char *src)
@@ -43,6 +49,9 @@ static int check_spec(fxl_ctx *ctx, const fxl_plan_spec *spec)
                         spec->label, spec->dose_per_fraction_cgy, FXL_PLAN_DOSE_CGY_MAX);
     if (spec->n_fields < 1 || !spec->fields)
         return fxl_fail(ctx, FXL_EINVAL, "plan '%s' needs at least one field", spec->label);
+    if (spec->origin[0] && !one_of(spec->origin, "json", "dicom", NULL, NULL))
+        return fxl_fail(ctx, FXL_EINVAL, "plan '%s' origin '%s' must be json or dicom", spec->label,
+                        spec->origin);
     for (i = 0; i < spec->n_fields; i++) {
         const fxl_field_spec *f = &spec->fields[i];
         if (!f->name[0] || !f->machine[0] || !f->beam[0])
@@ -65,6 +74,11 @@ static int check_spec(fxl_ctx *ctx, const fxl_plan_spec *spec)
         if (!in_range(f->x_cm, 0, 0, FXL_FIELD_JAW_CM_MAX, 1) || !in_range(f->y_cm, 0, 0, FXL_FIELD_JAW_CM_MAX, 1))
             return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' jaw sizes '%g x %g' must be > 0 and <= %g cm",
                             f->name, f->x_cm, f->y_cm, FXL_FIELD_JAW_CM_MAX);
+        if (!isnan(f->shaped_eqsq_cm) && f->shaped_eqsq_cm != 0 &&
+            !in_range(f->shaped_eqsq_cm, 0, 0, FXL_FIELD_JAW_CM_MAX, 1))
+            return fxl_fail(ctx, FXL_EINVAL,
+                            "plan field '%s' shaped field equivalent square '%g' must be > 0 and <= %g cm",
+                            f->name, f->shaped_eqsq_cm, FXL_FIELD_JAW_CM_MAX);
         if (!in_range(f->wedge_deg, 0, 1, FXL_FIELD_WEDGE_DEG_MAX, 1))
             return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' wedge_deg '%g' must be >= 0 and <= %g degrees",
                             f->name, f->wedge_deg, FXL_FIELD_WEDGE_DEG_MAX);
@@ -85,13 +99,21 @@ static int check_spec(fxl_ctx *ctx, const fxl_plan_spec *spec)
             if (!one_of(p->point, "entrance", "exit", NULL, NULL))
                 return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' point '%s' must be entrance or exit",
                                 f->name, p->point);
-            if (!in_range(p->expected_dose_cgy, 0, 0, FXL_PLAN_DOSE_CGY_MAX, 1))
+            if (!one_of(p->expected_source, "tps", "manual", "model", NULL))
+                return fxl_fail(ctx, FXL_EINVAL,
+                                "plan field '%s' %s point expected_source '%s' must be tps, manual or model",
+                                f->name, p->point, p->expected_source);
+            /* "model": the value is the model's, computed at import. */
+            if (strcmp(p->expected_source, "model") == 0 && !isnan(p->expected_dose_cgy))
+                return fxl_fail(ctx, FXL_EINVAL,
+                                "plan field '%s' %s point: an expected dose from the model is computed at "
+                                "import and cannot be given",
+                                f->name, p->point);
+            if (strcmp(p->expected_source, "model") != 0 &&
+                !in_range(p->expected_dose_cgy, 0, 0, FXL_PLAN_DOSE_CGY_MAX, 1))
                 return fxl_fail(ctx, FXL_EINVAL,
                                 "plan field '%s' %s point expected_dose_cgy '%g' must be > 0 and <= %g cGy",
                                 f->name, p->point, p->expected_dose_cgy, FXL_PLAN_DOSE_CGY_MAX);
-            if (!one_of(p->expected_source, "tps", "manual", NULL, NULL))
-                return fxl_fail(ctx, FXL_EINVAL, "plan field '%s' %s point expected_source '%s' must be tps or manual",
-                                f->name, p->point, p->expected_source);
             if (strcmp(p->point, "exit") == 0 && isnan(p->thickness_cm))
                 return fxl_fail(ctx, FXL_EINVAL,
                                 "plan field '%s' exit point needs thickness_cm (> 0 and <= %g cm)", f->name,
@@ -253,7 +275,116 @@ cleanup:
     return rc;
 }
 
-static cJSON *field_audit(const fxl_field_spec *f, const fxl_point_spec *p, int64_t plan_id)
+/* ---- the independent model at import -------------------------------------- */
+
+/* What the import stores for one measured point besides the plan's values. */
+typedef struct point_eval {
+    fxl_model_result model;
+    int64_t beam_data_id;         /* 0: none */
+    fxl_crosscheck xcheck;
+    double expected_cgy;          /* as stored; NaN = missing */
+    const char *expected_source;  /* as stored; NULL = missing */
+    char *factors;                /* model_factors JSON, malloc'ed */
+} point_eval;
+
+static void add_num_or_null(cJSON *o, const char *key, double v)
+{
+    if (isfinite(v))
+        cJSON_AddNumberToObject(o, key, v);
+    else
+        cJSON_AddNullToObject(o, key);
+}
+
+/* Evaluates the model for point p of field f (beam b) with the beam data in
+ * force at `now`, cross-checks a planning-system value at level_pct, and
+ * builds the JSON stored in fields.model_factors. */
+static int evaluate_point(fxl_ctx *ctx, point_eval *ev, const fxl_field_spec *f, const fxl_point_spec *p,
+                          int64_t beam_id, const char *modality, double level_pct, const char *now)
+{
+    fxl_model_input in;
+    cJSON *o = NULL, *xc;
+    char *text = NULL;
+    int rc;
+
+    memset(ev, 0, sizeof *ev);
+    fxl_model_input_init(&in);
+    in.point = strcmp(p->point, "exit") == 0 ? FXL_MODEL_EXIT : FXL_MODEL_ENTRANCE;
+    in.setup = strcmp(f->setup, "isocentric") == 0 ? FXL_MODEL_SETUP_ISO : FXL_MODEL_SETUP_SSD;
+    in.mu = f->mu;
+    in.ssd_cm = f->ssd_cm;
+    in.x_cm = f->x_cm;
+    in.y_cm = f->y_cm;
+    in.field_eqsq_cm = f->shaped_eqsq_cm > 0 ? f->shaped_eqsq_cm : NAN;
+    in.wedge_deg = f->wedge_deg;
+    in.tray = f->tray;
+    in.thickness_cm = p->thickness_cm;
+    if ((rc = fxl_model_eval_field(ctx, &ev->model, &ev->beam_data_id, beam_id, f->machine, f->beam,
+                                   modality, &in, now)) != 0)
+        return rc;
+
+    if (strcmp(p->expected_source, "tps") == 0) {
+        if (fxl_model_crosscheck(&ev->xcheck, p->expected_dose_cgy, &ev->model, level_pct) != 0)
+            return fxl_fail(ctx, FXL_EINVAL, "internal: cross-check level %g %%", level_pct);
+    } else {
+        /* Only a planning-system value is cross-checked; anything else is
+         * "not checked", never agreement. */
+        memset(&ev->xcheck, 0, sizeof ev->xcheck);
+        ev->xcheck.outcome = FXL_XCHECK_NOT_CHECKED;
+        ev->xcheck.tps_cgy = NAN;
+        ev->xcheck.model_cgy = ev->model.computed ? ev->model.dose_cgy : NAN;
+        ev->xcheck.deviation_pct = NAN;
+        ev->xcheck.level_pct = level_pct;
+        if (strcmp(p->expected_source, "manual") == 0)
+            snprintf(ev->xcheck.summary, sizeof ev->xcheck.summary,
+                     "not cross-checked: the expected dose is a hand calculation, not a planning-system value");
+        else if (ev->model.computed)
+            snprintf(ev->xcheck.summary, sizeof ev->xcheck.summary,
+                     "not cross-checked: the expected dose is the model's own value");
+        else
+            snprintf(ev->xcheck.summary, sizeof ev->xcheck.summary,
+                     "no expected dose: %.150s; results will be not evaluable",
+                     ev->model.reasons.n ? ev->model.reasons.text[0] : "the model gave no value");
+    }
+    if (strcmp(p->expected_source, "model") == 0) {
+        ev->expected_cgy = ev->model.computed ? ev->model.dose_cgy : NAN;
+        ev->expected_source = ev->model.computed ? "model" : NULL;
+        if (ev->model.computed && !(ev->expected_cgy > 0 && ev->expected_cgy <= FXL_PLAN_DOSE_CGY_MAX))
+            return fxl_fail(ctx, FXL_EINVAL,
+                            "plan field '%s' %s point: the model's expected dose %.1f cGy is outside > 0 "
+                            "and <= %g cGy",
+                            f->name, p->point, ev->expected_cgy, FXL_PLAN_DOSE_CGY_MAX);
+    } else {
+        ev->expected_cgy = p->expected_dose_cgy;
+        ev->expected_source = p->expected_source;
+    }
+
+    if (fxl_model_result_json(&text, &ev->model) != 0 || !(o = cJSON_Parse(text))) {
+        rc = fxl_fail(ctx, FXL_EIO, "out of memory storing the model result");
+        goto cleanup;
+    }
+    if (ev->beam_data_id)
+        cJSON_AddNumberToObject(o, "beam_data_id", (double)ev->beam_data_id);
+    else
+        cJSON_AddNullToObject(o, "beam_data_id");
+    xc = cJSON_AddObjectToObject(o, "crosscheck");
+    cJSON_AddStringToObject(xc, "outcome", fxl_xcheck_name(ev->xcheck.outcome));
+    add_num_or_null(xc, "tps_cgy", ev->xcheck.tps_cgy);
+    add_num_or_null(xc, "model_cgy", ev->xcheck.model_cgy);
+    add_num_or_null(xc, "deviation_pct", ev->xcheck.deviation_pct);
+    add_num_or_null(xc, "level_pct", ev->xcheck.level_pct);
+    cJSON_AddStringToObject(xc, "summary", ev->xcheck.summary);
+    if (!(ev->factors = cJSON_PrintUnformatted(o)))
+        rc = fxl_fail(ctx, FXL_EIO, "out of memory storing the model result");
+    else
+        rc = 0;
+cleanup:
+    cJSON_Delete(o);
+    free(text);
+    return rc;
+}
+
+static cJSON *field_audit(const fxl_field_spec *f, const fxl_point_spec *p, int64_t plan_id,
+                          const point_eval *ev)
 {
     cJSON *o = cJSON_CreateObject();
 
@@ -275,10 +406,44 @@ static cJSON *field_audit(const fxl_field_spec *f, const fxl_point_spec *p, int6
         cJSON_AddNullToObject(o, "thickness_cm");
     else
         cJSON_AddNumberToObject(o, "thickness_cm", p->thickness_cm);
-    cJSON_AddNumberToObject(o, "expected_dose_cgy", p->expected_dose_cgy);
-    cJSON_AddStringToObject(o, "expected_source", p->expected_source);
+    add_num_or_null(o, "expected_dose_cgy", ev->expected_cgy);
+    if (ev->expected_source)
+        cJSON_AddStringToObject(o, "expected_source", ev->expected_source);
+    else
+        cJSON_AddNullToObject(o, "expected_source");
     cJSON_AddStringToObject(o, "policy", f->policy);
+    if (f->shaped_eqsq_cm > 0)
+        cJSON_AddNumberToObject(o, "shaped_eqsq_cm", f->shaped_eqsq_cm);
+    add_num_or_null(o, "model_dose_cgy", ev->model.computed ? ev->model.dose_cgy : NAN);
+    if (ev->beam_data_id)
+        cJSON_AddNumberToObject(o, "model_beam_data_id", (double)ev->beam_data_id);
+    else
+        cJSON_AddNullToObject(o, "model_beam_data_id");
+    cJSON_AddStringToObject(o, "crosscheck", fxl_xcheck_name(ev->xcheck.outcome));
+    add_num_or_null(o, "crosscheck_deviation_pct", ev->xcheck.deviation_pct);
     return o;
+}
+
+/* Opens the review item of a disagreement, in the import transaction. */
+static int open_crosscheck_item(fxl_ctx *ctx, int64_t patient_id, int64_t field_id, const char *label,
+                                const fxl_field_spec *f, const fxl_point_spec *p, const point_eval *ev)
+{
+    fxl_review_open_spec item;
+    char summary[512], key[48];
+
+    snprintf(summary, sizeof summary,
+             "plan '%s' field '%s' %s, at import: %s; check the plan transfer (MU, wedge, SSD, energy, "
+             "field size) before the first fraction",
+             label, f->name, p->point, ev->xcheck.summary);
+    snprintf(key, sizeof key, "field:%lld", (long long)field_id);
+    memset(&item, 0, sizeof item);
+    item.rule = FXL_RULE_MODEL_CROSSCHECK;
+    item.rule_key = key;
+    item.severity = FXL_RULE_MODEL_CROSSCHECK_SEVERITY;
+    item.patient_id = patient_id;
+    item.field_id = field_id;
+    item.summary = summary;
+    return fxl_review_open_item(ctx, NULL, &item);
 }
 
 int fxl_plan_import(fxl_ctx *ctx, int64_t *out_id, const fxl_plan_spec *spec)
@@ -286,14 +451,19 @@ int fxl_plan_import(fxl_ctx *ctx, int64_t *out_id, const fxl_plan_spec *spec)
     fxl_stmt ins = FXL_STMT_INIT;
     beam_ref *beams = NULL;
     cJSON *audit = NULL;
+    point_eval ev;
     char now[FXL_TIME_LEN];
     int64_t patient_id = 0, replaced_id = 0, existing = 0, plan_id = 0, field_id;
+    double level_pct = FXL_MODEL_CROSSCHECK_PCT_DEFAULT;
     size_t i, j;
     int rc;
 
+    memset(&ev, 0, sizeof ev);
     if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "importing a plan")) != 0)
         return rc;
     if ((rc = check_spec(ctx, spec)) != 0)
+        return rc;
+    if ((rc = fxl_model_crosscheck_level(ctx, &level_pct)) != 0)
         return rc;
     if (!(beams = calloc(spec->n_fields, sizeof *beams)))
         return fxl_fail(ctx, FXL_EIO, "out of memory importing a plan");
@@ -322,7 +492,7 @@ int fxl_plan_import(fxl_ctx *ctx, int64_t *out_id, const fxl_plan_spec *spec)
                                "INSERT INTO plans (patient_id, label, site, technique, fractions, "
                                "dose_per_fraction_cgy, replaces_plan_id, source, user_id, created_at) "
                                "VALUES (:patient, :label, :site, :technique, :fractions, :dose, "
-                               ":replaces, 'json', :user, :now)")) != 0)
+                               ":replaces, :origin, :user, :now)")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&ins, ":patient", patient_id);
     fxl_stmt_bind_text(&ins, ":label", spec->label);
@@ -334,6 +504,7 @@ int fxl_plan_import(fxl_ctx *ctx, int64_t *out_id, const fxl_plan_spec *spec)
         fxl_stmt_bind_int(&ins, ":replaces", replaced_id);
     else
         fxl_stmt_bind_null(&ins, ":replaces");
+    fxl_stmt_bind_text(&ins, ":origin", spec->origin[0] ? spec->origin : "json");
     fxl_stmt_bind_int(&ins, ":user", fxl_user_id(ctx));
     fxl_stmt_bind_text(&ins, ":now", now);
     if ((rc = fxl_stmt_exec(&ins)) != 0)
@@ -358,21 +529,30 @@ int fxl_plan_import(fxl_ctx *ctx, int64_t *out_id, const fxl_plan_spec *spec)
     for (i = 0, j = 0; i < spec->n_fields; i++)
         j += spec->fields[i].n_points;
     cJSON_AddNumberToObject(audit, "field_rows", (double)j);
+    cJSON_AddStringToObject(audit, "source", spec->origin[0] ? spec->origin : "json");
+    if (spec->origin_note[0])
+        cJSON_AddStringToObject(audit, "source_note", spec->origin_note);
+    cJSON_AddNumberToObject(audit, "model_crosscheck_pct", level_pct);
     if ((rc = fxl_audit_append(ctx, replaced_id ? "replace" : "import", "plans", plan_id, audit)) != 0)
         goto cleanup;
 
     if ((rc = fxl_stmt_prepare(&ins, ctx,
                                "INSERT INTO fields (plan_id, name, beam_id, point, setup, mu, ssd_cm, x_cm, "
                                "y_cm, wedge_deg, tray, gantry_deg, incidence_deg, thickness_cm, "
-                               "expected_dose_cgy, expected_source, policy) VALUES (:plan, :name, :beam, "
+                               "expected_dose_cgy, expected_source, policy, model_dose_cgy, model_factors, "
+                               "model_beam_data_id) VALUES (:plan, :name, :beam, "
                                ":point, :setup, :mu, :ssd, :x, :y, :wedge, :tray, :gantry, :incidence, "
-                               ":thickness, :expected, :source, :policy)")) != 0)
+                               ":thickness, :expected, :source, :policy, :model, :factors, :bdata)")) != 0)
         goto cleanup;
     for (i = 0; i < spec->n_fields; i++) {
         const fxl_field_spec *f = &spec->fields[i];
         for (j = 0; j < f->n_points; j++) {
             const fxl_point_spec *p = &f->points[j];
             cJSON *row;
+            free(ev.factors);
+            ev.factors = NULL;
+            if ((rc = evaluate_point(ctx, &ev, f, p, beams[i].id, beams[i].modality, level_pct, now)) != 0)
+                goto cleanup;
             fxl_stmt_reset(&ins);
             fxl_stmt_bind_int(&ins, ":plan", plan_id);
             fxl_stmt_bind_text(&ins, ":name", f->name);
@@ -388,16 +568,25 @@ int fxl_plan_import(fxl_ctx *ctx, int64_t *out_id, const fxl_plan_spec *spec)
             fxl_stmt_bind_double(&ins, ":gantry", f->gantry_deg);
             fxl_stmt_bind_double(&ins, ":incidence", f->incidence_deg);
             fxl_stmt_bind_double_opt(&ins, ":thickness", p->thickness_cm);
-            fxl_stmt_bind_double(&ins, ":expected", p->expected_dose_cgy);
-            fxl_stmt_bind_text(&ins, ":source", p->expected_source);
+            fxl_stmt_bind_double_opt(&ins, ":expected", ev.expected_cgy);
+            fxl_stmt_bind_text(&ins, ":source", ev.expected_source);
             fxl_stmt_bind_text(&ins, ":policy", f->policy);
+            fxl_stmt_bind_double_opt(&ins, ":model", ev.model.computed ? ev.model.dose_cgy : NAN);
+            fxl_stmt_bind_text(&ins, ":factors", ev.factors);
+            if (ev.beam_data_id)
+                fxl_stmt_bind_int(&ins, ":bdata", ev.beam_data_id);
+            else
+                fxl_stmt_bind_null(&ins, ":bdata");
             if ((rc = fxl_stmt_exec(&ins)) != 0)
                 goto cleanup;
             field_id = sqlite3_last_insert_rowid(ctx->db);
-            row = field_audit(f, p, plan_id);
+            row = field_audit(f, p, plan_id, &ev);
             rc = fxl_audit_append(ctx, "create", "fields", field_id, row);
             cJSON_Delete(row);
             if (rc != 0)
+                goto cleanup;
+            if (ev.xcheck.outcome == FXL_XCHECK_DISAGREES &&
+                (rc = open_crosscheck_item(ctx, patient_id, field_id, spec->label, f, p, &ev)) != 0)
                 goto cleanup;
         }
     }
@@ -410,6 +599,7 @@ cleanup:
         fxl_rollback(ctx);
     fxl_stmt_finalize(&ins);
     cJSON_Delete(audit);
+    free(ev.factors);
     free(beams);
     return rc;
 }
@@ -449,6 +639,36 @@ static void read_plan(fxl_stmt *s, fxl_plan *p)
     p->n_fields = (size_t)fxl_stmt_int(s, 16);
 }
 
+static double json_num(const cJSON *o, const char *key)
+{
+    const cJSON *v = cJSON_GetObjectItemCaseSensitive(o, key);
+    return cJSON_IsNumber(v) ? v->valuedouble : NAN;
+}
+
+/* The cross-check as stored with the field (model_factors.crosscheck). */
+static void read_crosscheck(fxl_field *f)
+{
+    cJSON *o, *xc, *v;
+
+    f->crosscheck[0] = '\0';
+    f->model_note[0] = '\0';
+    f->crosscheck_dev_pct = f->crosscheck_level_pct = NAN;
+    if (!f->model_factors[0] || !(o = cJSON_Parse(f->model_factors)))
+        return;
+    xc = cJSON_GetObjectItemCaseSensitive(o, "crosscheck");
+    if (cJSON_IsObject(xc)) {
+        v = cJSON_GetObjectItemCaseSensitive(xc, "outcome");
+        if (cJSON_IsString(v))
+            copy(f->crosscheck, sizeof f->crosscheck, v->valuestring);
+        v = cJSON_GetObjectItemCaseSensitive(xc, "summary");
+        if (cJSON_IsString(v))
+            copy(f->model_note, sizeof f->model_note, v->valuestring);
+        f->crosscheck_dev_pct = json_num(xc, "deviation_pct");
+        f->crosscheck_level_pct = json_num(xc, "level_pct");
+    }
+    cJSON_Delete(o);
+}
+
 static int load_fields(fxl_ctx *ctx, fxl_plan *plan)
 {
     fxl_stmt s = FXL_STMT_INIT;
@@ -464,11 +684,15 @@ static int load_fields(fxl_ctx *ctx, fxl_plan *plan)
                                "SELECT f.id, f.name, f.beam_id, m.name, b.name, b.modality, b.energy, "
                                "f.point, f.setup, f.mu, f.ssd_cm, f.x_cm, f.y_cm, f.wedge_deg, f.tray, "
                                "f.gantry_deg, f.incidence_deg, f.thickness_cm, f.expected_dose_cgy, "
-                               "coalesce(f.expected_source, ''), f.policy FROM fields f "
+                               "coalesce(f.expected_source, ''), f.policy, f.model_dose_cgy, "
+                               "coalesce(f.model_beam_data_id, 0), coalesce(f.model_factors, ''), "
+                               "coalesce((SELECT max(r.id) FROM review_items r WHERE r.field_id = f.id "
+                               "          AND r.rule = :rule), 0) FROM fields f "
                                "JOIN beams b ON b.id = f.beam_id JOIN machines m ON m.id = b.machine_id "
                                "WHERE f.plan_id = :plan ORDER BY f.id")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&s, ":plan", plan->id);
+    fxl_stmt_bind_text(&s, ":rule", FXL_RULE_MODEL_CROSSCHECK);
     while (i < plan->n_fields && (rc = fxl_stmt_step(&s)) == 1) {
         fxl_field *f = &plan->fields[i++];
         f->id = fxl_stmt_int(&s, 0);
@@ -492,6 +716,11 @@ static int load_fields(fxl_ctx *ctx, fxl_plan *plan)
         f->expected_dose_cgy = fxl_stmt_double_opt(&s, 18);
         copy(f->expected_source, sizeof f->expected_source, fxl_stmt_text(&s, 19));
         copy(f->policy, sizeof f->policy, fxl_stmt_text(&s, 20));
+        f->model_dose_cgy = fxl_stmt_double_opt(&s, 21);
+        f->model_beam_data_id = fxl_stmt_int(&s, 22);
+        copy(f->model_factors, sizeof f->model_factors, fxl_stmt_text(&s, 23));
+        f->crosscheck_item_id = fxl_stmt_int(&s, 24);
+        read_crosscheck(f);
     }
     plan->n_fields = i;
     rc = rc < 0 ? rc : 0;

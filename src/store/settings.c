@@ -7,6 +7,7 @@
 #include <string.h>
 #include <sys/stat.h>
 
+#include "fxl/beam_model.h"
 #include "fxl/review.h"
 #include "fxl/rules.h"
 #include "fxl/settings.h"
@@ -50,6 +51,9 @@ static const setting_rule rules[] = {
       STR(FXL_DISPOSITION_MAX) " characters", FXL_DISPOSITIONS_DEFAULT}, KIND_DISPOSITIONS, 0, 4000},
     {{"implausible_pct", "|deviation| above this is flagged as a probable entry error",
       "5 to 100 %", "50"}, KIND_NUMBER, 5, 100},
+    {{"model_crosscheck_pct", "disagreement between a planning-system expected dose and the "
+      "independent model that opens a review item at plan import", "0.1 to 50 %",
+      STR(FXL_MODEL_CROSSCHECK_PCT_DEFAULT)}, KIND_NUMBER, 0.1, 50},
     {{"skin_temp_c", "skin temperature used when none is entered", "10 to 45 degC", "32"},
      KIND_NUMBER, 10, 45},
     {{"timezone", "department time zone for monthly reports", "UTC or an IANA zone name such as Europe/Paris",
