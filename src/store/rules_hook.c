@@ -377,7 +377,11 @@ static int rule_dose_limit(fxl_ctx *ctx, const hook_detector *d)
             "                 JOIN fractions fr ON fr.id = m.fraction_id "
             "                 WHERE m.detector_id = :d AND m.corrected_dose_cgy IS NOT NULL "
             "                 AND NOT EXISTS (SELECT 1 FROM measurements n WHERE n.supersedes_id = m.id) "
-            "                 AND (c.calibrated_at IS NULL OR fr.treated_at > c.calibrated_at)), 0) "
+            "                 AND (c.calibrated_at IS NULL OR fr.treated_at > c.calibrated_at) "
+            /* Same rows, found through measurements_by_detector: a row is
+             * written at or after its treatment time (record refuses a
+             * treatment time in the future), so created_at >= treated_at. */
+            "                 AND m.created_at > coalesce(c.calibrated_at, '')), 0) "
             "FROM (SELECT 1) "
             "LEFT JOIN calibrations c ON c.id = (SELECT c2.id FROM calibrations c2 "
             "     WHERE c2.detector_id = :d ORDER BY c2.calibrated_at DESC, c2.id DESC LIMIT 1)")) != 0)
@@ -456,6 +460,7 @@ int fxl_drift_series(fxl_ctx *ctx, fxl_drift_point **out, size_t *n, char since[
             "  AND m.verdict IN ('within_tolerance', 'outside_tolerance', 'outside_action') "
             "  AND NOT EXISTS (SELECT 1 FROM measurements n WHERE n.supersedes_id = m.id) "
             "  AND (:since = '' OR fr.treated_at > :since) "
+            "  AND m.created_at > :since "  /* created_at >= treated_at: the index finds the rows */
             "ORDER BY fr.treated_at, m.id")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&s, ":d", detector_id);
