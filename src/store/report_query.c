@@ -255,11 +255,18 @@ int fxl_rq_corrections_each(fxl_ctx *ctx, const fxl_rq_scope *scope, fxl_rq_corr
     int rc;
 
     rc = fxl_stmt_prepare(&s, ctx,
-        "WITH used AS (SELECT DISTINCT m.detector_id, fl.beam_id "
+        /* Two branches, not one OR across two tables: each finds its rows
+         * through an index (plans by patient, fractions_by_time) instead of
+         * reading every measurement of the database. */
+        "WITH used AS (SELECT m.detector_id, fl.beam_id "
         "    FROM measurements m JOIN fractions f ON f.id = m.fraction_id "
         "    JOIN fields fl ON fl.id = m.field_id JOIN plans p ON p.id = f.plan_id "
-        "    WHERE (:patient > 0 AND p.patient_id = :patient AND (:plan <= 0 OR p.id = :plan)) "
-        "       OR (:patient <= 0 AND f.treated_at >= :from AND f.treated_at < :to)), "
+        "    WHERE :patient > 0 AND p.patient_id = :patient AND (:plan <= 0 OR p.id = :plan) "
+        "  UNION "
+        "  SELECT m.detector_id, fl.beam_id "
+        "    FROM measurements m JOIN fractions f ON f.id = m.fraction_id "
+        "    JOIN fields fl ON fl.id = m.field_id "
+        "    WHERE :patient <= 0 AND f.treated_at >= :from AND f.treated_at < :to), "
         "latest AS (SELECT ct.id FROM correction_tables ct JOIN used u "
         "    ON u.detector_id = ct.detector_id AND u.beam_id = ct.beam_id "
         "    WHERE ct.effective_from <= :asof AND NOT EXISTS (SELECT 1 FROM correction_tables c2 "
@@ -575,9 +582,13 @@ int fxl_rq_detectors_near_limit_each(fxl_ctx *ctx, const char *as_of, double war
     fxl_rq_detector_dose d;
     int rc;
 
-    /* The accumulated dose is a correlated subquery (SQLite has no LATERAL). */
+    /* The accumulated dose is a correlated subquery (SQLite has no LATERAL),
+     * computed once per detector (MATERIALIZED: a flattened subquery would
+     * repeat it in WHERE and ORDER BY). m.created_at > the calibration bounds
+     * the detector's index range to the rows since then: a row is written at
+     * or after its treatment time, so created_at >= treated_at. */
     rc = fxl_stmt_prepare(&s, ctx,
-        "SELECT label, serial, kind, status, last_cal, acc, lim FROM ("
+        "WITH t AS MATERIALIZED ("
         "  SELECT d.label, d.serial, d.kind, d.dose_limit_cgy AS lim, "
         "         " STATUS_AT("d.id") " AS status, "
         "         coalesce((SELECT max(c.calibrated_at) FROM calibrations c "
@@ -585,10 +596,13 @@ int fxl_rq_detectors_near_limit_each(fxl_ctx *ctx, const char *as_of, double war
         "         coalesce((SELECT sum(m.corrected_dose_cgy) FROM measurements m "
         "           JOIN fractions f ON f.id = m.fraction_id "
         "           WHERE m.detector_id = d.id AND " CURRENT_M
+        "             AND m.created_at > coalesce((SELECT max(c.calibrated_at) "
+        "               FROM calibrations c WHERE c.detector_id = d.id AND c.calibrated_at <= :asof), '') "
         "             AND f.treated_at <= :asof AND f.treated_at > coalesce((SELECT max(c.calibrated_at) "
         "               FROM calibrations c WHERE c.detector_id = d.id AND c.calibrated_at <= :asof), '')), 0) "
         "           AS acc "
         "  FROM detectors d WHERE d.dose_limit_cgy IS NOT NULL) "
+        "SELECT label, serial, kind, status, last_cal, acc, lim FROM t "
         "WHERE acc >= lim * :warn ORDER BY acc / lim DESC, serial");
     if (rc != 0)
         goto cleanup;
