@@ -6,6 +6,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/midline_view.h"
 #include "fxl/record.h"
 
 static void num(char *buf, size_t size, double v, const char *fmt, const char *unit)
@@ -91,16 +92,20 @@ int cmd_history(cli_env *env, int argc, char **argv)
         {NULL, NULL, NULL, NULL}};
     fxl_history_query q;
     fxl_history_row *rows = NULL;
+    fxl_midline_pair *pairs = NULL;
     const char *pos[1];
-    size_t n = 0, i;
+    size_t n = 0, n_pairs = 0, i;
     int npos, rc;
 
     rc = cli_parse(env, "history --patient MRN [--plan LABEL] [--field NAME]",
                    "Lists every logged measurement of a patient, oldest first: treatment date,\n"
                    "fraction, field, point, detector, reading, corrected and expected dose,\n"
                    "deviation and verdict. A mistyped reading stays listed, marked 'superseded\n"
-                   "by #id'; its amendment is marked 'amends #id'. --json adds every factor,\n"
-                   "the levels used and the reasons.",
+                   "by #id'; its amendment is marked 'amends #id'. When a field has a current\n"
+                   "entrance and exit reading in one fraction, the midline dose estimated from\n"
+                   "the two corrected doses follows the table (method named). --json adds every\n"
+                   "factor, the levels used and the reasons, and on both rows of a pair its\n"
+                   "midline estimate under 'midline' (null on other rows).",
                    opts, argc, argv, pos, 0, &npos);
     if (rc != 0)
         return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
@@ -114,12 +119,31 @@ int cmd_history(cli_env *env, int argc, char **argv)
     }
     if ((rc = fxl_history_list(env->ctx, &rows, &n, &q)) != 0)
         return cli_fail(env, rc);
+    if (fxl_history_midlines(&pairs, &n_pairs, rows, n) != 0) {
+        free(rows);
+        cli_error("out of memory pairing entrance and exit readings");
+        return CLI_EXIT_DB;
+    }
 
     if (env->json) {
         cJSON *arr = cJSON_CreateArray();
-        for (i = 0; i < n; i++)
-            cJSON_AddItemToArray(arr, row_json(&rows[i]));
+        for (i = 0; i < n; i++) {
+            cJSON *o = row_json(&rows[i]), *pair = NULL;
+            size_t k;
+            for (k = 0; k < n_pairs && !pair; k++)
+                if (pairs[k].entrance_id == rows[i].measurement_id || pairs[k].exit_id == rows[i].measurement_id) {
+                    cJSON *one = cli_midline_json(&pairs[k], 1);
+                    pair = cJSON_DetachItemFromArray(one, 0);
+                    cJSON_Delete(one);
+                }
+            if (pair)
+                cJSON_AddItemToObject(o, "midline", pair);
+            else
+                cJSON_AddNullToObject(o, "midline");
+            cJSON_AddItemToArray(arr, o);
+        }
         free(rows);
+        free(pairs);
         return cli_print_json(arr);
     }
     if (n == 0) {
@@ -153,6 +177,8 @@ int cmd_history(cli_env *env, int argc, char **argv)
                fxl_verdict_label(r->verdict), note);
     }
     printf("\n%zu measurement%s.\n", n, n == 1 ? "" : "s");
+    cli_midline_print(pairs, n_pairs, 1);
     free(rows);
+    free(pairs);
     return CLI_EXIT_OK;
 }

@@ -1,76 +1,15 @@
 /* fxledger plan: import a plan from fxledger's JSON plan format
- * (docs/format-plan.md), list plans, show one plan with every field parameter. */
+ * (docs/format-plan.md) or from a DICOM RT Plan (docs/dicom-import.md, in
+ * cmd_plan_dicom.c), list plans, show one plan with every field parameter and
+ * what the independent model said about it. */
 #include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/plan_view.h"
 #include "fxl/plan_json.h"
 #include "fxl/plans.h"
-
-static void add_num_or_null(cJSON *o, const char *key, double v)
-{
-    if (isnan(v))
-        cJSON_AddNullToObject(o, key);
-    else
-        cJSON_AddNumberToObject(o, key, v);
-}
-
-static void add_text_or_null(cJSON *o, const char *key, const char *v)
-{
-    if (v && *v)
-        cJSON_AddStringToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
-static cJSON *plan_json(const fxl_plan *p)
-{
-    cJSON *o = cJSON_CreateObject();
-
-    cJSON_AddNumberToObject(o, "id", (double)p->id);
-    cJSON_AddStringToObject(o, "patient_mrn", p->mrn);
-    cJSON_AddStringToObject(o, "label", p->label);
-    cJSON_AddStringToObject(o, "site", p->site);
-    cJSON_AddStringToObject(o, "technique", p->technique);
-    cJSON_AddNumberToObject(o, "fractions", p->fractions);
-    add_num_or_null(o, "dose_per_fraction_cgy", p->dose_per_fraction_cgy);
-    add_text_or_null(o, "replaces", p->replaces_label);
-    add_text_or_null(o, "replaced_by", p->replaced_by_label);
-    cJSON_AddStringToObject(o, "source", p->source);
-    cJSON_AddNumberToObject(o, "field_rows", (double)p->n_fields);
-    cJSON_AddNumberToObject(o, "fractions_logged", p->fractions_logged);
-    cJSON_AddStringToObject(o, "imported_by", p->created_by);
-    cJSON_AddStringToObject(o, "imported_at", p->created_at);
-    return o;
-}
-
-static cJSON *field_json(const fxl_field *f)
-{
-    cJSON *o = cJSON_CreateObject();
-
-    cJSON_AddNumberToObject(o, "id", (double)f->id);
-    cJSON_AddStringToObject(o, "name", f->name);
-    cJSON_AddStringToObject(o, "point", f->point);
-    cJSON_AddStringToObject(o, "machine", f->machine);
-    cJSON_AddStringToObject(o, "beam", f->beam);
-    cJSON_AddStringToObject(o, "modality", f->modality);
-    cJSON_AddNumberToObject(o, "energy", f->energy);
-    cJSON_AddStringToObject(o, "setup", f->setup);
-    cJSON_AddNumberToObject(o, "mu", f->mu);
-    cJSON_AddNumberToObject(o, "ssd_cm", f->ssd_cm);
-    cJSON_AddNumberToObject(o, "x_cm", f->x_cm);
-    cJSON_AddNumberToObject(o, "y_cm", f->y_cm);
-    cJSON_AddNumberToObject(o, "wedge_deg", f->wedge_deg);
-    cJSON_AddBoolToObject(o, "tray", f->tray);
-    cJSON_AddNumberToObject(o, "gantry_deg", f->gantry_deg);
-    cJSON_AddNumberToObject(o, "incidence_deg", f->incidence_deg);
-    add_num_or_null(o, "thickness_cm", f->thickness_cm);
-    add_num_or_null(o, "expected_dose_cgy", f->expected_dose_cgy);
-    add_text_or_null(o, "expected_source", f->expected_source);
-    cJSON_AddStringToObject(o, "policy", f->policy);
-    return o;
-}
 
 static int plan_import(cli_env *env, int argc, char **argv)
 {
@@ -87,7 +26,11 @@ static int plan_import(cli_env *env, int argc, char **argv)
                    "format (docs/format-plan.md). Every value is checked before anything is\n"
                    "written; machines and beams must exist. A plan is never changed afterwards:\n"
                    "a plan change is a new plan with a new label that names the one it replaces\n"
-                   "(--replaces, or \"replaces\" in the file). Physicists and admins only.",
+                   "(--replaces, or \"replaces\" in the file). In the same transaction each\n"
+                   "point is checked against the independent expected-dose model (beam data\n"
+                   "loaded with 'fxledger machine beamdata'): a planning-system expected dose that\n"
+                   "differs from the model by more than setting model_crosscheck_pct (default 5 %)\n"
+                   "opens a review item. Physicists and admins only.",
                    opts, argc, argv, pos, 1, &npos);
     if (rc != 0)
         return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
@@ -121,16 +64,14 @@ static int plan_import(cli_env *env, int argc, char **argv)
     if (rc != 0)
         return cli_fail(env, rc);
     if (env->json) {
-        cJSON *o = plan_json(&plan), *fa = cJSON_AddArrayToObject(o, "fields");
-        size_t k;
-        for (k = 0; k < plan.n_fields; k++)
-            cJSON_AddItemToArray(fa, field_json(&plan.fields[k]));
+        cJSON *o = cli_plan_with_fields_json(&plan);
         fxl_plan_release(&plan);
         return cli_print_json(o);
     }
     printf("imported plan %s for patient %s: %zu measured point%s%s%s\n", plan.label, plan.mrn,
            plan.n_fields, plan.n_fields == 1 ? "" : "s", plan.replaces_label[0] ? "; replaces plan " : "",
            plan.replaces_label);
+    cli_plan_print_import(&plan);
     fxl_plan_release(&plan);
     return CLI_EXIT_OK;
 }
@@ -153,7 +94,7 @@ static int plan_list(cli_env *env, int argc, char **argv)
     if (env->json) {
         cJSON *a = cJSON_CreateArray();
         for (i = 0; i < n; i++)
-            cJSON_AddItemToArray(a, plan_json(&list[i]));
+            cJSON_AddItemToArray(a, cli_plan_json(&list[i]));
         free(list);
         return cli_print_json(a);
     }
@@ -189,7 +130,9 @@ static int plan_show(cli_env *env, int argc, char **argv)
     int npos, rc;
 
     rc = cli_parse(env, "plan show MRN LABEL",
-                   "Shows one plan and every parameter of each field, with units.", opts, argc, argv,
+                   "Shows one plan and every parameter of each field, with units, and the\n"
+                   "independent model's expected dose, its factors and the cross-check made at\n"
+                   "import.", opts, argc, argv,
                    pos, 2, &npos);
     if (rc != 0)
         return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
@@ -200,9 +143,7 @@ static int plan_show(cli_env *env, int argc, char **argv)
     if ((rc = fxl_plan_get(env->ctx, &plan, pos[0], pos[1])) != 0)
         return cli_fail(env, rc);
     if (env->json) {
-        cJSON *o = plan_json(&plan), *fa = cJSON_AddArrayToObject(o, "fields");
-        for (k = 0; k < plan.n_fields; k++)
-            cJSON_AddItemToArray(fa, field_json(&plan.fields[k]));
+        cJSON *o = cli_plan_with_fields_json(&plan);
         fxl_plan_release(&plan);
         return cli_print_json(o);
     }
@@ -239,7 +180,11 @@ static int plan_show(cli_env *env, int argc, char **argv)
             printf("    expected      (none)\n");
         else
             printf("    expected      %.1f cGy (%s)\n", f->expected_dose_cgy,
-                   strcmp(f->expected_source, "tps") == 0 ? "planning system" : f->expected_source);
+                   strcmp(f->expected_source, "tps") == 0     ? "planning system"
+                   : strcmp(f->expected_source, "model") == 0 ? "independent model"
+                   : strcmp(f->expected_source, "manual") == 0 ? "hand calculation"
+                                                               : f->expected_source);
+        cli_plan_print_model(f);
     }
     fxl_plan_release(&plan);
     return CLI_EXIT_OK;
@@ -247,6 +192,7 @@ static int plan_show(cli_env *env, int argc, char **argv)
 
 static const cli_sub subs[] = {
     {"import", plan_import, "import a plan from a JSON file (physicist or admin)"},
+    {"import-dicom", cli_plan_import_dicom, "import a DICOM RT Plan in the DICOM JSON Model (physicist or admin)"},
     {"list", plan_list, "list plans of one patient or of all"},
     {"show", plan_show, "show one plan with every field parameter"},
     {NULL, NULL, NULL}};
@@ -254,7 +200,8 @@ static const cli_sub subs[] = {
 int cmd_plan(cli_env *env, int argc, char **argv)
 {
     return cli_dispatch_sub(env, subs,
-                            "Treatment plans and their fields: import from fxledger's JSON plan format,\n"
-                            "list and show. Plans are never edited; a change is a replacement plan.",
+                            "Treatment plans and their fields: import from fxledger's JSON plan format\n"
+                            "or from a DICOM RT Plan (DICOM JSON Model), list and show. Plans are never\n"
+                            "edited; a change is a replacement plan.",
                             argc, argv);
 }

@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "cli/alert.h"
+#include "cli/midline_view.h"
 #include "cli/record_view.h"
 #include "fxl/readings_json.h"
 
@@ -66,7 +67,8 @@ static void when(char *buf, size_t size, const char *stored)
 void cli_record_print(const cli_env *env, const fxl_record_result *r)
 {
     char t[40], reading[32], dose[24], expected[24], dev[16], id[16];
-    size_t i;
+    fxl_midline_pair *pairs = NULL;
+    size_t i, n_pairs = 0;
     int j, flagged = 0, implausible;
 
     when(t, sizeof t, r->treated_at);
@@ -108,6 +110,10 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r)
     }
     if (!flagged)
         printf("\nAll results within tolerance: %s\n", fxl_verdict_guidance(FXL_VERDICT_WITHIN));
+    if (fxl_record_midlines(&pairs, &n_pairs, r) == 0) {
+        cli_midline_print(pairs, n_pairs, 0);
+        free(pairs);
+    }
     printf("\n");
     cli_print_caveat(stdout);
 }
@@ -177,6 +183,12 @@ int cli_record_finish(cli_env *env, const fxl_record_result *r)
 
     if (env->json) {
         cJSON *json = fxl_record_result_json(r);
+        fxl_midline_pair *pairs = NULL;
+        size_t n_pairs = 0;
+        if (json && fxl_record_midlines(&pairs, &n_pairs, r) == 0) {
+            cJSON_AddItemToObject(json, "midline", cli_midline_json(pairs, n_pairs));
+            free(pairs);
+        }
         if (!json || cli_print_json(json) != CLI_EXIT_OK)
             return CLI_EXIT_DB;
     } else {

@@ -1,0 +1,80 @@
+/* The midline estimates of entrance-exit pairs on screen and in JSON: the
+ * method is named, and the two corrected doses it came from are shown
+ * beside it. No SQL, no physics (the estimate is src/core/midline.c's). */
+#include <math.h>
+#include <stdio.h>
+
+#include "cli/midline_view.h"
+
+static void add_num(cJSON *o, const char *key, double v)
+{
+    if (isfinite(v))
+        cJSON_AddNumberToObject(o, key, v);
+    else
+        cJSON_AddNullToObject(o, key);
+}
+
+cJSON *cli_midline_json(const fxl_midline_pair *pairs, size_t n)
+{
+    cJSON *arr = cJSON_CreateArray();
+    size_t i;
+    int j;
+
+    for (i = 0; i < n; i++) {
+        const fxl_midline_pair *p = &pairs[i];
+        cJSON *o = cJSON_CreateObject(), *reasons;
+        cJSON_AddStringToObject(o, "plan", p->plan);
+        cJSON_AddNumberToObject(o, "fraction", p->fraction_number);
+        cJSON_AddStringToObject(o, "field", p->field);
+        cJSON_AddNumberToObject(o, "entrance_measurement_id", (double)p->entrance_id);
+        cJSON_AddNumberToObject(o, "exit_measurement_id", (double)p->exit_id);
+        add_num(o, "entrance_dose_cgy", p->estimate.entrance_cgy);
+        add_num(o, "exit_dose_cgy", p->estimate.exit_cgy);
+        cJSON_AddBoolToObject(o, "computed", p->estimate.computed);
+        add_num(o, "midline_dose_cgy", p->estimate.geometric_cgy);
+        add_num(o, "geometric_mean_cgy", p->estimate.geometric_cgy);
+        add_num(o, "arithmetic_mean_cgy", p->estimate.arithmetic_cgy);
+        add_num(o, "transmission", p->estimate.transmission);
+        cJSON_AddStringToObject(o, "method", fxl_midline_method());
+        reasons = cJSON_AddArrayToObject(o, "reasons");
+        for (j = 0; j < p->estimate.reasons.n && j < FXL_REASONS_MAX; j++)
+            cJSON_AddItemToArray(reasons, cJSON_CreateString(p->estimate.reasons.text[j]));
+        cJSON_AddItemToArray(arr, o);
+    }
+    return arr;
+}
+
+static void dose(char *buf, size_t size, double v)
+{
+    if (isfinite(v))
+        snprintf(buf, size, "%.1f cGy", v);
+    else
+        snprintf(buf, size, "-");
+}
+
+void cli_midline_print(const fxl_midline_pair *pairs, size_t n, int with_fraction)
+{
+    char e[24], x[24], where[96];
+    size_t i;
+
+    if (n == 0)
+        return;
+    printf("\nMidline dose from entrance and exit (%s):\n", fxl_midline_method());
+    for (i = 0; i < n; i++) {
+        const fxl_midline_pair *p = &pairs[i];
+        dose(e, sizeof e, p->estimate.entrance_cgy);
+        dose(x, sizeof x, p->estimate.exit_cgy);
+        if (with_fraction)
+            snprintf(where, sizeof where, "%s fx %d %s", p->plan, p->fraction_number, p->field);
+        else
+            snprintf(where, sizeof where, "%s", p->field);
+        if (p->estimate.computed)
+            printf("  %-24s entrance %s, exit %s -> midline %.1f cGy (arithmetic mean %.1f cGy, "
+                   "transmission %.3f)\n",
+                   where, e, x, p->estimate.geometric_cgy, p->estimate.arithmetic_cgy,
+                   p->estimate.transmission);
+        else
+            printf("  %-24s entrance %s, exit %s -> %s\n", where, e, x,
+                   p->estimate.reasons.n ? p->estimate.reasons.text[0] : "no midline estimate");
+    }
+}
