@@ -8,7 +8,11 @@ invented for the demo; none is real. The readings are made up so that the
 corrected doses land at chosen deviations from the expected doses: mostly
 small, with one result outside tolerance, two consecutive results outside
 tolerance that escalate, one outside the action level, one mistyped reading
-that is amended, and one detector that drifts slowly.
+that is amended, and one detector that drifts slowly. The independent
+expected-dose model gets invented beam data for LINAC-A 6X; it cross-checks
+the planning-system values of the breast plan at import, and gives the
+expected doses of a fifth patient whose plan comes from a DICOM RT Plan
+(DICOM JSON Model, made for the demo by make_demo_rtplan.py).
 
 Usage: run_demo.py PATH/TO/fxledger
 """
@@ -100,6 +104,9 @@ def setup():
                                                   ("LINAC-B", "6X", "photon", 6, 1.5)):
         run("machine", "beam", beam, "--machine", machine, "--modality", modality,
             "--energy", energy, "--dmax", dmax, user=ph)
+    # Beam data of the independent expected-dose model for LINAC-A 6X (invented).
+    run("machine", "beamdata", os.path.join(DATA, "beamdata-LINAC-A-6X.json"), "--effective", "2026-10-26",
+        user=ph, show=True)
     for serial, label, kind, sens in DETECTORS:
         run("detector", "add", serial, "--label", label, "--kind", kind, "--sensitivity", sens,
             "--temp-coeff", A_PER_C, "--dose-limit", 500000, user=ph)
@@ -127,8 +134,32 @@ def setup():
                                ("DEMO-1003", "Søndergaard", "Ingrid"),
                                ("DEMO-1004", "Mwangi", "Peter")):
         run("patient", "add", mrn, "--family", family, "--given", given, user="lsands")
-        run("plan", "import", os.path.join(DATA, "plan-%s.json" % mrn), user=ph)
+        # The breast plan's planning-system values are cross-checked against the
+        # model at import (the other plans: no beam data for their beams).
+        run("plan", "import", os.path.join(DATA, "plan-%s.json" % mrn), user=ph, show=(mrn == "DEMO-1002"))
     run("plan", "show", "DEMO-1002", "BR-R-1", user=ph, show=True)
+    dicom_patient()
+
+
+def dicom_patient():
+    """A fifth patient whose plan arrives as a DICOM RT Plan (DICOM JSON
+    Model): the expected doses are the independent model's."""
+    heading("A new patient from a DICOM RT Plan, expected doses from the independent model")
+    run("patient", "add", "DEMO-1005", "--family", "Lindqvist", "--given", "Aurelio", user="rpatel")
+    run("plan", "import-dicom", os.path.join(DATA, "rtplan-DEMO-1005.json"), "--machine", "LINAC-A",
+        "--site", "Thorax", "--technique", "3D AP-PA", "--policy", "every", user="mkeller", show=True)
+    run("plan", "show", "DEMO-1005", "THX-AP-PA", user="mkeller", show=True)
+    shown = json.loads(run("--json", "plan", "show", "DEMO-1005", "THX-AP-PA", user="mkeller").stdout)
+    PLANS["DEMO-1005"] = plan_from_show(shown)
+
+
+def plan_from_show(shown):
+    """The imported plan in the shape of a plan file, for reading_for()."""
+    fields = {}
+    for f in shown["fields"]:
+        d = fields.setdefault(f["name"], dict(f, points=[]))
+        d["points"].append({"point": f["point"], "expected_dose_cgy": f["expected_dose_cgy"]})
+    return {"patient_mrn": shown["patient_mrn"], "fractions": shown["fractions"], "fields": list(fields.values())}
 
 
 # ---- readings that give chosen deviations ---------------------------------
@@ -190,10 +221,11 @@ def reading_for(mrn, field_name, point, serial, deviation_pct, temp_c):
 # ---- two weeks of treatment ---------------------------------------------------
 
 rng = random.Random(20261102)
+rng_dicom = random.Random(1005)  # DEMO-1005 draws its own numbers: the others' stay as they were
 
 
-def noise():
-    return rng.gauss(0.4, 1.3)
+def noise(r=rng):
+    return r.gauss(0.4, 1.3)
 
 
 def drift(day_index):
@@ -209,6 +241,7 @@ SCHEDULE = {
     "DEMO-1002": (0, [("MED", "entrance", "PD-0101"), ("LAT", "entrance", "PD-0101")]),
     "DEMO-1003": (5, [("E1", "entrance", "ED-0201")]),
     "DEMO-1004": (0, [("PA", "entrance", "PD-0101")]),
+    "DEMO-1005": (5, [("AP", "entrance", "PD-0101"), ("PA", "entrance", "PD-0101")]),
 }
 
 # (mrn, fraction, field, point) -> deviation forced for the story
@@ -218,7 +251,8 @@ STORY = {
     ("DEMO-1002", 6, "LAT", "entrance"): 6.6,      # outside tolerance ...
     ("DEMO-1002", 7, "LAT", "entrance"): 6.9,      # ... again, same sign: escalates
 }
-SHOWN = {("DEMO-1001", 1), ("DEMO-1001", 4), ("DEMO-1004", 3), ("DEMO-1002", 7), ("DEMO-1003", 2)}
+SHOWN = {("DEMO-1001", 1), ("DEMO-1001", 4), ("DEMO-1004", 3), ("DEMO-1002", 7), ("DEMO-1003", 2),
+         ("DEMO-1005", 1)}
 THERAPISTS = ["lsands", "rpatel"]
 
 
@@ -235,11 +269,12 @@ def treat():
             at = "%sT%02d:%02d:00Z" % (day, 8 + slot, 10 + 7 * slot)
             therapist = THERAPISTS[(day_index + slot) % 2]
             args = ["record", "--patient", mrn, "--at", at]
+            r = rng_dicom if mrn == "DEMO-1005" else rng
             for field, point, serial in readings:
                 dev = STORY.get((mrn, fraction, field, point))
                 if dev is None:
-                    dev = noise() + (drift(day_index) if serial == "PD-0101" else 0.0)
-                temp = round(rng.uniform(30.5, 33.5), 1)
+                    dev = noise(r) + (drift(day_index) if serial == "PD-0101" else 0.0)
+                temp = round(r.uniform(30.5, 33.5), 1)
                 reading = reading_for(mrn, field, point, serial, dev, temp)
                 if (mrn, fraction) == ("DEMO-1003", 2):
                     amend_target = reading
