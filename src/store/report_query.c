@@ -601,7 +601,10 @@ int fxl_rq_detectors_near_limit_each(fxl_ctx *ctx, const char *as_of, double war
         "             AND f.treated_at <= :asof AND f.treated_at > coalesce((SELECT max(c.calibrated_at) "
         "               FROM calibrations c WHERE c.detector_id = d.id AND c.calibrated_at <= :asof), '')), 0) "
         "           AS acc "
-        "  FROM detectors d WHERE d.dose_limit_cgy IS NOT NULL) "
+        /* Retired detectors are left out (as for calibrations due): they
+         * pile up over the years and their dose no longer matters. */
+        "  FROM detectors d WHERE d.dose_limit_cgy IS NOT NULL "
+        "    AND " STATUS_AT("d.id") " <> 'retired') "
         "SELECT label, serial, kind, status, last_cal, acc, lim FROM t "
         "WHERE acc >= lim * :warn ORDER BY acc / lim DESC, serial");
     if (rc != 0)
