@@ -1,6 +1,7 @@
 # Thin wrapper around CMake: the two set-up commands from the README.
 #   make demo   build fxledger and run the invented demo scenario into demo/out/
 #   make test   build fxledger and run every test (ctest)
+#   make bench  build fxledger and run the benchmark on synthetic databases (docs/performance.md)
 # Both first install the Debian packages the project needs when they are missing.
 
 BUILD ?= build
@@ -28,3 +29,10 @@ demo: build
 
 clean:
 	rm -rf $(BUILD) demo/out
+
+# Not part of 'make test': builds two databases of invented data (about 1 GiB
+# under /tmp/fxledger-bench, reused while the generator and schema stay the
+# same) and prints each figure beside its target; exits 1 if one is missed.
+.PHONY: bench
+bench: build
+	/usr/bin/python3 tests/bench/run_bench.py --fxledger $(BUILD)/fxledger
