@@ -7,6 +7,7 @@
 #include <unistd.h>
 
 #include "cli/cli.h"
+#include "fxl/text.h"
 
 typedef struct cli_command {
     const char *name;
@@ -106,6 +107,34 @@ static int take_global_options(cli_env *env, int *argc, char **argv, int *want_h
     return 0;
 }
 
+/* Every argument is text that may end up in the record, a report or on a
+ * screen: it must be UTF-8 without control characters (docs/hazards.md). The
+ * value itself is not echoed, so the error line stays clean. */
+static int check_arguments(int argc, char **argv)
+{
+    int i;
+
+    for (i = 0; i < argc; i++) {
+        const char *a = argv[i], *prev = i > 0 ? argv[i - 1] : "";
+        long at = fxl_utf8_invalid_at(a, strlen(a));
+        const char *what = at >= 0 ? "is not valid UTF-8 text" : "contains a control character";
+        char name[48];
+
+        if (at < 0 && (at = fxl_text_control_at(a)) < 0)
+            continue;
+        if (strncmp(a, "--", 2) == 0 && strchr(a, '='))
+            snprintf(name, sizeof name, "the value of '%.*s'", (int)(strchr(a, '=') - a), a);
+        else if (strncmp(prev, "--", 2) == 0 && !strchr(prev, '=') && strlen(prev) < 32)
+            snprintf(name, sizeof name, "the value of '%s'", prev);
+        else
+            snprintf(name, sizeof name, "argument %d", i + 1);
+        cli_error("%s %s (at byte %ld): names, notes and file names must be printable UTF-8 "
+                  "text", name, what, at + 1);
+        return -1;
+    }
+    return 0;
+}
+
 static int finish(int code)
 {
     /* A full disk or closed pipe must not pass silently. */
@@ -133,6 +162,8 @@ int main(int argc, char **argv)
 
     argc--;
     argv++;
+    if (check_arguments(argc, argv) != 0)
+        return finish(CLI_EXIT_DATA);
     if (take_global_options(&env, &argc, argv, &want_help, &want_version) != 0)
         return finish(CLI_EXIT_USAGE);
     if (!env.user)

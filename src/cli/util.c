@@ -7,16 +7,21 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "fxl/text.h"
 
+/* One readable line: text echoed from the input (a name, a file's content)
+ * may hold control sequences, invalid UTF-8 or 100 kB; none of that reaches
+ * the terminal (docs/hazards.md). */
 void cli_error(const char *fmt, ...)
 {
+    char msg[4096], shown[1000];
     va_list ap;
 
-    fputs("fxledger: error: ", stderr);
     va_start(ap, fmt);
-    vfprintf(stderr, fmt, ap);
+    vsnprintf(msg, sizeof msg, fmt, ap);
     va_end(ap);
-    fputc('\n', stderr);
+    fxl_text_printable(shown, sizeof shown, msg);
+    fprintf(stderr, "fxledger: error: %s\n", shown);
 }
 
 int cli_exit_code(int fxl_code)

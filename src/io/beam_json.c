@@ -11,6 +11,7 @@
 #include "fxl/beam_json.h"
 #include "fxl/beam_model.h"
 #include "fxl/fxl.h"
+#include "fxl/text.h"
 
 #define FILE_MAX_BYTES (1024 * 1024)
 
@@ -112,6 +113,9 @@ static int get_string(const parser *p, const char *where, const cJSON *obj, cons
     if ((required && len == 0) || len >= bufsize)
         return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: '%s' must be %d to %zu characters", p->name,
                         where, key, required ? 1 : 0, bufsize - 1);
+    if (fxl_text_control_at(v->valuestring) >= 0)
+        return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: '%s' must not contain control characters",
+                        p->name, where, key);
     memcpy(buf, v->valuestring, len + 1);
     return 0;
 }
@@ -477,6 +481,13 @@ int fxl_beam_json_parse(fxl_ctx *ctx, fxl_beam_model *out, const char *text, siz
     fxl_beam_model_init(out);
     if (!text)
         return fxl_fail(ctx, FXL_EINVAL, "file '%s' is empty", p.name);
+    /* Text must be UTF-8, and "\u0000" would silently cut a name short. */
+    if (fxl_utf8_invalid_at(text, len) >= 0)
+        return fxl_fail(ctx, FXL_EINVAL, "file '%s' is not valid: text that is not UTF-8 (at byte %ld)",
+                        p.name, fxl_utf8_invalid_at(text, len) + 1);
+    if (fxl_json_nul_escape_at(text, len) >= 0)
+        return fxl_fail(ctx, FXL_EINVAL, "file '%s' is not valid: an escaped NUL character (\\u0000) at byte %ld",
+                        p.name, fxl_json_nul_escape_at(text, len) + 1);
     if (!(root = cJSON_ParseWithLength(text, len))) {
         rc = syntax_error(&p, text, len);
         goto cleanup;

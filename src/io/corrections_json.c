@@ -9,6 +9,7 @@
 #include <string.h>
 
 #include "fxl/corrections.h"
+#include "fxl/text.h"
 
 #define FORMAT_NAME "fxledger-corrections"
 #define FORMAT_VERSION 1
@@ -156,6 +157,9 @@ static int get_string(fxl_ctx *ctx, const char *name, const char *where, const c
     if ((required && len == 0) || len > max_len || len >= bufsize)
         return fxl_fail(ctx, FXL_EINVAL, "file '%s': %s: '%s' must be %d to %zu characters", name,
                         where, key, required ? 1 : 0, max_len);
+    if (fxl_text_control_at(v->valuestring) >= 0)
+        return fxl_fail(ctx, FXL_EINVAL, "file '%s': %s: '%s' must not contain control characters", name,
+                        where, key);
     memcpy(buf, v->valuestring, len + 1);
     return 0;
 }
@@ -261,6 +265,15 @@ int fxl_corr_file_parse(fxl_ctx *ctx, fxl_corr_file *out, const char *name, cons
     int rc, line, col;
 
     memset(out, 0, sizeof *out);
+    /* Text must be UTF-8, and "\u0000" would silently cut a name short. */
+    if ((pos = (size_t)fxl_utf8_invalid_at(text, len)) != (size_t)-1 ||
+        (pos = (size_t)fxl_json_nul_escape_at(text, len)) != (size_t)-1) {
+        line_col(text, pos, &line, &col);
+        rc = fxl_fail(ctx, FXL_EINVAL, "file '%s' is not valid: %s at line %d, column %d", name,
+                      text[pos] == '\\' ? "an escaped NUL character (\\u0000)" : "text that is not UTF-8",
+                      line, col);
+        goto cleanup;
+    }
     root = cJSON_ParseWithLengthOpts(text, len, &end, 0);
     if (!root) {
         rc = syntax_error(ctx, name, text, len);

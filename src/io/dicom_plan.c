@@ -13,6 +13,7 @@
 #include "fxl/core.h"
 #include "fxl/dicom_plan.h"
 #include "fxl/fxl.h"
+#include "fxl/text.h"
 
 #define FILE_MAX_BYTES (16 * 1024 * 1024)
 #define DEPTH_MAX 8
@@ -273,6 +274,10 @@ static int get_text(const parser *p, const char *where, const cJSON *ds, const t
                         p->name, where, t->keyword, t->hex, t->hex + 4, size - 1);
     memcpy(buf, s, len);
     buf[len] = '\0';
+    /* Short text values (LO, SH, CS, PN, UI) hold no control characters. */
+    if (fxl_text_control_at(buf) >= 0)
+        return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: %s (%.4s,%.4s) must not contain control characters",
+                        p->name, where, t->keyword, t->hex, t->hex + 4);
     if (len == 0 && required)
         return missing(p, where, t);
     return len > 0;
@@ -962,6 +967,13 @@ int fxl_dicom_plan_parse(fxl_ctx *ctx, fxl_dicom_plan *out, const char *text, si
     out->dose_per_fraction_cgy = NAN;
     if (!text || len == 0)
         return fxl_fail(ctx, FXL_EINVAL, "file '%s' is empty", p.name);
+    /* The DICOM JSON Model is UTF-8 (PS3.18 Annex F); "\u0000" would cut a value short. */
+    if (fxl_utf8_invalid_at(text, len) >= 0)
+        return fxl_fail(ctx, FXL_EINVAL, "file '%s' is not valid: text that is not UTF-8 (at byte %ld)",
+                        p.name, fxl_utf8_invalid_at(text, len) + 1);
+    if (fxl_json_nul_escape_at(text, len) >= 0)
+        return fxl_fail(ctx, FXL_EINVAL, "file '%s' is not valid: an escaped NUL character (\\u0000) at byte %ld",
+                        p.name, fxl_json_nul_escape_at(text, len) + 1);
     if (!(root = cJSON_ParseWithLength(text, len))) {
         rc = syntax_error(&p, text, len);
         goto cleanup;

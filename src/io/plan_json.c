@@ -3,6 +3,7 @@
  * or repeated keys are refused: a misspelt "wedge_deg" must not become an
  * open field), types and ranges, each failure named by its JSON path. */
 #include "fxl/plan_json.h"
+#include "fxl/text.h"
 
 #include <cjson/cJSON.h>
 #include <errno.h>
@@ -294,6 +295,14 @@ static int parse_syntax(parser *p, cJSON **out, const char *buf, size_t len)
     if (strlen(buf) != len)
         return fxl_fail(p->ctx, FXL_EINVAL, "plan file '%s' is not valid JSON: it contains a NUL byte at byte %zu",
                         p->source, strlen(buf) + 1);
+    /* Text must be UTF-8, and "\u0000" would silently cut a name short. */
+    if ((pos = (size_t)fxl_utf8_invalid_at(buf, len)) != (size_t)-1 ||
+        (pos = (size_t)fxl_json_nul_escape_at(buf, len)) != (size_t)-1) {
+        line_col(buf, pos, &line, &col);
+        return fxl_fail(p->ctx, FXL_EINVAL, "plan file '%s' is not valid: %s at line %d, column %d",
+                        p->source, buf[pos] == '\\' ? "an escaped NUL character (\\u0000)"
+                                                     : "text that is not UTF-8", line, col);
+    }
     *out = cJSON_ParseWithOpts(buf, &end, 1);
     if (*out)
         return 0;

@@ -9,6 +9,7 @@
 #include <string.h>
 
 #include "fxl/readings_json.h"
+#include "fxl/text.h"
 
 void fxl_readings_file_release(fxl_readings_file *f)
 {
@@ -196,6 +197,15 @@ int fxl_readings_parse(fxl_ctx *ctx, fxl_readings_file *out, const char *name, c
     int rc, line, col;
 
     memset(out, 0, sizeof *out);
+    /* Text must be UTF-8, and "\u0000" would silently cut a name short. */
+    if ((pos = (size_t)fxl_utf8_invalid_at(text, len)) != (size_t)-1 ||
+        (pos = (size_t)fxl_json_nul_escape_at(text, len)) != (size_t)-1) {
+        line_col(text, pos, &line, &col);
+        rc = fxl_fail(ctx, FXL_EINVAL, "readings file '%s' is not valid: %s at line %d, column %d", name,
+                      text[pos] == '\\' ? "an escaped NUL character (\\u0000)" : "text that is not UTF-8",
+                      line, col);
+        goto cleanup;
+    }
     root = cJSON_ParseWithLengthOpts(text, len, &end, 0);
     if (!root) {
         rc = syntax_error(ctx, name, text, len);

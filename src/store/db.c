@@ -19,12 +19,40 @@
 int fxl_fail(fxl_ctx *ctx, int code, const char *fmt, ...)
 {
     va_list ap;
+    char *full = NULL;
+    size_t len, head, tail;
+    int n;
 
-    if (ctx) {
+    if (!ctx)
+        return code;
+    va_start(ap, fmt);
+    n = vsnprintf(NULL, 0, fmt, ap);
+    va_end(ap);
+    if (n >= 0 && (full = malloc((size_t)n + 1)) != NULL) {
         va_start(ap, fmt);
-        vsnprintf(ctx->errmsg, sizeof ctx->errmsg, fmt, ap);
+        vsnprintf(full, (size_t)n + 1, fmt, ap);
         va_end(ap);
     }
+    if (!full) {
+        snprintf(ctx->errmsg, sizeof ctx->errmsg, "%s", fmt);
+        return code;
+    }
+    len = (size_t)n;
+    if (len < sizeof ctx->errmsg) {
+        memcpy(ctx->errmsg, full, len + 1);
+    } else {
+        /* A message quoting a huge input (a 100 kB name) keeps its start and
+         * its end - what is wrong and what to do - cut on UTF-8 character
+         * boundaries (docs/hazards.md). */
+        head = sizeof ctx->errmsg / 2 - 16;
+        tail = len - (sizeof ctx->errmsg / 2 - 16);
+        while (head > 0 && ((unsigned char)full[head] & 0xc0) == 0x80)
+            head--;
+        while (tail < len && ((unsigned char)full[tail] & 0xc0) == 0x80)
+            tail++;
+        snprintf(ctx->errmsg, sizeof ctx->errmsg, "%.*s ... %s", (int)head, full, full + tail);
+    }
+    free(full);
     return code;
 }
 

@@ -2,6 +2,8 @@
  * with SQLite errors turned into fxledger codes and messages. */
 #include "store/stmt.h"
 
+#include "fxl/text.h"
+
 #include <math.h>
 #include <string.h>
 
@@ -53,6 +55,15 @@ static void check_bind(fxl_stmt *s, int rc)
 void fxl_stmt_bind_text(fxl_stmt *s, const char *name, const char *value)
 {
     int i = param_index(s, name);
+    long bad;
+
+    /* Last line of defence: no text that is not UTF-8 enters the record,
+     * whichever path it came by (docs/hazards.md). */
+    if (i && value && (bad = fxl_utf8_invalid_at(value, strlen(value))) >= 0) {
+        s->err = fxl_fail(s->ctx, FXL_EINVAL, "text for '%s' is not valid UTF-8 (at byte %ld); "
+                          "nothing written", name[0] == ':' ? name + 1 : name, bad + 1);
+        return;
+    }
     if (i)
         check_bind(s, value ? sqlite3_bind_text(s->st, i, value, -1, SQLITE_TRANSIENT)
                             : sqlite3_bind_null(s->st, i));
