@@ -1,5 +1,6 @@
 /* fxledger init: create a new database with its schema, department settings
  * and the first admin user. */
+#include <stdio.h>
 #include <string.h>
 
 #include "cli/cli.h"
@@ -35,8 +36,20 @@ int cmd_init(cli_env *env, int argc, char **argv)
         return CLI_EXIT_USAGE;
     }
     rc = fxl_open(&env->ctx, env->db_path, FXL_OPEN_CREATE);
-    if (rc == 0)
-        rc = fxl_init_department(env->ctx, dept, cli_get(opts, "timezone"), login, full);
+    if (rc == 0 && (rc = fxl_init_department(env->ctx, dept, cli_get(opts, "timezone"), login, full)) != 0) {
+        /* The file is ours (fxl_open refuses an existing one): a refused init
+         * leaves nothing behind that could later pass for a department. */
+        int code = cli_fail(env, rc);
+        char side[4096];
+        fxl_close(env->ctx);
+        env->ctx = NULL;
+        remove(env->db_path);
+        snprintf(side, sizeof side, "%s-wal", env->db_path);
+        remove(side);
+        snprintf(side, sizeof side, "%s-shm", env->db_path);
+        remove(side);
+        return code;
+    }
     if (rc != 0)
         return cli_fail(env, rc);
     if (env->json) {

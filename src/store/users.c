@@ -4,6 +4,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "fxl/settings.h"
 #include "fxl/users.h"
 #include "store/audit.h"
 #include "store/stmt.h"
@@ -32,18 +33,32 @@ static int insert_setting(fxl_ctx *ctx, const char *key, const char *value, cJSO
     return rc;
 }
 
+static int login_valid(const char *login);
+
 int fxl_init_department(fxl_ctx *ctx, const char *department, const char *timezone,
                         const char *admin_login, const char *admin_full_name)
 {
     fxl_stmt s = FXL_STMT_INIT;
     cJSON *settings = cJSON_CreateObject(), *user = cJSON_CreateObject();
     char now[FXL_TIME_LEN];
-    size_t i;
-    int rc;
+    size_t i, name_len = admin_full_name ? strlen(admin_full_name) : 0;
+    int rc, began = 0;
 
+    /* The same checks as 'user add' and 'setting set', before anything is
+     * written: init is no back door for a value nobody else would accept. */
+    if (!login_valid(admin_login))
+        rc = fxl_fail(ctx, FXL_EINVAL, "login '%s' is not valid: 1 to 64 letters, digits, '.', '_' or '-'",
+                      admin_login ? admin_login : "");
+    else if (name_len < 1 || name_len > 200)
+        rc = fxl_fail(ctx, FXL_EINVAL, "full name of '%s' must be 1 to 200 characters", admin_login);
+    else if ((rc = fxl_setting_validate(ctx, "department", department)) == 0)
+        rc = fxl_setting_validate(ctx, "timezone", timezone && *timezone ? timezone : "UTC");
+    if (rc != 0)
+        goto cleanup;
     fxl_now(ctx, now);
     if ((rc = fxl_begin(ctx)) != 0)
         goto cleanup;
+    began = 1;
     if ((rc = fxl_stmt_prepare(&s, ctx,
                                "INSERT INTO users (login, full_name, role, created_at) "
                                "VALUES (:login, :full, 'admin', :now)")) != 0)
@@ -72,7 +87,7 @@ int fxl_init_department(fxl_ctx *ctx, const char *department, const char *timezo
         goto cleanup;
     rc = fxl_commit(ctx);
 cleanup:
-    if (rc != 0)
+    if (rc != 0 && began)
         fxl_rollback(ctx);
     fxl_stmt_finalize(&s);
     cJSON_Delete(settings);
