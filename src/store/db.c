@@ -319,10 +319,11 @@ void fxl_now(const fxl_ctx *ctx, char *buf)
     struct tm tm;
 
     (void)ctx;
-    if (fixed && strlen(fixed) == FXL_TIME_LEN - 1) {
-        memcpy(buf, fixed, FXL_TIME_LEN);
+    /* The fixed clock is for tests; only a well-formed, real UTC time is
+     * taken, anything else is never stamped on the record (docs/hazards.md). */
+    if (fixed && strlen(fixed) == FXL_TIME_LEN - 1 && fxl_time_normalize(buf, fixed, 0) == 0 &&
+        strcmp(buf, fixed) == 0)
         return;
-    }
     t = time(NULL);
     gmtime_r(&t, &tm);
     strftime(buf, FXL_TIME_LEN, "%Y-%m-%dT%H:%M:%SZ", &tm);
