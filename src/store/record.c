@@ -112,6 +112,54 @@ cleanup:
     return rc;
 }
 
+/* The plan and the treatment time must fit what is already recorded: no
+ * fraction on a plan that another plan had replaced by the treatment time (the
+ * patient was then treated with the new plan, judged against its doses), and
+ * fraction numbers in the order of their treatment times. Run before the
+ * transaction and again inside it, where a plan imported meanwhile is seen
+ * (docs/hazards.md). */
+static int check_plan_and_time(fxl_ctx *ctx, const rec_plan *plan, int number, const char *at)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+                               "SELECT label, created_at FROM plans WHERE replaces_plan_id = :plan "
+                               "AND created_at <= :at ORDER BY created_at LIMIT 1")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":plan", plan->plan_id);
+    fxl_stmt_bind_text(&s, ":at", at);
+    if ((rc = fxl_stmt_step(&s)) < 0)
+        goto cleanup;
+    if (rc == 1) {
+        rc = fxl_fail(ctx, FXL_ECONFLICT,
+                      "plan '%s' of patient '%s' was replaced by plan '%s' (imported %s) before the "
+                      "treatment time %s; log the fraction against plan '%s'",
+                      plan->label, plan->mrn, fxl_stmt_text(&s, 0), fxl_stmt_text(&s, 1), at,
+                      fxl_stmt_text(&s, 0));
+        goto cleanup;
+    }
+    fxl_stmt_finalize(&s);
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+                               "SELECT number, treated_at FROM fractions WHERE plan_id = :plan AND "
+                               "((number < :n AND treated_at > :at) OR (number > :n AND treated_at < :at)) "
+                               "ORDER BY number LIMIT 1")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":plan", plan->plan_id);
+    fxl_stmt_bind_int(&s, ":n", number);
+    fxl_stmt_bind_text(&s, ":at", at);
+    if ((rc = fxl_stmt_step(&s)) < 0)
+        goto cleanup;
+    if (rc == 1)
+        rc = fxl_fail(ctx, FXL_EINVAL,
+                      "treatment time %s of fraction %d is out of order: fraction %d of plan '%s' was "
+                      "treated %s; check the date, or the fraction number",
+                      at, number, (int)fxl_stmt_int(&s, 0), plan->label, fxl_stmt_text(&s, 1));
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
 /* ---- writing ------------------------------------------------------------------ */
 
 static void add_num(cJSON *o, const char *key, double v)
@@ -379,6 +427,8 @@ static int write_fraction(fxl_ctx *ctx, int64_t *fraction_id, rec_inputs *in, si
 
     if ((rc = fxl_begin(ctx)) != 0)
         return rc;
+    if ((rc = check_plan_and_time(ctx, plan, number, at)) != 0)
+        goto cleanup;
     if ((rc = fxl_stmt_prepare(&s, ctx,
                                "INSERT INTO fractions (plan_id, number, treated_at, user_id, created_at) "
                                "VALUES (:plan, :number, :at, :user, :now)")) != 0)
@@ -461,6 +511,7 @@ int fxl_record_fraction(fxl_ctx *ctx, fxl_record_result *out, const fxl_record_r
                         number, plan.label, plan.fractions);
     }
     if ((rc = check_fraction_free(ctx, &plan, number)) != 0 ||
+        (rc = check_plan_and_time(ctx, &plan, number, at)) != 0 ||
         (rc = rec_load_settings(ctx, &settings)) != 0)
         return rc;
 
