@@ -334,7 +334,6 @@ def main():
             args.workdir, free_gib, need_gib))
 
     mach = machine(args.workdir)
-    load_start = os.getloadavg()
     large_gen, large_stats = ensure_db(args, "large-%dy" % args.years, args.years)
     small_gen, small_stats = ensure_db(args, "small-%dy" % args.small_years, args.small_years)
     with open(large_gen + ".targets.json") as f:
@@ -351,6 +350,7 @@ def main():
     small = working_copy(small_gen, os.path.join(args.workdir, "run-small.db"))
     size_large, size_small = os.path.getsize(large), os.path.getsize(small)
 
+    load_start = os.getloadavg()
     print("logging fractions ...", flush=True)
     rec = bench_record(args, large, twin, targets, args.rounds)
     print("  record median %s, sqlite3 shell median %s" % (ms(statistics.median(rec["fx"])),
