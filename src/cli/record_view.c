@@ -70,6 +70,7 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r)
     fxl_midline_pair *pairs = NULL;
     size_t i, n_pairs = 0;
     int j, flagged = 0, implausible;
+    double assumed_c = NAN;
 
     when(t, sizeof t, r->treated_at);
     printf("%sFraction %d of %d%s - patient %s (%s), plan '%s' (%s, %s), treated %s\n\n",
@@ -95,6 +96,19 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r)
         if (m->verdict != FXL_VERDICT_WITHIN)
             flagged = 1;
     }
+    /* A temperature nobody measured is an assumption behind CF_T: say so
+     * where the verdict is read (docs/hazards.md). */
+    for (i = 0, j = 0; i < r->n; i++) {
+        const fxl_measurement_result *m = &r->items[i];
+
+        if (m->temp_entered || !isfinite(m->temp_c))
+            continue;
+        printf("%s%s %s", j++ ? ", " : "No temperature entered for ", m->field, m->point);
+        assumed_c = m->temp_c;
+    }
+    if (j)
+        printf(": %.1f degC assumed (setting skin_temp_c); give --temp with the measured value.\n",
+               assumed_c);
     for (i = 0; i < r->n; i++) {
         const fxl_measurement_result *m = &r->items[i];
 

@@ -121,6 +121,18 @@ class HazardTest(RecordTestCase):
         out = self.record_json(*self.ref(20.0, "--fraction", "2", "--at", "2026-11-03T09:00"))
         self.assertEqual(out["fraction"], 2)
 
+    def test_assumed_temperature_is_shown(self):
+        """A temperature nobody entered is the skin-temperature setting (32
+        degC by default, docs/settings.md): the verdict says it was assumed."""
+        r = self.record("--detector", "D-1001", "--field", "REF", "--reading", "20.0",
+                        "--field", "AP", "--reading", "20.0", "--temp", "30")
+        self.assertEqual(r.returncode, 0, r.stderr)
+        note = [line for line in r.stdout.splitlines() if line.startswith("No temperature entered")]
+        self.assertEqual(note, ["No temperature entered for REF entrance: 32.0 degC assumed "
+                                "(setting skin_temp_c); give --temp with the measured value."])
+        r = self.record(*self.ref(20.0), now="2026-11-03T09:00:00Z")
+        self.assertNotIn("No temperature entered", r.stdout)
+
     # ---- calibration, detector, levels ------------------------------------------------
 
     def test_detector_without_calibration_for_the_beam(self):
