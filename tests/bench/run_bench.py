@@ -50,14 +50,17 @@ TARGET_GROWTH = 1.5            # month on the large db within 1.5x the small db'
 TARGET_BUILD_S = 600.0         # the large database in minutes, not hours
 
 
-def run_timed(argv, env=None, stdin=None):
-    """Runs a process; returns (seconds, peak RSS in MiB, exit code, stdout)."""
+def run_timed(argv, env=None, stdin=None, cpu=None):
+    """Runs a process; returns (seconds, peak RSS in MiB, exit code, stdout);
+    appends its CPU time (user + system, seconds) to the list `cpu` if given."""
     out = tempfile.TemporaryFile()
     t0 = time.perf_counter()
     p = subprocess.Popen(argv, env=env, stdin=stdin, stdout=out, stderr=subprocess.STDOUT)
     _, status, ru = os.wait4(p.pid, 0)
     t1 = time.perf_counter()
     p.returncode = os.waitstatus_to_exitcode(status)
+    if cpu is not None:
+        cpu.append(ru.ru_utime + ru.ru_stime)
     out.seek(0)
     text = out.read().decode("utf-8", "replace")
     out.close()
@@ -170,7 +173,7 @@ def bench_record(args, db, twin, targets, rounds):
     with the sqlite3 shell on twin (an identical copy); returns timings."""
     courses = targets["courses"]
     day = targets["next_day"]
-    fx_times, sq_times, rows, codes = [], [], [], []
+    fx_times, sq_times, rows, codes, fx_cpu, sq_cpu = [], [], [], [], [], []
     for i in range(rounds + 1):                  # round 0 warms up, untimed
         c = courses[i % len(courses)]
         if c["next_fraction"] + i // len(courses) > c["fractions"]:
@@ -181,7 +184,7 @@ def bench_record(args, db, twin, targets, rounds):
             argv += ["--field", f["field"], "--detector", f["detector"], "--reading",
                      str(f["reading"]), "--temp", str(f["temp_c"])]
         before = table_ids(db)
-        t_fx, _, code, out = run_timed(argv, env=fx_env(db, "ther01", now))
+        t_fx, _, code, out = run_timed(argv, env=fx_env(db, "ther01", now), cpu=fx_cpu)
         if code not in (0, 10, 11, 12):
             sys.exit("run_bench: fxledger record failed (%d):\n%s" % (code, out))
         lines, n = new_rows_sql(db, before)
@@ -192,7 +195,8 @@ def bench_record(args, db, twin, targets, rounds):
                     "PRAGMA journal_mode = WAL;\nPRAGMA synchronous = FULL;\n"
                     "BEGIN IMMEDIATE;\n%s\nCOMMIT;\n" % "\n".join(lines))
         with open(script, "rb") as stdin:
-            t_sq, _, scode, sout = run_timed(["sqlite3", "-batch", "-bail", twin], stdin=stdin)
+            t_sq, _, scode, sout = run_timed(["sqlite3", "-batch", "-bail", twin], stdin=stdin,
+                                             cpu=sq_cpu)
         if scode != 0:
             sys.exit("run_bench: the sqlite3 shell failed (%d):\n%s" % (scode, sout))
         if i > 0:
@@ -200,7 +204,8 @@ def bench_record(args, db, twin, targets, rounds):
             sq_times.append(t_sq)
             rows.append(n)
             codes.append(code)
-    return {"fx": fx_times, "sq": sq_times, "rows": rows, "codes": codes}
+    return {"fx": fx_times, "sq": sq_times, "rows": rows, "codes": codes,
+            "fx_cpu": fx_cpu[1:], "sq_cpu": sq_cpu[1:]}
 
 
 # ---- listings and reports ------------------------------------------------------------
@@ -394,6 +399,9 @@ def main():
         "%s (min %s, max %s)" % (ms(sq_med), ms(min(rec["sq"])), ms(max(rec["sq"]))), "", None)
     add("ratio record / sqlite3 shell (medians)", "%.2f" % ratio,
         "<= %.1f" % TARGET_RECORD_RATIO, ratio <= TARGET_RECORD_RATIO)
+    add("CPU time (user + system) of the same runs: record / sqlite3 shell",
+        "%s / %s" % (ms(statistics.median(rec["fx_cpu"])), ms(statistics.median(rec["sq_cpu"]))),
+        "(shown for reading the wall times on a busy machine)", None)
     add("list the open queue (%d items), fxledger queue list" % q["items"], ms(q_med),
         "< %.0f ms" % (TARGET_QUEUE_S * 1000), q_med < TARGET_QUEUE_S)
     add("monthly report %s, large db (%d measurements in the month)" % (month, month_rows(large, month)),
