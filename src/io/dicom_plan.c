@@ -599,7 +599,7 @@ static int read_wedges(const parser *p, const char *where, const cJSON *beam, co
             continue;
         if (in_count++ == 0) {
             b->wedge_deg = angles[i];
-            snprintf(b->wedge_id, sizeof b->wedge_id, "%s", ids[i]);
+            snprintf(b->wedge_id, sizeof b->wedge_id, "%.*s", (int)sizeof b->wedge_id - 1, ids[i]);
             snprintf(b->wedge_type, sizeof b->wedge_type, "%s", types[i]);
         }
     }
