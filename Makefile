@@ -3,11 +3,20 @@
 #   make test   build fxledger and run every test (ctest)
 #   make bench  build fxledger and run the benchmark on synthetic databases (docs/performance.md)
 # Both first install the Debian packages the project needs when they are missing.
+# Robustness (docs/robustness.md):
+#   make sanitize   AddressSanitizer + UBSan build in build-asan, every test there
+#   make valgrind   unit tests and a logging session under valgrind (memcheck)
+#   make fuzz       each libFuzzer harness for FUZZ_SECONDS (default 60), clang
+# FXL_LONG=1 makes the crash and concurrency tests long (hundreds of kills).
 
 BUILD ?= build
 CMAKE_FLAGS ?= -DCMAKE_BUILD_TYPE=RelWithDebInfo
+ASAN_BUILD ?= build-asan
+FUZZ_BUILD ?= build-fuzz
+FUZZ_SECONDS ?= 60
+FUZZ_PARSERS ?= plan_json readings_json corrections_json beam_json dicom_json
 
-.PHONY: all deps build test demo clean sanitize
+.PHONY: all deps build test demo clean sanitize valgrind fuzz
 
 all: build
 
@@ -26,6 +35,23 @@ test: build
 
 demo: build
 	/usr/bin/python3 demo/run_demo.py $(BUILD)/fxledger
+
+# Sanitizer reports go to files (a report from a command that a test expects
+# to fail would otherwise pass unseen); any report fails the target.
+sanitize: deps
+	cmake -S . -B $(ASAN_BUILD) -DCMAKE_BUILD_TYPE=RelWithDebInfo -DFXL_SANITIZE=ON
+	cmake --build $(ASAN_BUILD) -j2
+	sh tests/sanitize/run_sanitize.sh $(ASAN_BUILD)
+
+valgrind: build
+	sh tests/valgrind/run_valgrind.sh $(BUILD)
+
+fuzz: deps
+	@command -v clang >/dev/null || { echo "make fuzz needs clang: apt-get install clang libclang-rt-14-dev" >&2; exit 1; }
+	cmake -S . -B $(FUZZ_BUILD) -DCMAKE_C_COMPILER=clang -DCMAKE_BUILD_TYPE=RelWithDebInfo \
+	      -DFXL_SANITIZE=ON -DFXL_FUZZ=ON
+	cmake --build $(FUZZ_BUILD) -j2 --target fuzzers
+	sh tests/fuzz/run_fuzz.sh $(FUZZ_BUILD) $(FUZZ_SECONDS) $(FUZZ_PARSERS)
 
 clean:
 	rm -rf $(BUILD) demo/out
