@@ -11,9 +11,7 @@
 #include "fxl/beam_json.h"
 #include "fxl/beam_model.h"
 #include "fxl/fxl.h"
-#include "fxl/text.h"
-
-#define FILE_MAX_BYTES (1024 * 1024)
+#include "io/json_doc.h"
 
 /* Output factors must be 1 at the reference field to within this: a table
  * normalised elsewhere would scale every expected dose. */
@@ -22,125 +20,42 @@
 typedef struct parser {
     fxl_ctx *ctx;
     const char *name;    /* file name for messages */
+    fxl_jsondoc doc;     /* the same, for the shared helpers */
 } parser;
 
 /* ---- JSON helpers ------------------------------------------------------- */
 
-static void line_col(const char *text, size_t pos, int *line, int *col)
-{
-    size_t i;
-
-    *line = 1;
-    *col = 1;
-    for (i = 0; i < pos; i++) {
-        if (text[i] == '\n') {
-            (*line)++;
-            *col = 1;
-        } else {
-            (*col)++;
-        }
-    }
-}
-
-/* Where malformed JSON stops. cJSON points at the last byte both when the
- * text ends early and when that byte is wrong; a second parse with a
- * sentinel appended tells the two apart. */
-static int syntax_error(const parser *p, const char *text, size_t len)
-{
-    char *padded = malloc(len + 3);
-    const char *err = NULL;
-    size_t pos = len;
-    cJSON *again;
-    int line, col;
-
-    if (!padded)
-        return fxl_fail(p->ctx, FXL_EIO, "out of memory reading '%s'", p->name);
-    memcpy(padded, text, len);
-    memcpy(padded + len, " @", 3);
-    again = cJSON_ParseWithLengthOpts(padded, len + 2, &err, 0);
-    cJSON_Delete(again);
-    if (!err)
-        err = cJSON_GetErrorPtr();
-    if (err && err >= padded && err <= padded + len + 2)
-        pos = (size_t)(err - padded);
-    free(padded);
-    if (pos >= len) {
-        line_col(text, len, &line, &col);
-        return fxl_fail(p->ctx, FXL_EINVAL,
-                        "file '%s': malformed JSON: the file ends too early at line %d, column %d (truncated?)",
-                        p->name, line, col);
-    }
-    line_col(text, pos, &line, &col);
-    return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': malformed JSON at line %d, column %d near '%.*s'",
-                    p->name, line, col, (int)(len - pos < 12 ? len - pos : 12), text + pos);
-}
-
 static int check_keys(const parser *p, const char *where, const cJSON *obj, const char *const *allowed)
 {
-    const cJSON *a, *b;
-    const char *const *k;
-
-    for (a = obj->child; a; a = a->next) {
-        int ok = 0;
-        for (k = allowed; *k; k++)
-            if (strcmp(a->string, *k) == 0)
-                ok = 1;
-        if (!ok)
-            return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: unknown key '%s'", p->name, where, a->string);
-        for (b = a->next; b; b = b->next)
-            if (strcmp(a->string, b->string) == 0)
-                return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: key '%s' appears twice", p->name, where,
-                                a->string);
-    }
-    return 0;
+    return fxl_jsondoc_check_keys(&p->doc, where, obj, allowed);
 }
 
+/* A string member of up to bufsize - 1 characters (JSON null: absent). */
 static int get_string(const parser *p, const char *where, const cJSON *obj, const char *key, int required,
                       char *buf, size_t bufsize)
 {
-    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, key);
-    size_t len;
-
-    buf[0] = '\0';
-    if (!v || cJSON_IsNull(v)) {
-        if (required)
-            return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: '%s' is missing", p->name, where, key);
-        return 0;
-    }
-    if (!cJSON_IsString(v) || !v->valuestring)
-        return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: '%s' must be a string", p->name, where, key);
-    len = strlen(v->valuestring);
-    if ((required && len == 0) || len >= bufsize)
-        return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: '%s' must be %d to %zu characters", p->name,
-                        where, key, required ? 1 : 0, bufsize - 1);
-    if (fxl_text_control_at(v->valuestring) >= 0)
-        return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: '%s' must not contain control characters",
-                        p->name, where, key);
-    memcpy(buf, v->valuestring, len + 1);
-    return 0;
+    return fxl_jsondoc_get_string(&p->doc, buf, bufsize, where, obj, key,
+                                  FXL_JSONDOC_NULL_ABSENT | (required ? FXL_JSONDOC_REQUIRED : 0), bufsize - 1);
 }
 
 /* A number member within [lo, hi]; optional ones absent or null give NaN. */
 static int get_number(const parser *p, const char *where, const cJSON *obj, const char *key, int required,
                       double lo, double hi, const char *unit, double *out)
 {
-    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, key);
+    char accepted[80];
+    int rc;
 
-    *out = NAN;
-    if (!v || cJSON_IsNull(v)) {
-        if (required)
-            return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: '%s' is missing (%g to %g%s%s)", p->name,
-                            where, key, lo, hi, *unit ? " " : "", unit);
-        return 0;
+    snprintf(accepted, sizeof accepted, "%g to %g%s%s", lo, hi, *unit ? " " : "", unit);
+    if ((rc = fxl_jsondoc_get_number(&p->doc, out, where, obj, key,
+                                     FXL_JSONDOC_NULL_ABSENT | (required ? FXL_JSONDOC_REQUIRED : 0),
+                                     accepted)) != 0 || isnan(*out))
+        return rc;
+    if (*out < lo || *out > hi) {
+        rc = fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: %s '%g' is out of range: must be %s", p->name, where,
+                      key, *out, accepted);
+        *out = NAN;
     }
-    if (!cJSON_IsNumber(v) || !isfinite(v->valuedouble))
-        return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: '%s' must be a number (%g to %g%s%s)", p->name,
-                        where, key, lo, hi, *unit ? " " : "", unit);
-    if (v->valuedouble < lo || v->valuedouble > hi)
-        return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: %s '%g' is out of range: must be %g to %g%s%s",
-                        p->name, where, key, v->valuedouble, lo, hi, *unit ? " " : "", unit);
-    *out = v->valuedouble;
-    return 0;
+    return rc;
 }
 
 /* An array of n numbers within [lo, hi] (lo_open: strictly above lo) into a
@@ -472,7 +387,7 @@ static int parse_root(const parser *p, const cJSON *root, fxl_beam_model *m)
 
 int fxl_beam_json_parse(fxl_ctx *ctx, fxl_beam_model *out, const char *text, size_t len, const char *source)
 {
-    parser p = {ctx, source ? source : "beam data"};
+    parser p = {ctx, source ? source : "beam data", {ctx, "file", source ? source : "beam data"}};
     cJSON *root = NULL;
     int rc;
 
@@ -482,18 +397,8 @@ int fxl_beam_json_parse(fxl_ctx *ctx, fxl_beam_model *out, const char *text, siz
     if (!text)
         return fxl_fail(ctx, FXL_EINVAL, "file '%s' is empty", p.name);
     /* Text must be UTF-8, and "\u0000" would silently cut a name short. */
-    if (fxl_utf8_invalid_at(text, len) >= 0)
-        return fxl_fail(ctx, FXL_EINVAL, "file '%s' is not valid: text that is not UTF-8 (at byte %ld)",
-                        p.name, fxl_utf8_invalid_at(text, len) + 1);
-    if (fxl_json_nul_escape_at(text, len) >= 0)
-        return fxl_fail(ctx, FXL_EINVAL, "file '%s' is not valid: an escaped NUL character (\\u0000) at byte %ld",
-                        p.name, fxl_json_nul_escape_at(text, len) + 1);
-    if (!(root = cJSON_ParseWithLength(text, len))) {
-        rc = syntax_error(&p, text, len);
-        goto cleanup;
-    }
-    rc = parse_root(&p, root, out);
-cleanup:
+    if ((rc = fxl_jsondoc_parse(&p.doc, &root, text, len, FXL_JSONDOC_AT_BYTE)) == 0)
+        rc = parse_root(&p, root, out);
     cJSON_Delete(root);
     if (rc != 0)
         fxl_beam_model_release(out);
@@ -502,7 +407,14 @@ cleanup:
 
 int fxl_beam_json_read(fxl_ctx *ctx, fxl_beam_model *out, const char *path)
 {
-    FILE *f = NULL;
+    static const fxl_jsondoc_file spec = {
+        .max_bytes = 1024 * 1024,
+        .too_large_code = FXL_EINVAL,
+        .open_fail = "cannot open beam data file '%s'",
+        .read_fail = "cannot read beam data file '%s'",
+        .too_large = "file '%s' is larger than %d bytes",
+        .no_memory = "out of memory reading '%s'",
+    };
     char *buf = NULL;
     size_t len;
     int rc;
@@ -511,27 +423,8 @@ int fxl_beam_json_read(fxl_ctx *ctx, fxl_beam_model *out, const char *path)
         fxl_beam_model_init(out);
     if (!path)
         return fxl_fail(ctx, FXL_EINVAL, "internal: no beam data path");
-    if (!(f = fopen(path, "rb"))) {
-        rc = fxl_fail(ctx, FXL_EIO, "cannot open beam data file '%s'", path);
-        goto cleanup;
-    }
-    if (!(buf = malloc(FILE_MAX_BYTES + 1))) {
-        rc = fxl_fail(ctx, FXL_EIO, "out of memory reading '%s'", path);
-        goto cleanup;
-    }
-    len = fread(buf, 1, FILE_MAX_BYTES + 1, f);
-    if (ferror(f)) {
-        rc = fxl_fail(ctx, FXL_EIO, "cannot read beam data file '%s'", path);
-        goto cleanup;
-    }
-    if (len > FILE_MAX_BYTES) {
-        rc = fxl_fail(ctx, FXL_EINVAL, "file '%s' is larger than %d bytes", path, FILE_MAX_BYTES);
-        goto cleanup;
-    }
-    rc = fxl_beam_json_parse(ctx, out, buf, len, path);
-cleanup:
-    if (f)
-        fclose(f);
+    if ((rc = fxl_jsondoc_read_file(ctx, &buf, &len, path, &spec)) == 0)
+        rc = fxl_beam_json_parse(ctx, out, buf, len, path);
     free(buf);
     return rc;
 }

@@ -14,8 +14,8 @@
 #include "fxl/dicom_plan.h"
 #include "fxl/fxl.h"
 #include "fxl/text.h"
+#include "io/json_doc.h"
 
-#define FILE_MAX_BYTES (16 * 1024 * 1024)
 #define DEPTH_MAX 8
 #define LEAF_PAIRS_MAX 200
 
@@ -96,55 +96,6 @@ typedef struct parser {
 } parser;
 
 /* ---- structure of the JSON Model -------------------------------------------- */
-
-static void line_col(const char *text, size_t pos, int *line, int *col)
-{
-    size_t i;
-
-    *line = 1;
-    *col = 1;
-    for (i = 0; i < pos; i++) {
-        if (text[i] == '\n') {
-            (*line)++;
-            *col = 1;
-        } else {
-            (*col)++;
-        }
-    }
-}
-
-/* Where malformed JSON stops. cJSON points at the last byte both when the
- * text ends early and when that byte is wrong; a second parse with a
- * sentinel appended tells the two apart. */
-static int syntax_error(const parser *p, const char *text, size_t len)
-{
-    char *padded = malloc(len + 3);
-    const char *err = NULL;
-    size_t pos = len;
-    cJSON *again;
-    int line, col;
-
-    if (!padded)
-        return fxl_fail(p->ctx, FXL_EIO, "out of memory reading '%s'", p->name);
-    memcpy(padded, text, len);
-    memcpy(padded + len, " @", 3);
-    again = cJSON_ParseWithLengthOpts(padded, len + 2, &err, 0);
-    cJSON_Delete(again);
-    if (!err)
-        err = cJSON_GetErrorPtr();
-    if (err && err >= padded && err <= padded + len + 2)
-        pos = (size_t)(err - padded);
-    free(padded);
-    if (pos >= len) {
-        line_col(text, len, &line, &col);
-        return fxl_fail(p->ctx, FXL_EINVAL,
-                        "file '%s': malformed JSON: the file ends too early at line %d, column %d (truncated?)",
-                        p->name, line, col);
-    }
-    line_col(text, pos, &line, &col);
-    return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': malformed JSON at line %d, column %d near '%.*s'",
-                    p->name, line, col, (int)(len - pos < 12 ? len - pos : 12), text + pos);
-}
 
 static int is_tag_key(const char *s)
 {
@@ -957,6 +908,7 @@ void fxl_dicom_plan_release(fxl_dicom_plan *plan)
 int fxl_dicom_plan_parse(fxl_ctx *ctx, fxl_dicom_plan *out, const char *text, size_t len, const char *source)
 {
     parser p = {ctx, source ? source : "RT Plan"};
+    const fxl_jsondoc doc = {ctx, "file", p.name};
     cJSON *root = NULL;
     const cJSON *ds;
     int rc;
@@ -968,16 +920,8 @@ int fxl_dicom_plan_parse(fxl_ctx *ctx, fxl_dicom_plan *out, const char *text, si
     if (!text || len == 0)
         return fxl_fail(ctx, FXL_EINVAL, "file '%s' is empty", p.name);
     /* The DICOM JSON Model is UTF-8 (PS3.18 Annex F); "\u0000" would cut a value short. */
-    if (fxl_utf8_invalid_at(text, len) >= 0)
-        return fxl_fail(ctx, FXL_EINVAL, "file '%s' is not valid: text that is not UTF-8 (at byte %ld)",
-                        p.name, fxl_utf8_invalid_at(text, len) + 1);
-    if (fxl_json_nul_escape_at(text, len) >= 0)
-        return fxl_fail(ctx, FXL_EINVAL, "file '%s' is not valid: an escaped NUL character (\\u0000) at byte %ld",
-                        p.name, fxl_json_nul_escape_at(text, len) + 1);
-    if (!(root = cJSON_ParseWithLength(text, len))) {
-        rc = syntax_error(&p, text, len);
+    if ((rc = fxl_jsondoc_parse(&doc, &root, text, len, FXL_JSONDOC_AT_BYTE)) != 0)
         goto cleanup;
-    }
     ds = root;
     if (cJSON_IsArray(root)) {
         /* A DICOMweb metadata response: an array of data sets. */
@@ -1002,7 +946,14 @@ cleanup:
 
 int fxl_dicom_plan_read(fxl_ctx *ctx, fxl_dicom_plan *out, const char *path)
 {
-    FILE *f = NULL;
+    static const fxl_jsondoc_file spec = {
+        .max_bytes = 16 * 1024 * 1024,
+        .too_large_code = FXL_EINVAL,
+        .open_fail = "cannot open RT Plan file '%s'",
+        .read_fail = "cannot read RT Plan file '%s'",
+        .too_large = "file '%s' is larger than %d bytes",
+        .no_memory = "out of memory reading '%s'",
+    };
     char *buf = NULL;
     size_t len;
     int rc;
@@ -1013,27 +964,8 @@ int fxl_dicom_plan_read(fxl_ctx *ctx, fxl_dicom_plan *out, const char *path)
     }
     if (!path)
         return fxl_fail(ctx, FXL_EINVAL, "internal: no RT Plan path");
-    if (!(f = fopen(path, "rb"))) {
-        rc = fxl_fail(ctx, FXL_EIO, "cannot open RT Plan file '%s'", path);
-        goto cleanup;
-    }
-    if (!(buf = malloc(FILE_MAX_BYTES + 1))) {
-        rc = fxl_fail(ctx, FXL_EIO, "out of memory reading '%s'", path);
-        goto cleanup;
-    }
-    len = fread(buf, 1, FILE_MAX_BYTES + 1, f);
-    if (ferror(f)) {
-        rc = fxl_fail(ctx, FXL_EIO, "cannot read RT Plan file '%s'", path);
-        goto cleanup;
-    }
-    if (len > FILE_MAX_BYTES) {
-        rc = fxl_fail(ctx, FXL_EINVAL, "file '%s' is larger than %d bytes", path, FILE_MAX_BYTES);
-        goto cleanup;
-    }
-    rc = fxl_dicom_plan_parse(ctx, out, buf, len, path);
-cleanup:
-    if (f)
-        fclose(f);
+    if ((rc = fxl_jsondoc_read_file(ctx, &buf, &len, path, &spec)) == 0)
+        rc = fxl_dicom_plan_parse(ctx, out, buf, len, path);
     free(buf);
     return rc;
 }

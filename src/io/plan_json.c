@@ -3,10 +3,9 @@
  * or repeated keys are refused: a misspelt "wedge_deg" must not become an
  * open field), types and ranges, each failure named by its JSON path. */
 #include "fxl/plan_json.h"
-#include "fxl/text.h"
+#include "io/json_doc.h"
 
 #include <cjson/cJSON.h>
-#include <errno.h>
 #include <math.h>
 #include <stdarg.h>
 #include <stdio.h>
@@ -47,21 +46,14 @@ void fxl_plan_spec_release(fxl_plan_spec *spec)
 
 static int check_keys(parser *p, const cJSON *obj, const char *const *allowed, const char *accepted)
 {
-    const cJSON *a, *b;
-    const char *const *k;
+    int twice;
+    const cJSON *bad = fxl_jsondoc_bad_key(obj, allowed, &twice);
 
-    for (a = obj->child; a; a = a->next) {
-        int known = 0;
-        for (k = allowed; *k; k++)
-            if (strcmp(a->string, *k) == 0)
-                known = 1;
-        if (!known)
-            return fail(p, a->string, "has unknown key '%s' (accepted: %s)", a->string, accepted);
-        for (b = a->next; b; b = b->next)
-            if (strcmp(a->string, b->string) == 0)
-                return fail(p, a->string, "has the key '%s' twice", a->string);
-    }
-    return 0;
+    if (!bad)
+        return 0;
+    if (twice)
+        return fail(p, bad->string, "has the key '%s' twice", bad->string);
+    return fail(p, bad->string, "has unknown key '%s' (accepted: %s)", bad->string, accepted);
 }
 
 /* ---- typed values ---------------------------------------------------------- */
@@ -268,41 +260,20 @@ static int parse_field(parser *p, const cJSON *obj, size_t index, fxl_field_spec
     return 0;
 }
 
-/* Line and column (from 1) of byte offset `pos` in text. */
-static void line_col(const char *text, size_t pos, int *line, int *col)
-{
-    size_t i;
-
-    *line = 1;
-    *col = 1;
-    for (i = 0; i < pos; i++) {
-        if (text[i] == '\n') {
-            (*line)++;
-            *col = 1;
-        } else {
-            (*col)++;
-        }
-    }
-}
-
 static int parse_syntax(parser *p, cJSON **out, const char *buf, size_t len)
 {
+    const fxl_jsondoc doc = {p->ctx, "plan file", p->source};
     const char *end = NULL;
     size_t pos, i;
-    int line, col, at_end = 1;
+    int rc, line, col, at_end = 1;
 
     *out = NULL;
     if (strlen(buf) != len)
         return fxl_fail(p->ctx, FXL_EINVAL, "plan file '%s' is not valid JSON: it contains a NUL byte at byte %zu",
                         p->source, strlen(buf) + 1);
     /* Text must be UTF-8, and "\u0000" would silently cut a name short. */
-    if ((pos = (size_t)fxl_utf8_invalid_at(buf, len)) != (size_t)-1 ||
-        (pos = (size_t)fxl_json_nul_escape_at(buf, len)) != (size_t)-1) {
-        line_col(buf, pos, &line, &col);
-        return fxl_fail(p->ctx, FXL_EINVAL, "plan file '%s' is not valid: %s at line %d, column %d",
-                        p->source, buf[pos] == '\\' ? "an escaped NUL character (\\u0000)"
-                                                     : "text that is not UTF-8", line, col);
-    }
+    if ((rc = fxl_jsondoc_check_text(&doc, buf, len, 0)) != 0)
+        return rc;
     *out = cJSON_ParseWithOpts(buf, &end, 1);
     if (*out)
         return 0;
@@ -310,7 +281,7 @@ static int parse_syntax(parser *p, cJSON **out, const char *buf, size_t len)
     for (i = pos; i < len; i++)
         if (buf[i] != ' ' && buf[i] != '\t' && buf[i] != '\r' && buf[i] != '\n')
             at_end = 0;
-    line_col(buf, pos, &line, &col);
+    fxl_jsondoc_line_col(buf, pos, &line, &col);
     if (len == 0 || at_end)
         return fxl_fail(p->ctx, FXL_EINVAL,
                         "plan file '%s' is not valid JSON: it ends too early at line %d, column %d "
@@ -414,42 +385,22 @@ cleanup:
 
 int fxl_plan_json_read(fxl_ctx *ctx, fxl_plan_spec *out, const char *path)
 {
-    FILE *fp = NULL;
-    char *text = NULL, *grown;
-    size_t len = 0, cap = 0, got;
-    int rc = 0;
+    /* A file of 16 MB or more is refused. */
+    static const fxl_jsondoc_file spec = {
+        .max_bytes = ((size_t)16 << 20) - 1,
+        .too_large_code = FXL_EINVAL,
+        .open_fail = "cannot read plan file '%s': %s",
+        .read_fail = "cannot read plan file '%s'",
+        .too_large = "plan file '%s' is larger than 16 MB",
+        .no_memory = "out of memory reading plan file '%s'",
+    };
+    char *text = NULL;
+    size_t len = 0;
+    int rc;
 
     memset(out, 0, sizeof *out);
-    if (!(fp = fopen(path, "rb"))) {
-        rc = fxl_fail(ctx, FXL_EIO, "cannot read plan file '%s': %s", path, strerror(errno));
-        goto cleanup;
-    }
-    for (;;) {
-        if (len == cap) {
-            cap = cap ? cap * 2 : 8192;
-            if (cap > (size_t)16 << 20) {
-                rc = fxl_fail(ctx, FXL_EINVAL, "plan file '%s' is larger than 16 MB", path);
-                goto cleanup;
-            }
-            if (!(grown = realloc(text, cap))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory reading plan file '%s'", path);
-                goto cleanup;
-            }
-            text = grown;
-        }
-        got = fread(text + len, 1, cap - len, fp);
-        len += got;
-        if (got == 0)
-            break;
-    }
-    if (ferror(fp)) {
-        rc = fxl_fail(ctx, FXL_EIO, "cannot read plan file '%s'", path);
-        goto cleanup;
-    }
-    rc = fxl_plan_json_parse(ctx, out, text ? text : "", len, path);
-cleanup:
-    if (fp)
-        fclose(fp);
+    if ((rc = fxl_jsondoc_read_file(ctx, &text, &len, path, &spec)) == 0)
+        rc = fxl_plan_json_parse(ctx, out, text, len, path);
     free(text);
     return rc;
 }

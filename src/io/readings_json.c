@@ -2,14 +2,13 @@
  * strict parsing with the position of malformed or truncated JSON; and the
  * JSON description of a logged fraction (record --json, the alert hook).
  * No database. */
-#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
 #include "fxl/readings_json.h"
-#include "fxl/text.h"
+#include "io/json_doc.h"
 
 void fxl_readings_file_release(fxl_readings_file *f)
 {
@@ -20,146 +19,18 @@ void fxl_readings_file_release(fxl_readings_file *f)
     memset(f, 0, sizeof *f);
 }
 
-static void line_col(const char *text, size_t pos, int *line, int *col)
-{
-    size_t i;
-
-    *line = 1;
-    *col = 1;
-    for (i = 0; i < pos; i++) {
-        if (text[i] == '\n') {
-            (*line)++;
-            *col = 1;
-        } else {
-            (*col)++;
-        }
-    }
-}
-
-/* 1 when the text ends inside a string that was never closed: a file cut
- * in the middle of a name or value (cJSON then points at the string start). */
-static int ends_inside_string(const char *text, size_t len)
-{
-    size_t i;
-    int in_string = 0;
-
-    for (i = 0; i < len; i++) {
-        if (in_string && text[i] == '\\')
-            i++;
-        else if (text[i] == '"')
-            in_string = !in_string;
-    }
-    return in_string;
-}
-
-/* Where parsing stopped. cJSON reports the last byte both for a document
- * that ends too early and for a wrong last byte; parsing once more with a
- * sentinel appended separates them: a truncated document then fails at or
- * beyond the end of the original text. */
-static int syntax_error(fxl_ctx *ctx, const char *name, const char *text, size_t len)
-{
-    char *padded = malloc(len + 3);
-    const char *err = NULL;
-    size_t pos = len;
-    cJSON *again;
-    int line, col;
-
-    if (!padded)
-        return fxl_fail(ctx, FXL_EIO, "out of memory reading '%s'", name);
-    memcpy(padded, text, len);
-    memcpy(padded + len, " @", 3);
-    again = cJSON_ParseWithLengthOpts(padded, len + 2, &err, 0);
-    cJSON_Delete(again);
-    if (!err)
-        err = cJSON_GetErrorPtr();
-    if (err && err >= padded && err <= padded + len + 2)
-        pos = (size_t)(err - padded);
-    free(padded);
-    if (ends_inside_string(text, len))
-        pos = len;
-    if (pos >= len) {
-        line_col(text, len, &line, &col);
-        return fxl_fail(ctx, FXL_EINVAL,
-                        "readings file '%s': malformed JSON: the file ends too early at line %d, "
-                        "column %d (truncated?)",
-                        name, line, col);
-    }
-    line_col(text, pos, &line, &col);
-    return fxl_fail(ctx, FXL_EINVAL, "readings file '%s': malformed JSON at line %d, column %d near '%.*s'",
-                    name, line, col, (int)(len - pos < 12 ? len - pos : 12), text + pos);
-}
-
-static int check_keys(fxl_ctx *ctx, const char *name, const char *where, const cJSON *obj,
-                      const char *const *allowed)
-{
-    const cJSON *a, *b;
-    const char *const *k;
-
-    for (a = obj->child; a; a = a->next) {
-        int ok = 0;
-        for (k = allowed; *k; k++)
-            if (strcmp(a->string, *k) == 0)
-                ok = 1;
-        if (!ok)
-            return fxl_fail(ctx, FXL_EINVAL, "readings file '%s': %s: unknown key '%s'", name, where,
-                            a->string);
-        for (b = a->next; b; b = b->next)
-            if (strcmp(a->string, b->string) == 0)
-                return fxl_fail(ctx, FXL_EINVAL, "readings file '%s': %s: key '%s' appears twice", name,
-                                where, a->string);
-    }
-    return 0;
-}
-
-static int get_string(fxl_ctx *ctx, const char *name, const char *where, const cJSON *obj,
-                      const char *key, int required, char *buf, size_t bufsize)
-{
-    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, key);
-    size_t len;
-
-    buf[0] = '\0';
-    if (!v) {
-        if (required)
-            return fxl_fail(ctx, FXL_EINVAL, "readings file '%s': %s: '%s' is missing", name, where, key);
-        return 0;
-    }
-    if (!cJSON_IsString(v) || !v->valuestring)
-        return fxl_fail(ctx, FXL_EINVAL, "readings file '%s': %s: '%s' must be a string", name, where,
-                        key);
-    len = strlen(v->valuestring);
-    if (len == 0 || len >= bufsize)
-        return fxl_fail(ctx, FXL_EINVAL, "readings file '%s': %s: '%s' must be 1 to %zu characters",
-                        name, where, key, bufsize - 1);
-    memcpy(buf, v->valuestring, len + 1);
-    return 0;
-}
-
-/* An optional number; NaN when absent. `what` describes the accepted values
- * for the message. */
-static int get_number(fxl_ctx *ctx, const char *name, const char *where, const cJSON *obj,
-                      const char *key, int required, double *out, const char *what)
-{
-    const cJSON *v = cJSON_GetObjectItemCaseSensitive(obj, key);
-
-    *out = NAN;
-    if (!v) {
-        if (required)
-            return fxl_fail(ctx, FXL_EINVAL, "readings file '%s': %s: '%s' is missing (%s)", name, where,
-                            key, what);
-        return 0;
-    }
-    if (!cJSON_IsNumber(v) || !isfinite(v->valuedouble))
-        return fxl_fail(ctx, FXL_EINVAL, "readings file '%s': %s: '%s' must be a number (%s)", name,
-                        where, key, what);
-    *out = v->valuedouble;
-    return 0;
-}
+/* Names and texts of this format: 1 to n characters even when optional;
+ * this parser has not refused control characters in them, and still does
+ * not. */
+#define NAME (FXL_JSONDOC_NONEMPTY | FXL_JSONDOC_CONTROL_OK)
+#define REQ_NAME (FXL_JSONDOC_REQUIRED | NAME)
 
 static int parse_reading(fxl_ctx *ctx, const char *name, size_t index, const cJSON *obj,
                          fxl_readings_names *nm, fxl_reading_entry *e)
 {
     static const char *const keys[] = {"field", "point", "detector", "reading", "temp_c",
                                        "background", NULL};
+    const fxl_jsondoc d = {ctx, "readings file", name};
     char where[32];
     int rc;
 
@@ -169,14 +40,18 @@ static int parse_reading(fxl_ctx *ctx, const char *name, size_t index, const cJS
         return fxl_fail(ctx, FXL_EINVAL,
                         "readings file '%s': %s: must be an object {\"field\", \"detector\", \"reading\", ...}",
                         name, where);
-    if ((rc = check_keys(ctx, name, where, obj, keys)) != 0 ||
-        (rc = get_string(ctx, name, where, obj, "field", 1, nm->field, sizeof nm->field)) != 0 ||
-        (rc = get_string(ctx, name, where, obj, "point", 0, nm->point, sizeof nm->point)) != 0 ||
-        (rc = get_string(ctx, name, where, obj, "detector", 1, nm->detector, sizeof nm->detector)) != 0 ||
-        (rc = get_number(ctx, name, where, obj, "reading", 1, &e->reading, "> 0, detector unit")) != 0 ||
-        (rc = get_number(ctx, name, where, obj, "temp_c", 0, &e->temp_c, "10 to 45 degC")) != 0 ||
-        (rc = get_number(ctx, name, where, obj, "background", 0, &e->background,
-                         ">= 0, below the reading")) != 0)
+    if ((rc = fxl_jsondoc_check_keys(&d, where, obj, keys)) != 0 ||
+        (rc = fxl_jsondoc_get_string(&d, nm->field, sizeof nm->field, where, obj, "field", REQ_NAME,
+                                     sizeof nm->field - 1)) != 0 ||
+        (rc = fxl_jsondoc_get_string(&d, nm->point, sizeof nm->point, where, obj, "point", NAME,
+                                     sizeof nm->point - 1)) != 0 ||
+        (rc = fxl_jsondoc_get_string(&d, nm->detector, sizeof nm->detector, where, obj, "detector", REQ_NAME,
+                                     sizeof nm->detector - 1)) != 0 ||
+        (rc = fxl_jsondoc_get_number(&d, &e->reading, where, obj, "reading", FXL_JSONDOC_REQUIRED,
+                                     "> 0, detector unit")) != 0 ||
+        (rc = fxl_jsondoc_get_number(&d, &e->temp_c, where, obj, "temp_c", 0, "10 to 45 degC")) != 0 ||
+        (rc = fxl_jsondoc_get_number(&d, &e->background, where, obj, "background", 0,
+                                     ">= 0, below the reading")) != 0)
         return rc;
     if (nm->point[0] && strcmp(nm->point, "entrance") != 0 && strcmp(nm->point, "exit") != 0)
         return fxl_fail(ctx, FXL_EINVAL, "readings file '%s': %s: 'point' must be \"entrance\" or \"exit\"",
@@ -189,62 +64,28 @@ int fxl_readings_parse(fxl_ctx *ctx, fxl_readings_file *out, const char *name, c
 {
     static const char *const top_keys[] = {"format", "version", "patient", "plan", "fraction",
                                            "treated_at", "readings", NULL};
-    const char *end = NULL;
+    const fxl_jsondoc d = {ctx, "readings file", name};
     cJSON *root = NULL;
     const cJSON *v, *arr, *r;
-    char format[64];
-    size_t i, n, pos;
-    int rc, line, col;
+    size_t i, n;
+    int rc;
 
     memset(out, 0, sizeof *out);
-    /* Text must be UTF-8, and "\u0000" would silently cut a name short. */
-    if ((pos = (size_t)fxl_utf8_invalid_at(text, len)) != (size_t)-1 ||
-        (pos = (size_t)fxl_json_nul_escape_at(text, len)) != (size_t)-1) {
-        line_col(text, pos, &line, &col);
-        rc = fxl_fail(ctx, FXL_EINVAL, "readings file '%s' is not valid: %s at line %d, column %d", name,
-                      text[pos] == '\\' ? "an escaped NUL character (\\u0000)" : "text that is not UTF-8",
-                      line, col);
+    if ((rc = fxl_jsondoc_parse(&d, &root, text, len, FXL_JSONDOC_NO_TRAILING | FXL_JSONDOC_CUT_IN_STRING)) != 0)
         goto cleanup;
-    }
-    root = cJSON_ParseWithLengthOpts(text, len, &end, 0);
-    if (!root) {
-        rc = syntax_error(ctx, name, text, len);
-        goto cleanup;
-    }
-    for (pos = end ? (size_t)(end - text) : len; pos < len; pos++) {
-        if (!(text[pos] == ' ' || text[pos] == '\t' || text[pos] == '\r' || text[pos] == '\n' ||
-              text[pos] == '\0')) {
-            line_col(text, pos, &line, &col);
-            rc = fxl_fail(ctx, FXL_EINVAL,
-                          "readings file '%s': malformed JSON: unexpected text after the document at "
-                          "line %d, column %d",
-                          name, line, col);
-            goto cleanup;
-        }
-    }
     if (!cJSON_IsObject(root)) {
         rc = fxl_fail(ctx, FXL_EINVAL, "readings file '%s': the document must be a JSON object", name);
         goto cleanup;
     }
-    if ((rc = check_keys(ctx, name, "top level", root, top_keys)) != 0 ||
-        (rc = get_string(ctx, name, "top level", root, "format", 1, format, sizeof format)) != 0)
-        goto cleanup;
-    if (strcmp(format, FXL_READINGS_FORMAT) != 0) {
-        rc = fxl_fail(ctx, FXL_EINVAL, "readings file '%s': 'format' is '%s', expected '%s'", name, format,
-                      FXL_READINGS_FORMAT);
-        goto cleanup;
-    }
-    v = cJSON_GetObjectItemCaseSensitive(root, "version");
-    if (!cJSON_IsNumber(v) || v->valuedouble != FXL_READINGS_VERSION) {
-        rc = fxl_fail(ctx, FXL_EINVAL, "readings file '%s': 'version' must be %d", name,
-                      FXL_READINGS_VERSION);
-        goto cleanup;
-    }
-    if ((rc = get_string(ctx, name, "top level", root, "patient", 1, out->patient,
-                         sizeof out->patient)) != 0 ||
-        (rc = get_string(ctx, name, "top level", root, "plan", 0, out->plan, sizeof out->plan)) != 0 ||
-        (rc = get_string(ctx, name, "top level", root, "treated_at", 0, out->treated_at,
-                         sizeof out->treated_at)) != 0)
+    if ((rc = fxl_jsondoc_check_keys(&d, "top level", root, top_keys)) != 0 ||
+        (rc = fxl_jsondoc_check_format(&d, "top level", root, REQ_NAME, FXL_READINGS_FORMAT,
+                                       FXL_READINGS_VERSION)) != 0 ||
+        (rc = fxl_jsondoc_get_string(&d, out->patient, sizeof out->patient, "top level", root, "patient",
+                                     REQ_NAME, sizeof out->patient - 1)) != 0 ||
+        (rc = fxl_jsondoc_get_string(&d, out->plan, sizeof out->plan, "top level", root, "plan", NAME,
+                                     sizeof out->plan - 1)) != 0 ||
+        (rc = fxl_jsondoc_get_string(&d, out->treated_at, sizeof out->treated_at, "top level", root,
+                                     "treated_at", NAME, sizeof out->treated_at - 1)) != 0)
         goto cleanup;
     v = cJSON_GetObjectItemCaseSensitive(root, "fraction");
     if (v) {
@@ -296,37 +137,22 @@ cleanup:
 
 int fxl_readings_read(fxl_ctx *ctx, fxl_readings_file *out, const char *path)
 {
-    FILE *fp = NULL;
+    static const fxl_jsondoc_file spec = {
+        .max_bytes = FXL_READINGS_FILE_MAX_BYTES,
+        .allow_stdin = 1,
+        .too_large_code = FXL_EIO,
+        .open_fail = "cannot read readings file '%s': %s",
+        .read_fail = "cannot read readings file '%s': %s",
+        .too_large = "readings file '%s' is larger than %d bytes",
+        .no_memory = "out of memory reading '%s'",
+    };
     char *buf = NULL;
-    size_t len = 0, got;
-    int rc, is_stdin = strcmp(path, "-") == 0;
+    size_t len = 0;
+    int rc;
 
     memset(out, 0, sizeof *out);
-    fp = is_stdin ? stdin : fopen(path, "rb");
-    if (!fp)
-        return fxl_fail(ctx, FXL_EIO, "cannot read readings file '%s': %s", path, strerror(errno));
-    if (!(buf = malloc(FXL_READINGS_FILE_MAX_BYTES + 1))) {
-        rc = fxl_fail(ctx, FXL_EIO, "out of memory reading '%s'", path);
-        goto cleanup;
-    }
-    while ((got = fread(buf + len, 1, FXL_READINGS_FILE_MAX_BYTES + 1 - len, fp)) > 0) {
-        len += got;
-        if (len > FXL_READINGS_FILE_MAX_BYTES)
-            break;
-    }
-    if (ferror(fp)) {
-        rc = fxl_fail(ctx, FXL_EIO, "cannot read readings file '%s': %s", path, strerror(errno));
-        goto cleanup;
-    }
-    if (len > FXL_READINGS_FILE_MAX_BYTES) {
-        rc = fxl_fail(ctx, FXL_EIO, "readings file '%s' is larger than %d bytes", path,
-                      FXL_READINGS_FILE_MAX_BYTES);
-        goto cleanup;
-    }
-    rc = fxl_readings_parse(ctx, out, path, buf, len);
-cleanup:
-    if (fp && !is_stdin)
-        fclose(fp);
+    if ((rc = fxl_jsondoc_read_file(ctx, &buf, &len, path, &spec)) == 0)
+        rc = fxl_readings_parse(ctx, out, path, buf, len);
     free(buf);
     return rc;
 }
