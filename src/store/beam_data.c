@@ -15,6 +15,7 @@
 #include "fxl/beam_data.h"
 #include "fxl/beam_json.h"
 #include "store/audit.h"
+#include "store/grow.h"
 #include "store/model_store.h"
 #include "store/stmt.h"
 
@@ -279,7 +280,7 @@ cleanup:
 int fxl_beam_data_list(fxl_ctx *ctx, fxl_beam_data_info **out, size_t *n, const char *machine)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_beam_data_info *list = NULL, *grown;
+    fxl_beam_data_info *list = NULL;
     char now[FXL_TIME_LEN];
     size_t cap = 0, count = 0;
     int rc;
@@ -313,14 +314,8 @@ int fxl_beam_data_list(fxl_ctx *ctx, fxl_beam_data_info **out, size_t *n, const 
     fxl_stmt_bind_text(&s, ":machine", machine);
     while ((rc = fxl_stmt_step(&s)) == 1) {
         fxl_beam_data_info *d;
-        if (count == cap) {
-            cap = cap ? cap * 2 : 8;
-            if (!(grown = realloc(list, cap * sizeof *list))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing beam data");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list, "listing beam data")) != 0)
+            goto cleanup;
         d = &list[count++];
         memset(d, 0, sizeof *d);
         d->id = fxl_stmt_int(&s, 0);

@@ -12,6 +12,7 @@
 #include "fxl/machines.h"
 #include "fxl/settings.h"
 #include "store/audit.h"
+#include "store/grow.h"
 #include "store/stmt.h"
 
 /* Columns shared by listing and reading back one row. `superseded` asks for
@@ -313,7 +314,7 @@ int fxl_calib_list(fxl_ctx *ctx, fxl_calibration **out, size_t *n, const char *s
                    const char *at)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_calibration *list = NULL, *grown;
+    fxl_calibration *list = NULL;
     char nowbuf[FXL_TIME_LEN];
     size_t count = 0, cap = 0;
     int64_t id = 0;
@@ -334,14 +335,8 @@ int fxl_calib_list(fxl_ctx *ctx, fxl_calibration **out, size_t *n, const char *s
     fxl_stmt_bind_text(&s, ":serial", serial);
     fxl_stmt_bind_text(&s, ":at", at);
     while ((rc = fxl_stmt_step(&s)) == 1) {
-        if (count == cap) {
-            cap = cap ? cap * 2 : 16;
-            if (!(grown = realloc(list, cap * sizeof *grown))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing calibrations");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list, "listing calibrations")) != 0)
+            goto cleanup;
         read_row(&s, &list[count++], at);
     }
     if (rc == 0) {

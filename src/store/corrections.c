@@ -10,6 +10,7 @@
 #include "fxl/detectors.h"
 #include "fxl/machines.h"
 #include "store/audit.h"
+#include "store/grow.h"
 #include "store/stmt.h"
 
 static int table_exists(fxl_ctx *ctx, int *exists, int64_t detector_id, int64_t beam_id,
@@ -223,7 +224,7 @@ int fxl_corr_list(fxl_ctx *ctx, fxl_corr_table **out, size_t *n, const char *ser
                   const char *at)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_corr_table *list = NULL, *grown;
+    fxl_corr_table *list = NULL;
     char nowbuf[FXL_TIME_LEN];
     size_t count = 0, cap = 0;
     int64_t id = 0;
@@ -244,14 +245,8 @@ int fxl_corr_list(fxl_ctx *ctx, fxl_corr_table **out, size_t *n, const char *ser
     fxl_stmt_bind_text(&s, ":serial", serial);
     fxl_stmt_bind_text(&s, ":at", at);
     while ((rc = fxl_stmt_step(&s)) == 1) {
-        if (count == cap) {
-            cap = cap ? cap * 2 : 16;
-            if (!(grown = realloc(list, cap * sizeof *grown))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing correction tables");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list, "listing correction tables")) != 0)
+            goto cleanup;
         read_table(&s, &list[count++]);
     }
     if (rc == 0) {

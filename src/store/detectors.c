@@ -8,6 +8,7 @@
 
 #include "fxl/detectors.h"
 #include "store/audit.h"
+#include "store/grow.h"
 #include "store/stmt.h"
 
 static const char *const kinds[] = {"photon_diode", "electron_diode", "small_field_diode",
@@ -288,7 +289,7 @@ cleanup:
 int fxl_detector_list(fxl_ctx *ctx, fxl_detector **out, size_t *n, const char *at)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_detector *list = NULL, *grown;
+    fxl_detector *list = NULL;
     char nowbuf[FXL_TIME_LEN];
     size_t count = 0, cap = 0, i;
     int rc;
@@ -299,14 +300,8 @@ int fxl_detector_list(fxl_ctx *ctx, fxl_detector **out, size_t *n, const char *a
     if ((rc = fxl_stmt_prepare(&s, ctx, DETECTOR_COLUMNS "ORDER BY serial")) != 0)
         goto cleanup;
     while ((rc = fxl_stmt_step(&s)) == 1) {
-        if (count == cap) {
-            cap = cap ? cap * 2 : 16;
-            if (!(grown = realloc(list, cap * sizeof *grown))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing detectors");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list, "listing detectors")) != 0)
+            goto cleanup;
         read_detector(&s, &list[count++]);
     }
     if (rc < 0)
@@ -329,7 +324,7 @@ int fxl_detector_status_history(fxl_ctx *ctx, fxl_detector_status_row **out, siz
                                 const char *serial)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_detector_status_row *list = NULL, *grown;
+    fxl_detector_status_row *list = NULL;
     size_t count = 0, cap = 0;
     int64_t id = 0;
     int rc;
@@ -346,14 +341,8 @@ int fxl_detector_status_history(fxl_ctx *ctx, fxl_detector_status_row **out, siz
     fxl_stmt_bind_int(&s, ":d", id);
     while ((rc = fxl_stmt_step(&s)) == 1) {
         fxl_detector_status_row *r;
-        if (count == cap) {
-            cap = cap ? cap * 2 : 8;
-            if (!(grown = realloc(list, cap * sizeof *grown))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing status history");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list, "listing status history")) != 0)
+            goto cleanup;
         r = &list[count++];
         memset(r, 0, sizeof *r);
         r->id = fxl_stmt_int(&s, 0);

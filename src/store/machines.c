@@ -7,6 +7,7 @@
 
 #include "fxl/machines.h"
 #include "store/audit.h"
+#include "store/grow.h"
 #include "store/stmt.h"
 
 static int name_ok(const char *s, size_t max)
@@ -217,7 +218,6 @@ static int load_beams(fxl_ctx *ctx, fxl_machine *m)
 {
     fxl_stmt s = FXL_STMT_INIT;
     size_t cap = 0;
-    fxl_beam *grown;
     int rc;
 
     if ((rc = fxl_stmt_prepare(&s, ctx,
@@ -228,14 +228,9 @@ static int load_beams(fxl_ctx *ctx, fxl_machine *m)
     fxl_stmt_bind_int(&s, ":m", m->id);
     while ((rc = fxl_stmt_step(&s)) == 1) {
         fxl_beam *b;
-        if (m->n_beams == cap) {
-            cap = cap ? cap * 2 : 8;
-            if (!(grown = realloc(m->beams, cap * sizeof *grown))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing beams");
-                goto cleanup;
-            }
-            m->beams = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&m->beams, &cap, m->n_beams, sizeof *m->beams,
+                           "listing beams")) != 0)
+            goto cleanup;
         b = &m->beams[m->n_beams++];
         memset(b, 0, sizeof *b);
         b->id = fxl_stmt_int(&s, 0);
@@ -257,7 +252,7 @@ cleanup:
 int fxl_machine_list(fxl_ctx *ctx, fxl_machine **out, size_t *n)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_machine *list = NULL, *grown;
+    fxl_machine *list = NULL;
     size_t count = 0, cap = 0, i;
     int rc;
 
@@ -268,14 +263,8 @@ int fxl_machine_list(fxl_ctx *ctx, fxl_machine **out, size_t *n)
         goto cleanup;
     while ((rc = fxl_stmt_step(&s)) == 1) {
         fxl_machine *m;
-        if (count == cap) {
-            cap = cap ? cap * 2 : 8;
-            if (!(grown = realloc(list, cap * sizeof *grown))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing machines");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list, "listing machines")) != 0)
+            goto cleanup;
         m = &list[count++];
         memset(m, 0, sizeof *m);
         m->id = fxl_stmt_int(&s, 0);

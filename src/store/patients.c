@@ -6,6 +6,7 @@
 
 #include "fxl/patients.h"
 #include "store/audit.h"
+#include "store/grow.h"
 #include "store/stmt.h"
 
 #define PATIENT_COLUMNS                                                                         \
@@ -140,7 +141,7 @@ cleanup:
 int fxl_patient_list(fxl_ctx *ctx, fxl_patient **out, size_t *n)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_patient *list = NULL, *grown;
+    fxl_patient *list = NULL;
     size_t cap = 0, count = 0;
     int rc;
 
@@ -150,14 +151,8 @@ int fxl_patient_list(fxl_ctx *ctx, fxl_patient **out, size_t *n)
                                         "ORDER BY p.family_name, p.given_name, p.mrn")) != 0)
         goto cleanup;
     while ((rc = fxl_stmt_step(&s)) == 1) {
-        if (count == cap) {
-            cap = cap ? cap * 2 : 16;
-            if (!(grown = realloc(list, cap * sizeof *list))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing patients");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list, "listing patients")) != 0)
+            goto cleanup;
         read_patient(&s, &list[count++]);
     }
 cleanup:

@@ -12,6 +12,7 @@
 #include "fxl/beam_model.h"
 #include "fxl/plans.h"
 #include "store/audit.h"
+#include "store/grow.h"
 #include "store/model_store.h"
 #include "store/review_store.h"
 #include "store/stmt.h"
@@ -780,7 +781,7 @@ void fxl_plan_release(fxl_plan *plan)
 int fxl_plan_list(fxl_ctx *ctx, fxl_plan **out, size_t *n, const char *mrn)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_plan *list = NULL, *grown;
+    fxl_plan *list = NULL;
     size_t cap = 0, count = 0;
     int rc;
 
@@ -803,14 +804,8 @@ int fxl_plan_list(fxl_ctx *ctx, fxl_plan **out, size_t *n, const char *mrn)
     if (mrn)
         fxl_stmt_bind_text(&s, ":mrn", mrn);
     while ((rc = fxl_stmt_step(&s)) == 1) {
-        if (count == cap) {
-            cap = cap ? cap * 2 : 16;
-            if (!(grown = realloc(list, cap * sizeof *list))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing plans");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list, "listing plans")) != 0)
+            goto cleanup;
         read_plan(&s, &list[count++]);
     }
 cleanup:

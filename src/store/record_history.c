@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "store/audit.h"
+#include "store/grow.h"
 #include "store/record_int.h"
 #include "store/stmt.h"
 
@@ -40,7 +41,7 @@ static int check_exists(fxl_ctx *ctx, const char *sql, const char *name1, const 
 int fxl_history_list(fxl_ctx *ctx, fxl_history_row **out, size_t *n, const fxl_history_query *q)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_history_row *list = NULL, *grown;
+    fxl_history_row *list = NULL;
     rec_plan plan;
     size_t cap = 0, count = 0;
     int rc, found = 0, i;
@@ -99,14 +100,8 @@ int fxl_history_list(fxl_ctx *ctx, fxl_history_row **out, size_t *n, const fxl_h
     while ((rc = fxl_stmt_step(&s)) == 1) {
         fxl_history_row *r;
 
-        if (count == cap) {
-            cap = cap ? cap * 2 : 16;
-            if (!(grown = realloc(list, cap * sizeof *list))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing measurements");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list, "listing measurements")) != 0)
+            goto cleanup;
         r = &list[count++];
         memset(r, 0, sizeof *r);
         r->measurement_id = fxl_stmt_int(&s, 0);
@@ -200,15 +195,9 @@ int fxl_record_plan_load(fxl_ctx *ctx, fxl_record_plan *out, const char *mrn,
     while ((rc = fxl_stmt_step(&s)) == 1) {
         fxl_record_field_info *f;
 
-        if (out->n_fields == cap) {
-            fxl_record_field_info *grown;
-            cap = cap ? cap * 2 : 8;
-            if (!(grown = realloc(out->fields, cap * sizeof *grown))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory reading the plan");
-                goto cleanup;
-            }
-            out->fields = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&out->fields, &cap, out->n_fields, sizeof *out->fields,
+                           "reading the plan")) != 0)
+            goto cleanup;
         f = &out->fields[out->n_fields++];
         memset(f, 0, sizeof *f);
         f->field_id = fxl_stmt_int(&s, 0);

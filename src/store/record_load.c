@@ -9,6 +9,7 @@
 #include <string.h>
 
 #include "fxl/thresholds.h"
+#include "store/grow.h"
 #include "store/record_int.h"
 #include "store/stmt.h"
 
@@ -389,7 +390,7 @@ static int load_tables(fxl_ctx *ctx, rec_inputs *in, const char *at)
         goto cleanup;
     for (i = 0; i < FXL_CF_COUNT; i++) {
         rec_table *tb = &in->tables[i];
-        size_t cap = 0;
+        size_t cap_x = 0, cap_f = 0;
 
         fxl_stmt_reset(&t);
         fxl_stmt_bind_int(&t, ":det", in->detector_id);
@@ -405,20 +406,11 @@ static int load_tables(fxl_ctx *ctx, rec_inputs *in, const char *at)
         fxl_stmt_reset(&p);
         fxl_stmt_bind_int(&p, ":table", tb->id);
         while ((rc = fxl_stmt_step(&p)) == 1) {
-            if (tb->n == cap) {
-                double *nx, *nf;
-                cap = cap ? cap * 2 : 16;
-                nx = realloc(tb->x, cap * sizeof *nx);
-                if (nx)
-                    tb->x = nx;
-                nf = realloc(tb->factor, cap * sizeof *nf);
-                if (nf)
-                    tb->factor = nf;
-                if (!nx || !nf) {
-                    rc = fxl_fail(ctx, FXL_EIO, "out of memory loading correction tables");
-                    goto cleanup;
-                }
-            }
+            if ((rc = fxl_grow(ctx, (void **)&tb->x, &cap_x, tb->n, sizeof *tb->x,
+                               "loading correction tables")) != 0 ||
+                (rc = fxl_grow(ctx, (void **)&tb->factor, &cap_f, tb->n, sizeof *tb->factor,
+                               "loading correction tables")) != 0)
+                goto cleanup;
             tb->x[tb->n] = fxl_stmt_double(&p, 0);
             tb->factor[tb->n] = fxl_stmt_double(&p, 1);
             tb->n++;

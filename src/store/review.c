@@ -14,6 +14,7 @@
 #include "fxl/review.h"
 #include "fxl/rules.h"
 #include "store/audit.h"
+#include "store/grow.h"
 #include "store/review_store.h"
 #include "store/stmt.h"
 
@@ -24,22 +25,10 @@ static void copy(char *dst, size_t size, const char *src)
     snprintf(dst, size, "%s", src ? src : "");
 }
 
-/* Grows *arr (elements of `elem` bytes) to hold at least count + 1. */
+/* The review queue's arrays grow through fxl_grow with one message. */
 static int grow(fxl_ctx *ctx, void **arr, size_t *cap, size_t count, size_t elem)
 {
-    void *p;
-    size_t ncap;
-
-    if (count < *cap)
-        return 0;
-    ncap = *cap ? *cap * 2 : 16;
-    p = realloc(*arr, ncap * elem);
-    if (!p)
-        return fxl_fail(ctx, FXL_EIO, "out of memory reading the review queue");
-    memset((char *)p + *cap * elem, 0, (ncap - *cap) * elem);
-    *arr = p;
-    *cap = ncap;
-    return 0;
+    return fxl_grow(ctx, arr, cap, count, elem, "reading the review queue");
 }
 
 static int is_blank(const char *s)

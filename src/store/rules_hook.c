@@ -9,6 +9,7 @@
 #include <string.h>
 
 #include "fxl/rules.h"
+#include "store/grow.h"
 #include "store/review_store.h"
 #include "store/rules_hook.h"
 #include "store/stmt.h"
@@ -127,7 +128,7 @@ typedef struct slot_store {
 static int load_slots(fxl_ctx *ctx, slot_store **out, size_t *n, int64_t plan_id, int64_t field_id)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    slot_store *list = NULL, *grown;
+    slot_store *list = NULL;
     size_t cap = 0, count = 0;
     int rc;
 
@@ -142,14 +143,9 @@ static int load_slots(fxl_ctx *ctx, slot_store **out, size_t *n, int64_t plan_id
     fxl_stmt_bind_int(&s, ":field", field_id);
     fxl_stmt_bind_int(&s, ":plan", plan_id);
     while ((rc = fxl_stmt_step(&s)) == 1) {
-        if (count == cap) {
-            cap = cap ? cap * 2 : 32;
-            if (!(grown = realloc(list, cap * sizeof *list))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory evaluating the rules over history");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list,
+                           "evaluating the rules over history")) != 0)
+            goto cleanup;
         list[count].number = (int)fxl_stmt_int(&s, 0);
         snprintf(list[count].at, sizeof list[count].at, "%s", fxl_stmt_text(&s, 1));
         list[count].measured = (int)fxl_stmt_int(&s, 2);
@@ -250,7 +246,7 @@ cleanup:
 static int rule_missing(fxl_ctx *ctx, const hook_fraction *fr, const fxl_rule_settings *rs)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    struct { int64_t id; char name[65]; char point[16]; fxl_policy policy; } *fields = NULL, *grown;
+    struct { int64_t id; char name[65]; char point[16]; fxl_policy policy; } *fields = NULL;
     size_t cap = 0, n = 0, i;
     int rc;
 
@@ -260,14 +256,9 @@ static int rule_missing(fxl_ctx *ctx, const hook_fraction *fr, const fxl_rule_se
         goto cleanup;
     fxl_stmt_bind_int(&s, ":plan", fr->plan_id);
     while ((rc = fxl_stmt_step(&s)) == 1) {
-        if (n == cap) {
-            cap = cap ? cap * 2 : 16;
-            if (!(grown = realloc(fields, cap * sizeof *fields))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory evaluating the rules over history");
-                goto cleanup;
-            }
-            fields = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&fields, &cap, n, sizeof *fields,
+                           "evaluating the rules over history")) != 0)
+            goto cleanup;
         fields[n].id = fxl_stmt_int(&s, 0);
         snprintf(fields[n].name, sizeof fields[n].name, "%s", fxl_stmt_text(&s, 1));
         snprintf(fields[n].point, sizeof fields[n].point, "%s", fxl_stmt_text(&s, 2));
@@ -429,7 +420,7 @@ int fxl_drift_series(fxl_ctx *ctx, fxl_drift_point **out, size_t *n, char since[
                      int64_t detector_id)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_drift_point *list = NULL, *grown;
+    fxl_drift_point *list = NULL;
     size_t cap = 0, count = 0;
     int rc;
 
@@ -467,14 +458,9 @@ int fxl_drift_series(fxl_ctx *ctx, fxl_drift_point **out, size_t *n, char since[
     fxl_stmt_bind_text(&s, ":since", since);
     while ((rc = fxl_stmt_step(&s)) == 1) {
         fxl_drift_point *p;
-        if (count == cap) {
-            cap = cap ? cap * 2 : 32;
-            if (!(grown = realloc(list, cap * sizeof *list))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory reading a detector's deviations");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list,
+                           "reading a detector's deviations")) != 0)
+            goto cleanup;
         p = &list[count++];
         memset(p, 0, sizeof *p);
         p->measurement_id = fxl_stmt_int(&s, 0);
@@ -545,7 +531,7 @@ cleanup:
 static int load_detectors(fxl_ctx *ctx, hook_detector **out, size_t *n, int64_t fraction_id)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    hook_detector *list = NULL, *grown;
+    hook_detector *list = NULL;
     size_t cap = 0, count = 0;
     int rc;
 
@@ -557,14 +543,9 @@ static int load_detectors(fxl_ctx *ctx, hook_detector **out, size_t *n, int64_t 
         goto cleanup;
     fxl_stmt_bind_int(&s, ":fr", fraction_id);
     while ((rc = fxl_stmt_step(&s)) == 1) {
-        if (count == cap) {
-            cap = cap ? cap * 2 : 8;
-            if (!(grown = realloc(list, cap * sizeof *list))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory evaluating the rules over history");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list,
+                           "evaluating the rules over history")) != 0)
+            goto cleanup;
         list[count].id = fxl_stmt_int(&s, 0);
         snprintf(list[count].serial, sizeof list[count].serial, "%s", fxl_stmt_text(&s, 1));
         list[count].dose_limit_cgy = fxl_stmt_double_opt(&s, 2);

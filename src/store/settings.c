@@ -11,6 +11,7 @@
 #include "fxl/review.h"
 #include "fxl/rules.h"
 #include "fxl/settings.h"
+#include "store/grow.h"
 #include "store/stmt.h"
 
 typedef enum { KIND_TEXT, KIND_NUMBER, KIND_INT, KIND_TIMEZONE, KIND_DISPOSITIONS } value_kind;
@@ -196,14 +197,11 @@ static int add_row(fxl_ctx *ctx, fxl_setting **list, size_t *n, size_t *cap, con
                    const char *value, int is_default)
 {
     const setting_rule *r = find_rule(key);
-    fxl_setting *grown, *row;
+    fxl_setting *row;
+    int rc;
 
-    if (*n == *cap) {
-        *cap = *cap ? *cap * 2 : 16;
-        if (!(grown = realloc(*list, *cap * sizeof **list)))
-            return fxl_fail(ctx, FXL_EIO, "out of memory listing settings");
-        *list = grown;
-    }
+    if ((rc = fxl_grow(ctx, (void **)list, cap, *n, sizeof **list, "listing settings")) != 0)
+        return rc;
     row = &(*list)[(*n)++];
     memset(row, 0, sizeof *row);
     snprintf(row->key, sizeof row->key, "%s", key);

@@ -9,6 +9,7 @@
 #include "fxl/scope.h"
 #include "fxl/thresholds.h"
 #include "store/audit.h"
+#include "store/grow.h"
 #include "store/stmt.h"
 
 static const char *const detector_kinds[] = {"photon_diode", "electron_diode", "small_field_diode",
@@ -71,7 +72,7 @@ static int load_rows(fxl_ctx *ctx, fxl_threshold_set **out, size_t *n, const cha
                      int by_version)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_threshold_set *list = NULL, *grown;
+    fxl_threshold_set *list = NULL;
     size_t cap = 0, count = 0;
     int rc;
 
@@ -89,15 +90,8 @@ static int load_rows(fxl_ctx *ctx, fxl_threshold_set **out, size_t *n, const cha
     if (where_at)
         fxl_stmt_bind_text(&s, ":at", where_at);
     while ((rc = fxl_stmt_step(&s)) == 1) {
-        if (count == cap) {
-            cap = cap ? cap * 2 : 16;
-            grown = realloc(list, cap * sizeof *list);
-            if (!grown) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory reading threshold sets");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list, "reading threshold sets")) != 0)
+            goto cleanup;
         read_set(&s, &list[count++]);
     }
 cleanup:

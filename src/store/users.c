@@ -7,6 +7,7 @@
 #include "fxl/settings.h"
 #include "fxl/users.h"
 #include "store/audit.h"
+#include "store/grow.h"
 #include "store/stmt.h"
 
 /* Defaults written at init; docs/settings.md explains each. */
@@ -189,7 +190,7 @@ cleanup:
 int fxl_user_list(fxl_ctx *ctx, fxl_user **out, size_t *n)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    fxl_user *list = NULL, *grown;
+    fxl_user *list = NULL;
     size_t cap = 0, count = 0;
     int rc;
 
@@ -201,14 +202,8 @@ int fxl_user_list(fxl_ctx *ctx, fxl_user **out, size_t *n)
         goto cleanup;
     while ((rc = fxl_stmt_step(&s)) == 1) {
         fxl_user *u;
-        if (count == cap) {
-            cap = cap ? cap * 2 : 16;
-            if (!(grown = realloc(list, cap * sizeof *list))) {
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory listing users");
-                goto cleanup;
-            }
-            list = grown;
-        }
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list, "listing users")) != 0)
+            goto cleanup;
         u = &list[count++];
         memset(u, 0, sizeof *u);
         u->id = fxl_stmt_int(&s, 0);
