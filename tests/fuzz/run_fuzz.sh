@@ -29,6 +29,8 @@ run_one() {
     cov=$(grep -o 'cov: [0-9]*' "$work/$p.log" | tail -1)
     if [ $rc -eq 0 ]; then
         echo "fuzz $p: ${seconds} s, ${runs:-?} runs, $cov, no finding"
+    elif [ $rc -eq 72 ] && grep -q 'run interrupted' "$work/$p.log"; then
+        echo "fuzz $p: interrupted after ${runs:-?} runs, $cov, no finding"
     else
         echo "fuzz $p: FINDING (exit $rc); input in $work/artifacts/$p/, log $work/$p.log"
         grep -m1 -E 'ERROR|contract broken|runtime error' "$work/$p.log"
