@@ -9,6 +9,8 @@
 #include "fxl/detectors.h"
 #include "store/audit.h"
 #include "store/grow.h"
+#include "store/json_put.h"
+#include "store/lookup.h"
 #include "store/stmt.h"
 
 static const char *const kinds[] = {"photon_diode", "electron_diode", "small_field_diode",
@@ -30,36 +32,18 @@ int fxl_detector_unit_valid(const char *unit) { return in_list(units, unit); }
 
 int fxl_detector_find(fxl_ctx *ctx, int64_t *out_id, const char *serial)
 {
-    fxl_stmt s = FXL_STMT_INIT;
-    int rc = fxl_stmt_prepare(&s, ctx, "SELECT id FROM detectors WHERE serial = :serial");
+    int rc = fxl_lookup_id(ctx, out_id, "SELECT id FROM detectors WHERE serial = :serial", ":serial", serial);
 
-    if (rc == 0) {
-        fxl_stmt_bind_text(&s, ":serial", serial);
-        rc = fxl_stmt_step(&s);
-        if (rc == 1) {
-            *out_id = fxl_stmt_int(&s, 0);
-            rc = 0;
-        } else if (rc == 0) {
-            rc = fxl_fail(ctx, FXL_ENOTFOUND, "unknown detector '%s' (see 'fxledger detector list')",
-                          serial ? serial : "");
-        }
-    }
-    fxl_stmt_finalize(&s);
-    return rc;
+    if (rc == 0)
+        return fxl_fail(ctx, FXL_ENOTFOUND, "unknown detector '%s' (see 'fxledger detector list')",
+                        serial ? serial : "");
+    return rc < 0 ? rc : 0;
 }
 
 static int text_len_ok(const char *s, size_t lo, size_t hi)
 {
     size_t len = s ? strlen(s) : 0;
     return len >= lo && len <= hi;
-}
-
-static void add_opt_number(cJSON *o, const char *key, double v)
-{
-    if (isnan(v))
-        cJSON_AddNullToObject(o, key);
-    else
-        cJSON_AddNumberToObject(o, key, v);
 }
 
 static int insert_status(fxl_ctx *ctx, int64_t detector_id, const char *status,
@@ -156,13 +140,10 @@ int fxl_detector_add(fxl_ctx *ctx, int64_t *out_id, const fxl_detector_spec *d)
     cJSON_AddStringToObject(audit, "label", d->label);
     cJSON_AddStringToObject(audit, "kind", d->kind);
     cJSON_AddStringToObject(audit, "reading_unit", unit);
-    add_opt_number(audit, "sensitivity", d->sensitivity);
+    fxl_json_put_number(audit, "sensitivity", d->sensitivity);
     cJSON_AddNumberToObject(audit, "temp_coeff_per_c", d->temp_coeff_per_c);
-    if (d->buildup && *d->buildup)
-        cJSON_AddStringToObject(audit, "buildup", d->buildup);
-    else
-        cJSON_AddNullToObject(audit, "buildup");
-    add_opt_number(audit, "dose_limit_cgy", d->dose_limit_cgy);
+    fxl_json_put_text(audit, "buildup", d->buildup);
+    fxl_json_put_number(audit, "dose_limit_cgy", d->dose_limit_cgy);
     cJSON_AddStringToObject(audit, "status", "in_service");
     if ((rc = fxl_audit_append(ctx, "create", "detectors", id, audit)) != 0)
         goto cleanup;

@@ -8,6 +8,8 @@
 #include "fxl/machines.h"
 #include "store/audit.h"
 #include "store/grow.h"
+#include "store/json_put.h"
+#include "store/lookup.h"
 #include "store/stmt.h"
 
 static int name_ok(const char *s, size_t max)
@@ -18,22 +20,11 @@ static int name_ok(const char *s, size_t max)
 
 static int machine_find(fxl_ctx *ctx, int64_t *out_id, const char *name)
 {
-    fxl_stmt s = FXL_STMT_INIT;
-    int rc = fxl_stmt_prepare(&s, ctx, "SELECT id FROM machines WHERE name = :name");
+    int rc = fxl_lookup_id(ctx, out_id, "SELECT id FROM machines WHERE name = :name", ":name", name);
 
-    if (rc == 0) {
-        fxl_stmt_bind_text(&s, ":name", name);
-        rc = fxl_stmt_step(&s);
-        if (rc == 1) {
-            *out_id = fxl_stmt_int(&s, 0);
-            rc = 0;
-        } else if (rc == 0) {
-            rc = fxl_fail(ctx, FXL_ENOTFOUND, "unknown machine '%s' (see 'fxledger machine list')",
-                          name);
-        }
-    }
-    fxl_stmt_finalize(&s);
-    return rc;
+    if (rc == 0)
+        return fxl_fail(ctx, FXL_ENOTFOUND, "unknown machine '%s' (see 'fxledger machine list')", name);
+    return rc < 0 ? rc : 0;
 }
 
 int fxl_beam_find(fxl_ctx *ctx, int64_t *out_id, const char *machine, const char *beam)
@@ -116,14 +107,6 @@ static int opt_in_range(double v, double lo, double hi)
     return isnan(v) || (v >= lo && v <= hi);
 }
 
-static void add_opt_number(cJSON *o, const char *key, double v)
-{
-    if (isnan(v))
-        cJSON_AddNullToObject(o, key);
-    else
-        cJSON_AddNumberToObject(o, key, v);
-}
-
 int fxl_beam_add(fxl_ctx *ctx, int64_t *out_id, const fxl_beam_spec *b)
 {
     fxl_stmt s = FXL_STMT_INIT;
@@ -187,9 +170,9 @@ int fxl_beam_add(fxl_ctx *ctx, int64_t *out_id, const fxl_beam_spec *b)
     cJSON_AddStringToObject(audit, "name", b->name);
     cJSON_AddStringToObject(audit, "modality", b->modality);
     cJSON_AddNumberToObject(audit, "energy", b->energy);
-    add_opt_number(audit, "dmax_cm", b->dmax_cm);
-    add_opt_number(audit, "ref_dose_cgy_per_mu", b->ref_dose_cgy_per_mu);
-    add_opt_number(audit, "norm_distance_cm", b->norm_distance_cm);
+    fxl_json_put_number(audit, "dmax_cm", b->dmax_cm);
+    fxl_json_put_number(audit, "ref_dose_cgy_per_mu", b->ref_dose_cgy_per_mu);
+    fxl_json_put_number(audit, "norm_distance_cm", b->norm_distance_cm);
     if ((rc = fxl_audit_append(ctx, "create", "beams", id, audit)) != 0)
         goto cleanup;
     rc = fxl_commit(ctx);

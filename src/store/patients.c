@@ -7,6 +7,7 @@
 #include "fxl/patients.h"
 #include "store/audit.h"
 #include "store/grow.h"
+#include "store/json_put.h"
 #include "store/stmt.h"
 
 #define PATIENT_COLUMNS                                                                         \
@@ -100,10 +101,7 @@ int fxl_patient_add(fxl_ctx *ctx, int64_t *out_id, const char *mrn, const char *
     cJSON_AddStringToObject(audit, "mrn", mrn);
     cJSON_AddStringToObject(audit, "family_name", family_name);
     cJSON_AddStringToObject(audit, "given_name", given_name ? given_name : "");
-    if (birth[0])
-        cJSON_AddStringToObject(audit, "birth_date", birth);
-    else
-        cJSON_AddNullToObject(audit, "birth_date");
+    fxl_json_put_text(audit, "birth_date", birth);
     if ((rc = fxl_audit_append(ctx, "create", "patients", id, audit)) != 0)
         goto cleanup;
     if ((rc = fxl_commit(ctx)) != 0)

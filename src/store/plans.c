@@ -13,6 +13,8 @@
 #include "fxl/plans.h"
 #include "store/audit.h"
 #include "store/grow.h"
+#include "store/json_put.h"
+#include "store/lookup.h"
 #include "store/model_store.h"
 #include "store/review_store.h"
 #include "store/stmt.h"
@@ -226,25 +228,14 @@ cleanup:
 
 static int lookup_patient(fxl_ctx *ctx, int64_t *id, const char *mrn)
 {
-    fxl_stmt s = FXL_STMT_INIT;
-    int rc;
+    int rc = fxl_lookup_id(ctx, id, "SELECT id FROM patients WHERE mrn = :mrn", ":mrn", mrn);
 
-    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT id FROM patients WHERE mrn = :mrn")) != 0)
-        goto cleanup;
-    fxl_stmt_bind_text(&s, ":mrn", mrn);
-    rc = fxl_stmt_step(&s);
-    if (rc == 1) {
-        *id = fxl_stmt_int(&s, 0);
-        rc = 0;
-    } else if (rc == 0) {
-        rc = fxl_fail(ctx, FXL_ENOTFOUND,
-                      "unknown patient '%s' (at patient_mrn; add the patient first with 'fxledger "
-                      "patient add %s --family NAME')",
-                      mrn, mrn);
-    }
-cleanup:
-    fxl_stmt_finalize(&s);
-    return rc;
+    if (rc == 0)
+        return fxl_fail(ctx, FXL_ENOTFOUND,
+                        "unknown patient '%s' (at patient_mrn; add the patient first with 'fxledger "
+                        "patient add %s --family NAME')",
+                        mrn, mrn);
+    return rc < 0 ? rc : 0;
 }
 
 static int check_replacement(fxl_ctx *ctx, int64_t *replaced_id, int64_t patient_id,
@@ -287,14 +278,6 @@ typedef struct point_eval {
     const char *expected_source;  /* as stored; NULL = missing */
     char *factors;                /* model_factors JSON, malloc'ed */
 } point_eval;
-
-static void add_num_or_null(cJSON *o, const char *key, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
 
 /* Evaluates the model for point p of field f (beam b) with the beam data in
  * force at `now`, cross-checks a planning-system value at level_pct, and
@@ -363,16 +346,13 @@ static int evaluate_point(fxl_ctx *ctx, point_eval *ev, const fxl_field_spec *f,
         rc = fxl_fail(ctx, FXL_EIO, "out of memory storing the model result");
         goto cleanup;
     }
-    if (ev->beam_data_id)
-        cJSON_AddNumberToObject(o, "beam_data_id", (double)ev->beam_data_id);
-    else
-        cJSON_AddNullToObject(o, "beam_data_id");
+    fxl_json_put_id(o, "beam_data_id", ev->beam_data_id);
     xc = cJSON_AddObjectToObject(o, "crosscheck");
     cJSON_AddStringToObject(xc, "outcome", fxl_xcheck_name(ev->xcheck.outcome));
-    add_num_or_null(xc, "tps_cgy", ev->xcheck.tps_cgy);
-    add_num_or_null(xc, "model_cgy", ev->xcheck.model_cgy);
-    add_num_or_null(xc, "deviation_pct", ev->xcheck.deviation_pct);
-    add_num_or_null(xc, "level_pct", ev->xcheck.level_pct);
+    fxl_json_put_number(xc, "tps_cgy", ev->xcheck.tps_cgy);
+    fxl_json_put_number(xc, "model_cgy", ev->xcheck.model_cgy);
+    fxl_json_put_number(xc, "deviation_pct", ev->xcheck.deviation_pct);
+    fxl_json_put_number(xc, "level_pct", ev->xcheck.level_pct);
     cJSON_AddStringToObject(xc, "summary", ev->xcheck.summary);
     if (!(ev->factors = cJSON_PrintUnformatted(o)))
         rc = fxl_fail(ctx, FXL_EIO, "out of memory storing the model result");
@@ -403,11 +383,8 @@ static cJSON *field_audit(const fxl_field_spec *f, const fxl_point_spec *p, int6
     cJSON_AddBoolToObject(o, "tray", f->tray);
     cJSON_AddNumberToObject(o, "gantry_deg", f->gantry_deg);
     cJSON_AddNumberToObject(o, "incidence_deg", f->incidence_deg);
-    if (isnan(p->thickness_cm))
-        cJSON_AddNullToObject(o, "thickness_cm");
-    else
-        cJSON_AddNumberToObject(o, "thickness_cm", p->thickness_cm);
-    add_num_or_null(o, "expected_dose_cgy", ev->expected_cgy);
+    fxl_json_put_number(o, "thickness_cm", p->thickness_cm);
+    fxl_json_put_number(o, "expected_dose_cgy", ev->expected_cgy);
     if (ev->expected_source)
         cJSON_AddStringToObject(o, "expected_source", ev->expected_source);
     else
@@ -415,13 +392,10 @@ static cJSON *field_audit(const fxl_field_spec *f, const fxl_point_spec *p, int6
     cJSON_AddStringToObject(o, "policy", f->policy);
     if (f->shaped_eqsq_cm > 0)
         cJSON_AddNumberToObject(o, "shaped_eqsq_cm", f->shaped_eqsq_cm);
-    add_num_or_null(o, "model_dose_cgy", ev->model.computed ? ev->model.dose_cgy : NAN);
-    if (ev->beam_data_id)
-        cJSON_AddNumberToObject(o, "model_beam_data_id", (double)ev->beam_data_id);
-    else
-        cJSON_AddNullToObject(o, "model_beam_data_id");
+    fxl_json_put_number(o, "model_dose_cgy", ev->model.computed ? ev->model.dose_cgy : NAN);
+    fxl_json_put_id(o, "model_beam_data_id", ev->beam_data_id);
     cJSON_AddStringToObject(o, "crosscheck", fxl_xcheck_name(ev->xcheck.outcome));
-    add_num_or_null(o, "crosscheck_deviation_pct", ev->xcheck.deviation_pct);
+    fxl_json_put_number(o, "crosscheck_deviation_pct", ev->xcheck.deviation_pct);
     return o;
 }
 
@@ -519,10 +493,7 @@ int fxl_plan_import(fxl_ctx *ctx, int64_t *out_id, const fxl_plan_spec *spec)
     cJSON_AddStringToObject(audit, "site", spec->site);
     cJSON_AddStringToObject(audit, "technique", spec->technique);
     cJSON_AddNumberToObject(audit, "fractions", spec->fractions);
-    if (isnan(spec->dose_per_fraction_cgy))
-        cJSON_AddNullToObject(audit, "dose_per_fraction_cgy");
-    else
-        cJSON_AddNumberToObject(audit, "dose_per_fraction_cgy", spec->dose_per_fraction_cgy);
+    fxl_json_put_number(audit, "dose_per_fraction_cgy", spec->dose_per_fraction_cgy);
     if (replaced_id) {
         cJSON_AddStringToObject(audit, "replaces", spec->replaces);
         cJSON_AddNumberToObject(audit, "replaces_plan_id", (double)replaced_id);

@@ -8,6 +8,7 @@
 #include <string.h>
 
 #include "store/audit.h"
+#include "store/json_put.h"
 #include "store/record_int.h"
 #include "store/rules_hook.h"
 #include "store/stmt.h"
@@ -162,22 +163,6 @@ cleanup:
 
 /* ---- writing ------------------------------------------------------------------ */
 
-static void add_num(cJSON *o, const char *key, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
-static void add_id(cJSON *o, const char *key, int64_t id)
-{
-    if (id)
-        cJSON_AddNumberToObject(o, key, (double)id);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
 /* The audit content of one measurement: the snapshot, as written. */
 static cJSON *measurement_audit(const rec_inputs *in, int64_t fraction_id)
 {
@@ -185,32 +170,32 @@ static cJSON *measurement_audit(const rec_inputs *in, int64_t fraction_id)
     cJSON *o = cJSON_CreateObject();
     int i;
 
-    add_id(o, "fraction_id", fraction_id);
+    fxl_json_put_id(o, "fraction_id", fraction_id);
     cJSON_AddStringToObject(o, "field", m->field);
     cJSON_AddStringToObject(o, "point", m->point);
     cJSON_AddStringToObject(o, "detector", m->detector);
-    add_num(o, "reading", m->reading);
+    fxl_json_put_number(o, "reading", m->reading);
     cJSON_AddStringToObject(o, "reading_unit", m->reading_unit);
-    add_num(o, "background", m->background);
-    add_num(o, "temp_c", m->temp_c);
+    fxl_json_put_number(o, "background", m->background);
+    fxl_json_put_number(o, "temp_c", m->temp_c);
     cJSON_AddBoolToObject(o, "temp_entered", m->temp_entered);
-    add_id(o, "calibration_id", m->calibration_id);
-    add_num(o, "factor_n", m->factor_n);
+    fxl_json_put_id(o, "calibration_id", m->calibration_id);
+    fxl_json_put_number(o, "factor_n", m->factor_n);
     for (i = 0; i < FXL_CF_COUNT; i++) {
         char key[32];
         snprintf(key, sizeof key, "cf_%s", fxl_cf_name((fxl_cf_param)i));
-        add_num(o, key, m->cf[i]);
+        fxl_json_put_number(o, key, m->cf[i]);
     }
-    add_num(o, "cf_temp", m->cf_temp);
-    add_num(o, "corrected_dose_cgy", m->corrected_dose_cgy);
-    add_num(o, "expected_dose_cgy", m->expected_dose_cgy);
-    add_num(o, "deviation_pct", m->deviation_pct);
-    add_id(o, "threshold_set_id", m->threshold_set_id);
+    fxl_json_put_number(o, "cf_temp", m->cf_temp);
+    fxl_json_put_number(o, "corrected_dose_cgy", m->corrected_dose_cgy);
+    fxl_json_put_number(o, "expected_dose_cgy", m->expected_dose_cgy);
+    fxl_json_put_number(o, "deviation_pct", m->deviation_pct);
+    fxl_json_put_id(o, "threshold_set_id", m->threshold_set_id);
     cJSON_AddStringToObject(o, "verdict", fxl_verdict_name(m->verdict));
     cJSON_AddBoolToObject(o, "escalated", m->escalated);
     cJSON_AddItemToObject(o, "reasons", rec_reasons_json(&m->reasons));
     if (m->supersedes_id) {
-        add_id(o, "supersedes_id", m->supersedes_id);
+        fxl_json_put_id(o, "supersedes_id", m->supersedes_id);
         cJSON_AddStringToObject(o, "amend_reason", m->amend_reason);
     }
     return o;

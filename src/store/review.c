@@ -15,6 +15,7 @@
 #include "fxl/rules.h"
 #include "store/audit.h"
 #include "store/grow.h"
+#include "store/json_put.h"
 #include "store/review_store.h"
 #include "store/stmt.h"
 
@@ -37,14 +38,6 @@ static int is_blank(const char *s)
         if (!isspace((unsigned char)*s))
             return 0;
     return 1;
-}
-
-static void add_id(cJSON *o, const char *key, int64_t id)
-{
-    if (id)
-        cJSON_AddNumberToObject(o, key, (double)id);
-    else
-        cJSON_AddNullToObject(o, key);
 }
 
 /* ---- dispositions --------------------------------------------------------- */
@@ -193,10 +186,10 @@ int fxl_review_open_item(fxl_ctx *ctx, int64_t *out_id, const fxl_review_open_sp
     if (spec->rule_key)
         cJSON_AddStringToObject(audit, "rule_key", spec->rule_key);
     cJSON_AddNumberToObject(audit, "severity", spec->severity);
-    add_id(audit, "measurement_id", spec->measurement_id);
-    add_id(audit, "patient_id", spec->patient_id);
-    add_id(audit, "detector_id", spec->detector_id);
-    add_id(audit, "field_id", spec->field_id);
+    fxl_json_put_id(audit, "measurement_id", spec->measurement_id);
+    fxl_json_put_id(audit, "patient_id", spec->patient_id);
+    fxl_json_put_id(audit, "detector_id", spec->detector_id);
+    fxl_json_put_id(audit, "field_id", spec->field_id);
     cJSON_AddStringToObject(audit, "summary", spec->summary);
     cJSON_AddNumberToObject(audit, "event_id", (double)event_id);
     if ((rc = fxl_audit_append(ctx, "open", "review_items", item_id, audit)) != 0)

@@ -10,6 +10,7 @@
 #include "fxl/thresholds.h"
 #include "store/audit.h"
 #include "store/grow.h"
+#include "store/json_put.h"
 #include "store/stmt.h"
 
 static const char *const detector_kinds[] = {"photon_diode", "electron_diode", "small_field_diode",
@@ -334,14 +335,6 @@ static int check_ties(fxl_ctx *ctx, const fxl_threshold_set *row, const fxl_thre
     return 0;
 }
 
-static void add_opt_text(cJSON *o, const char *key, const char *v)
-{
-    if (v && *v)
-        cJSON_AddStringToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
 static cJSON *set_to_audit(const fxl_threshold_set *t)
 {
     cJSON *o = cJSON_CreateObject();
@@ -350,15 +343,12 @@ static cJSON *set_to_audit(const fxl_threshold_set *t)
     cJSON_AddNumberToObject(o, "version", t->version);
     cJSON_AddStringToObject(o, "effective_from", t->effective_from);
     cJSON_AddBoolToObject(o, "active", t->active);
-    add_opt_text(o, "site", t->site);
-    add_opt_text(o, "technique", t->technique);
-    add_opt_text(o, "modality", t->modality);
-    if (isnan(t->energy))
-        cJSON_AddNullToObject(o, "energy");
-    else
-        cJSON_AddNumberToObject(o, "energy", t->energy);
-    add_opt_text(o, "point", t->point);
-    add_opt_text(o, "detector_kind", t->detector_kind);
+    fxl_json_put_text(o, "site", t->site);
+    fxl_json_put_text(o, "technique", t->technique);
+    fxl_json_put_text(o, "modality", t->modality);
+    fxl_json_put_number(o, "energy", t->energy);
+    fxl_json_put_text(o, "point", t->point);
+    fxl_json_put_text(o, "detector_kind", t->detector_kind);
     cJSON_AddNumberToObject(o, "tolerance_pct", t->tolerance_pct);
     cJSON_AddNumberToObject(o, "action_pct", t->action_pct);
     cJSON_AddNumberToObject(o, "floor_cgy", t->floor_cgy);

@@ -1,0 +1,19 @@
+/* Members of the JSON objects the store builds (audit content, snapshots)
+ * where a value that is not there is written as null. Private to
+ * src/store. */
+#ifndef FXL_STORE_JSON_PUT_H
+#define FXL_STORE_JSON_PUT_H
+
+#include <cjson/cJSON.h>
+#include <stdint.h>
+
+/* key: v, or null when v is not finite (NaN is "not given"). */
+void fxl_json_put_number(cJSON *o, const char *key, double v);
+
+/* key: id, or null when id is 0 (no row). */
+void fxl_json_put_id(cJSON *o, const char *key, int64_t id);
+
+/* key: v, or null when v is NULL or "". */
+void fxl_json_put_text(cJSON *o, const char *key, const char *v);
+
+#endif
