@@ -6,6 +6,7 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "core/civil.h"
 #include "fxl/rules.h"
 
 const char *fxl_severity_name(int severity)
@@ -42,23 +43,17 @@ int fxl_policy_parse(fxl_policy *out, const char *name)
 /* ---- calendar days -------------------------------------------------------- */
 
 /* Day number since 1970-01-01 of the date part of a stored timestamp (or a
- * bare 'YYYY-MM-DD'), after H. Hinnant's days_from_civil algorithm. */
+ * bare 'YYYY-MM-DD'). */
 static int day_number(long *out, const char *stamp)
 {
     char norm[FXL_TIME_LEN];
     int y, m, d;
-    long era, yoe, doy, doe;
 
     if (!stamp || fxl_time_normalize(norm, stamp, 0) != 0)
         return FXL_EINVAL;
     if (sscanf(norm, "%4d-%2d-%2d", &y, &m, &d) != 3)
         return FXL_EINVAL;
-    y -= m <= 2;
-    era = (y >= 0 ? y : y - 399) / 400;
-    yoe = y - era * 400;
-    doy = (153 * (m + (m > 2 ? -3 : 9)) + 2) / 5 + d - 1;
-    doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    *out = era * 146097 + doe - 719468;
+    *out = fxl_days_from_civil(y, m, d);
     return 0;
 }
 

@@ -4,6 +4,7 @@
 #include <string.h>
 #include <time.h>
 
+#include "core/civil.h"
 #include "fxl/fxl.h"
 
 static int days_in_month(int y, int m)
@@ -78,9 +79,8 @@ int fxl_time_normalize(char out[FXL_TIME_LEN], const char *in, int end_of_day)
     return 0;
 }
 
-/* Days from 1970-01-01 of a civil date (proleptic Gregorian), after
- * H. Hinnant's days_from_civil algorithm. */
-static long days_from_civil(int y, int m, int d)
+/* See civil.h. */
+long fxl_days_from_civil(int y, int m, int d)
 {
     long era, yoe, doy, doe;
 
@@ -115,7 +115,7 @@ int fxl_time_add_days(char out[FXL_TIME_LEN], const char *in, int days)
     if (fxl_time_normalize(norm, in, 0) != 0)
         return FXL_EINVAL;
     sscanf(norm, "%4d-%2d-%2dT%2d:%2d:%2d", &y, &m, &d, &h, &mi, &s);
-    civil_from_days(days_from_civil(y, m, d) + days, &y, &m, &d);
+    civil_from_days(fxl_days_from_civil(y, m, d) + days, &y, &m, &d);
     format_time(out, y, m, d, h, mi, s);
     return 0;
 }

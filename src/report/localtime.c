@@ -7,6 +7,8 @@
 #include <string.h>
 #include <unistd.h>
 
+#include "core/civil.h"
+
 static int valid_zone_name(const char *name)
 {
     const char *p;
@@ -61,27 +63,13 @@ void rpt_tz_leave(rpt_tz *tz)
     tz->active = 0;
 }
 
-/* Days from 1970-01-01 of a civil date (proleptic Gregorian), after
- * H. Hinnant's days_from_civil algorithm. */
-static long days_from_civil(int y, int m, int d)
-{
-    long era, yoe, doy, doe;
-
-    y -= m <= 2;
-    era = (y >= 0 ? y : y - 399) / 400;
-    yoe = y - era * 400;
-    doy = (153 * (m + (m > 2 ? -3 : 9)) + 2) / 5 + d - 1;
-    doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    return era * 146097 + doe - 719468;
-}
-
 int rpt_epoch_from_stored(time_t *out, const char *stored)
 {
     int y, mo, d, h, mi, s;
 
     if (!stored || sscanf(stored, "%4d-%2d-%2dT%2d:%2d:%2d", &y, &mo, &d, &h, &mi, &s) != 6)
         return FXL_EINVAL;
-    *out = (time_t)days_from_civil(y, mo, d) * 86400 + h * 3600 + mi * 60 + s;
+    *out = (time_t)fxl_days_from_civil(y, mo, d) * 86400 + h * 3600 + mi * 60 + s;
     return 0;
 }
 

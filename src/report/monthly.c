@@ -16,7 +16,7 @@
 #include "report/table.h"
 #include "store/report_query.h"
 
-#define NVERDICT 5
+#define NVERDICT RPT_NVERDICT
 /* Detectors at or above this share of their dose limit are listed. */
 #define DOSE_WARN_FRACTION 0.80
 #define DASH "\xE2\x80\x93"
@@ -53,20 +53,6 @@ static void section(mreport *r, const char *title, double keep)
     rpt_heading(&r->s->doc, buf, keep);
 }
 
-static const char *const verdict_names[NVERDICT] = {"within_tolerance", "outside_tolerance",
-                                                    "outside_action", "not_evaluable",
-                                                    "implausible"};
-
-static int verdict_index(const char *v)
-{
-    int i;
-
-    for (i = 0; i < NVERDICT; i++)
-        if (strcmp(v, verdict_names[i]) == 0)
-            return i;
-    return -1;
-}
-
 static void count_rate(char *out, size_t n, long count, long total)
 {
     if (total > 0)
@@ -90,7 +76,7 @@ static void days_between(char *out, size_t n, const char *a, const char *b)
 static int on_total(void *arg, const fxl_rq_count *c)
 {
     mreport *r = arg;
-    int i = verdict_index(c->verdict);
+    int i = rpt_verdict_index(c->verdict);
 
     if (i >= 0)
         r->verdict[i] += (long)c->count;
@@ -183,7 +169,7 @@ static void flush_group(mreport *r)
 static int on_group(void *arg, const fxl_rq_count *c)
 {
     mreport *r = arg;
-    int i = verdict_index(c->verdict);
+    int i = rpt_verdict_index(c->verdict);
     int same = r->have && strcmp(r->key1, c->key1) == 0 && strcmp(r->key2, c->key2) == 0 &&
                ((isnan(r->energy) && isnan(c->energy)) || r->energy == c->energy);
 

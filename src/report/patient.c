@@ -13,7 +13,7 @@
 #include "report/table.h"
 #include "store/report_query.h"
 
-#define NVERDICT 5
+#define NVERDICT RPT_NVERDICT
 
 typedef struct pstats {
     long listed, superseded, counted;
@@ -43,20 +43,6 @@ typedef struct preport {
     double chart_top;
     char unmeasured[1024];
 } preport;
-
-static const char *const verdict_names[NVERDICT] = {"within_tolerance", "outside_tolerance",
-                                                    "outside_action", "not_evaluable",
-                                                    "implausible"};
-
-static int verdict_index(const char *v)
-{
-    int i;
-
-    for (i = 0; i < NVERDICT; i++)
-        if (strcmp(v, verdict_names[i]) == 0)
-            return i;
-    return -1;
-}
 
 static int is_level_verdict(int i)
 {
@@ -183,7 +169,7 @@ static int on_measurement(void *arg, const fxl_rq_measurement *m)
     char id[24], date[32], fx[16], reading[48], corr[32], exp[32], dev[32], amend[600];
     const char *cells[NMEAS_COLS], *disp;
     rpt_row_style style = {0, 0, 0};
-    int vi = verdict_index(m->verdict);
+    int vi = rpt_verdict_index(m->verdict);
 
     snprintf(id, sizeof id, "%lld", (long long)m->id);
     rpt_session_date(date, sizeof date, m->treated_at);

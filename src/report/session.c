@@ -75,3 +75,17 @@ void rpt_session_calendar_date(char *out, size_t n, const char *stored)
 {
     snprintf(out, n, "%.10s", stored ? stored : "");
 }
+
+static const char *const verdict_names[RPT_NVERDICT] = {"within_tolerance", "outside_tolerance",
+                                                        "outside_action", "not_evaluable",
+                                                        "implausible"};
+
+int rpt_verdict_index(const char *verdict)
+{
+    int i;
+
+    for (i = 0; i < RPT_NVERDICT; i++)
+        if (strcmp(verdict, verdict_names[i]) == 0)
+            return i;
+    return -1;
+}

@@ -34,6 +34,13 @@ void rpt_session_datetime(char *out, size_t n, const char *stored);
  * type as calendar days (valid until, effective from): no zone shift. */
 void rpt_session_calendar_date(char *out, size_t n, const char *stored);
 
+/* The verdicts the reports count, one column each, in this order:
+ * within_tolerance, outside_tolerance, outside_action, not_evaluable,
+ * implausible. rpt_verdict_index gives the column of a stored verdict name,
+ * -1 for any other text. */
+#define RPT_NVERDICT 5
+int rpt_verdict_index(const char *verdict);
+
 /* The limits of the method: a paragraph on relative detectors,
  * cross-calibration and commissioned ranges (report's first page). */
 void rpt_method_limits(rpt_doc *d);

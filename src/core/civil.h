@@ -1,0 +1,10 @@
+/* Calendar arithmetic on civil dates (proleptic Gregorian). Private to
+ * src/core and the layers above it; pure, no I/O. */
+#ifndef FXL_CORE_CIVIL_H
+#define FXL_CORE_CIVIL_H
+
+/* Days from 1970-01-01 of year y, month m (1..12), day d, after H. Hinnant's
+ * days_from_civil algorithm; negative before 1970. */
+long fxl_days_from_civil(int y, int m, int d);
+
+#endif
