@@ -5,25 +5,10 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/json_put.h"
 #include "fxl/calibrations.h"
 #include "fxl/corrections.h"
 #include "fxl/detectors.h"
-
-static void add_opt_number(cJSON *o, const char *key, double v)
-{
-    if (isnan(v))
-        cJSON_AddNullToObject(o, key);
-    else
-        cJSON_AddNumberToObject(o, key, v);
-}
-
-static void add_opt_text(cJSON *o, const char *key, const char *v)
-{
-    if (!v || !*v)
-        cJSON_AddNullToObject(o, key);
-    else
-        cJSON_AddStringToObject(o, key, v);
-}
 
 static cJSON *detector_json(const fxl_detector *d)
 {
@@ -34,15 +19,15 @@ static cJSON *detector_json(const fxl_detector *d)
     cJSON_AddStringToObject(o, "label", d->label);
     cJSON_AddStringToObject(o, "kind", d->kind);
     cJSON_AddStringToObject(o, "reading_unit", d->reading_unit);
-    add_opt_number(o, "sensitivity", d->sensitivity);
+    cli_json_put_number(o, "sensitivity", d->sensitivity);
     cJSON_AddNumberToObject(o, "temp_coeff_per_c", d->temp_coeff_per_c);
-    add_opt_text(o, "buildup", d->buildup);
-    add_opt_number(o, "dose_limit_cgy", d->dose_limit_cgy);
+    cli_json_put_text(o, "buildup", d->buildup);
+    cli_json_put_number(o, "dose_limit_cgy", d->dose_limit_cgy);
     cJSON_AddStringToObject(o, "created_at", d->created_at);
     cJSON_AddStringToObject(o, "status", d->status);
-    add_opt_text(o, "status_since", d->status_since);
-    add_opt_text(o, "status_reason", d->status_reason);
-    add_opt_text(o, "last_calibrated_at", d->last_calibrated_at);
+    cli_json_put_text(o, "status_since", d->status_since);
+    cli_json_put_text(o, "status_reason", d->status_reason);
+    cli_json_put_text(o, "last_calibrated_at", d->last_calibrated_at);
     cJSON_AddNumberToObject(o, "accumulated_dose_cgy", d->accumulated_dose_cgy);
     cJSON_AddNumberToObject(o, "accumulated_measurements", (double)d->measurement_count);
     cJSON_AddBoolToObject(o, "over_dose_limit",
@@ -203,7 +188,7 @@ static int detector_show(cli_env *env, int argc, char **argv)
             cJSON *r = cJSON_CreateObject();
             cJSON_AddStringToObject(r, "status", hist[i].status);
             cJSON_AddStringToObject(r, "effective_at", hist[i].effective_at);
-            add_opt_text(r, "reason", hist[i].reason);
+            cli_json_put_text(r, "reason", hist[i].reason);
             cJSON_AddStringToObject(r, "user", hist[i].user);
             cJSON_AddStringToObject(r, "recorded_at", hist[i].created_at);
             cJSON_AddItemToArray(a, r);

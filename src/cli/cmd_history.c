@@ -6,6 +6,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/json_put.h"
 #include "cli/midline_view.h"
 #include "fxl/record.h"
 
@@ -23,29 +24,13 @@ static void num(char *buf, size_t size, double v, const char *fmt, const char *u
         snprintf(buf + used, size - used, " %s", unit);
 }
 
-static void add_num(cJSON *o, const char *key, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
-static void add_id(cJSON *o, const char *key, int64_t id)
-{
-    if (id)
-        cJSON_AddNumberToObject(o, key, (double)id);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
 static cJSON *row_json(const fxl_history_row *r)
 {
     cJSON *o = cJSON_CreateObject(), *cf, *reasons;
     int i;
 
-    add_id(o, "measurement_id", r->measurement_id);
-    add_id(o, "fraction_id", r->fraction_id);
+    cli_json_put_id(o, "measurement_id", r->measurement_id);
+    cli_json_put_id(o, "fraction_id", r->fraction_id);
     cJSON_AddNumberToObject(o, "fraction", r->fraction_number);
     cJSON_AddStringToObject(o, "plan", r->plan);
     cJSON_AddStringToObject(o, "treated_at", r->treated_at);
@@ -54,31 +39,31 @@ static cJSON *row_json(const fxl_history_row *r)
     cJSON_AddStringToObject(o, "field", r->field);
     cJSON_AddStringToObject(o, "point", r->point);
     cJSON_AddStringToObject(o, "detector", r->detector);
-    add_num(o, "reading", r->reading);
+    cli_json_put_number(o, "reading", r->reading);
     cJSON_AddStringToObject(o, "reading_unit", r->reading_unit);
-    add_num(o, "temp_c", r->temp_c);
+    cli_json_put_number(o, "temp_c", r->temp_c);
     cJSON_AddBoolToObject(o, "temp_entered", r->temp_entered);
-    add_id(o, "calibration_id", r->calibration_id);
-    add_num(o, "factor_n_cgy_per_unit", r->factor_n);
+    cli_json_put_id(o, "calibration_id", r->calibration_id);
+    cli_json_put_number(o, "factor_n_cgy_per_unit", r->factor_n);
     cf = cJSON_AddObjectToObject(o, "factors");
     for (i = 0; i < FXL_CF_COUNT; i++)
-        add_num(cf, fxl_cf_name((fxl_cf_param)i), r->cf[i]);
-    add_num(cf, "temp", r->cf_temp);
-    add_num(o, "corrected_dose_cgy", r->corrected_dose_cgy);
-    add_num(o, "expected_dose_cgy", r->expected_dose_cgy);
-    add_num(o, "deviation_pct", r->deviation_pct);
-    add_id(o, "threshold_set_id", r->threshold_set_id);
-    add_num(o, "tolerance_pct", r->tolerance_pct);
-    add_num(o, "action_pct", r->action_pct);
-    add_num(o, "floor_cgy", r->floor_cgy);
+        cli_json_put_number(cf, fxl_cf_name((fxl_cf_param)i), r->cf[i]);
+    cli_json_put_number(cf, "temp", r->cf_temp);
+    cli_json_put_number(o, "corrected_dose_cgy", r->corrected_dose_cgy);
+    cli_json_put_number(o, "expected_dose_cgy", r->expected_dose_cgy);
+    cli_json_put_number(o, "deviation_pct", r->deviation_pct);
+    cli_json_put_id(o, "threshold_set_id", r->threshold_set_id);
+    cli_json_put_number(o, "tolerance_pct", r->tolerance_pct);
+    cli_json_put_number(o, "action_pct", r->action_pct);
+    cli_json_put_number(o, "floor_cgy", r->floor_cgy);
     cJSON_AddStringToObject(o, "verdict", fxl_verdict_name(r->verdict));
     reasons = cJSON_AddArrayToObject(o, "reasons");
     for (i = 0; i < r->reasons.n && i < FXL_REASONS_MAX; i++)
         cJSON_AddItemToArray(reasons, cJSON_CreateString(r->reasons.text[i]));
-    add_id(o, "supersedes_id", r->supersedes_id);
+    cli_json_put_id(o, "supersedes_id", r->supersedes_id);
     if (r->supersedes_id)
         cJSON_AddStringToObject(o, "amend_reason", r->amend_reason);
-    add_id(o, "superseded_by", r->superseded_by);
+    cli_json_put_id(o, "superseded_by", r->superseded_by);
     cJSON_AddBoolToObject(o, "current", r->superseded_by == 0);
     return o;
 }

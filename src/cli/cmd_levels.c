@@ -5,17 +5,10 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/json_put.h"
 #include "fxl/plans.h"
 #include "fxl/scope.h"
 #include "fxl/thresholds.h"
-
-static void add_text_or_null(cJSON *o, const char *key, const char *v)
-{
-    if (v && *v)
-        cJSON_AddStringToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
 
 static cJSON *set_json(const fxl_threshold_set *t)
 {
@@ -30,15 +23,15 @@ static cJSON *set_json(const fxl_threshold_set *t)
     cJSON_AddStringToObject(o, "effective_from", t->effective_from);
     cJSON_AddBoolToObject(o, "active", t->active);
     scope = cJSON_AddObjectToObject(o, "scope");
-    add_text_or_null(scope, "site", t->site);
-    add_text_or_null(scope, "technique", t->technique);
-    add_text_or_null(scope, "modality", t->modality);
+    cli_json_put_text(scope, "site", t->site);
+    cli_json_put_text(scope, "technique", t->technique);
+    cli_json_put_text(scope, "modality", t->modality);
     if (isnan(t->energy))
         cJSON_AddNullToObject(scope, "energy");
     else
         cJSON_AddNumberToObject(scope, "energy", t->energy);
-    add_text_or_null(scope, "point", t->point);
-    add_text_or_null(scope, "detector_kind", t->detector_kind);
+    cli_json_put_text(scope, "point", t->point);
+    cli_json_put_text(scope, "detector_kind", t->detector_kind);
     cJSON_AddNumberToObject(o, "specificity", fxl_scope_specificity(&s));
     cJSON_AddNumberToObject(o, "tolerance_pct", t->tolerance_pct);
     cJSON_AddNumberToObject(o, "action_pct", t->action_pct);

@@ -5,16 +5,9 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/json_put.h"
 #include "fxl/beam_data.h"
 #include "fxl/machines.h"
-
-static void add_opt_number(cJSON *o, const char *key, double v)
-{
-    if (isnan(v))
-        cJSON_AddNullToObject(o, key);
-    else
-        cJSON_AddNumberToObject(o, key, v);
-}
 
 static int machine_add(cli_env *env, int argc, char **argv)
 {
@@ -116,9 +109,9 @@ static int machine_beam(cli_env *env, int argc, char **argv)
         cJSON_AddStringToObject(o, "name", b.name);
         cJSON_AddStringToObject(o, "modality", b.modality);
         cJSON_AddNumberToObject(o, "energy", b.energy);
-        add_opt_number(o, "dmax_cm", b.dmax_cm);
-        add_opt_number(o, "ref_dose_cgy_per_mu", b.ref_dose_cgy_per_mu);
-        add_opt_number(o, "norm_distance_cm", b.norm_distance_cm);
+        cli_json_put_number(o, "dmax_cm", b.dmax_cm);
+        cli_json_put_number(o, "ref_dose_cgy_per_mu", b.ref_dose_cgy_per_mu);
+        cli_json_put_number(o, "norm_distance_cm", b.norm_distance_cm);
         return cli_print_json(o);
     }
     printf("added beam '%s' to machine '%s': %s %g %s\n", b.name, b.machine, b.modality, b.energy,
@@ -247,9 +240,9 @@ static int machine_list(cli_env *env, int argc, char **argv)
                 cJSON_AddStringToObject(o, "modality", b->modality);
                 cJSON_AddNumberToObject(o, "energy", b->energy);
                 cJSON_AddStringToObject(o, "energy_unit", strcmp(b->modality, "photon") == 0 ? "MV" : "MeV");
-                add_opt_number(o, "dmax_cm", b->dmax_cm);
-                add_opt_number(o, "ref_dose_cgy_per_mu", b->ref_dose_cgy_per_mu);
-                add_opt_number(o, "norm_distance_cm", b->norm_distance_cm);
+                cli_json_put_number(o, "dmax_cm", b->dmax_cm);
+                cli_json_put_number(o, "ref_dose_cgy_per_mu", b->ref_dose_cgy_per_mu);
+                cli_json_put_number(o, "norm_distance_cm", b->norm_distance_cm);
                 bd = in_force(data, n_data, b->id, &versions);
                 if (bd)
                     cJSON_AddItemToObject(o, "beam_data", beam_data_json(bd));
@@ -343,9 +336,9 @@ static int machine_show(cli_env *env, int argc, char **argv)
             cJSON_AddStringToObject(bo, "modality", b->modality);
             cJSON_AddNumberToObject(bo, "energy", b->energy);
             cJSON_AddStringToObject(bo, "energy_unit", strcmp(b->modality, "photon") == 0 ? "MV" : "MeV");
-            add_opt_number(bo, "dmax_cm", b->dmax_cm);
-            add_opt_number(bo, "ref_dose_cgy_per_mu", b->ref_dose_cgy_per_mu);
-            add_opt_number(bo, "norm_distance_cm", b->norm_distance_cm);
+            cli_json_put_number(bo, "dmax_cm", b->dmax_cm);
+            cli_json_put_number(bo, "ref_dose_cgy_per_mu", b->ref_dose_cgy_per_mu);
+            cli_json_put_number(bo, "norm_distance_cm", b->norm_distance_cm);
             va = cJSON_AddArrayToObject(bo, "beam_data");
             for (k = 0; k < n_data; k++)
                 if (data[k].beam_id == b->id)

@@ -9,6 +9,7 @@
 #include <strings.h>
 
 #include "cli/cli.h"
+#include "cli/json_put.h"
 #include "fxl/review.h"
 #include "fxl/rules.h"
 
@@ -65,59 +66,35 @@ static int parse_status(unsigned *out, const char *text)
     return 0;
 }
 
-static void add_num(cJSON *o, const char *key, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
-static void add_id(cJSON *o, const char *key, int64_t v)
-{
-    if (v)
-        cJSON_AddNumberToObject(o, key, (double)v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
-static void add_text(cJSON *o, const char *key, const char *v)
-{
-    if (v && *v)
-        cJSON_AddStringToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
 static cJSON *item_json(const fxl_review_item *it)
 {
     cJSON *o = cJSON_CreateObject();
 
     cJSON_AddNumberToObject(o, "id", (double)it->id);
     cJSON_AddStringToObject(o, "rule", it->rule);
-    add_text(o, "rule_key", it->rule_key);
+    cli_json_put_text(o, "rule_key", it->rule_key);
     cJSON_AddNumberToObject(o, "severity", it->severity);
     cJSON_AddStringToObject(o, "severity_name", fxl_severity_name(it->severity));
     cJSON_AddStringToObject(o, "status", it->status);
-    add_text(o, "disposition", strcmp(it->status, "closed") == 0 ? it->disposition : "");
-    add_id(o, "measurement_id", it->measurement_id);
-    add_id(o, "superseded_by", it->superseded_by);
-    add_text(o, "mrn", it->mrn);
-    add_text(o, "patient_name", it->patient_name);
-    add_text(o, "plan", it->plan);
-    add_text(o, "field", it->field);
-    add_text(o, "point", it->point);
+    cli_json_put_text(o, "disposition", strcmp(it->status, "closed") == 0 ? it->disposition : "");
+    cli_json_put_id(o, "measurement_id", it->measurement_id);
+    cli_json_put_id(o, "superseded_by", it->superseded_by);
+    cli_json_put_text(o, "mrn", it->mrn);
+    cli_json_put_text(o, "patient_name", it->patient_name);
+    cli_json_put_text(o, "plan", it->plan);
+    cli_json_put_text(o, "field", it->field);
+    cli_json_put_text(o, "point", it->point);
     if (it->fraction_number)
         cJSON_AddNumberToObject(o, "fraction", it->fraction_number);
     else
         cJSON_AddNullToObject(o, "fraction");
-    add_text(o, "detector", it->detector);
+    cli_json_put_text(o, "detector", it->detector);
     cJSON_AddStringToObject(o, "summary", it->summary);
     cJSON_AddStringToObject(o, "opened_at", it->opened_at);
     cJSON_AddNumberToObject(o, "age_days", (double)it->age_days);
-    add_text(o, "last_event", it->last_event);
-    add_text(o, "last_event_by", it->last_event_by);
-    add_text(o, "last_event_at", it->last_event_at);
+    cli_json_put_text(o, "last_event", it->last_event);
+    cli_json_put_text(o, "last_event_by", it->last_event_by);
+    cli_json_put_text(o, "last_event_at", it->last_event_at);
     return o;
 }
 
@@ -402,32 +379,32 @@ static cJSON *measurement_json(const fxl_review_measurement *m)
     cJSON_AddStringToObject(o, "point", m->point);
     cJSON_AddStringToObject(o, "beam", m->beam);
     cJSON_AddStringToObject(o, "detector", m->detector);
-    add_num(o, "reading", m->reading);
+    cli_json_put_number(o, "reading", m->reading);
     cJSON_AddStringToObject(o, "reading_unit", m->reading_unit);
-    add_num(o, "temp_c", m->temp_c);
+    cli_json_put_number(o, "temp_c", m->temp_c);
     cJSON_AddBoolToObject(o, "temp_entered", m->temp_entered);
-    add_id(o, "calibration_id", m->calibration_id);
-    add_num(o, "factor_n_cgy_per_unit", m->factor_n);
+    cli_json_put_id(o, "calibration_id", m->calibration_id);
+    cli_json_put_number(o, "factor_n_cgy_per_unit", m->factor_n);
     for (i = 0; i < FXL_CF_COUNT; i++)
-        add_num(o, cf_keys[i], m->cf[i]);
-    add_num(o, "cf_temp", m->cf_temp);
-    add_num(o, "corrected_dose_cgy", m->corrected_dose_cgy);
-    add_num(o, "expected_dose_cgy", m->expected_dose_cgy);
-    add_num(o, "deviation_pct", m->deviation_pct);
-    add_id(o, "threshold_set_id", m->threshold_set_id);
-    add_text(o, "threshold_name", m->threshold_name);
-    add_num(o, "tolerance_pct", m->tolerance_pct);
-    add_num(o, "action_pct", m->action_pct);
-    add_num(o, "floor_cgy", m->floor_cgy);
+        cli_json_put_number(o, cf_keys[i], m->cf[i]);
+    cli_json_put_number(o, "cf_temp", m->cf_temp);
+    cli_json_put_number(o, "corrected_dose_cgy", m->corrected_dose_cgy);
+    cli_json_put_number(o, "expected_dose_cgy", m->expected_dose_cgy);
+    cli_json_put_number(o, "deviation_pct", m->deviation_pct);
+    cli_json_put_id(o, "threshold_set_id", m->threshold_set_id);
+    cli_json_put_text(o, "threshold_name", m->threshold_name);
+    cli_json_put_number(o, "tolerance_pct", m->tolerance_pct);
+    cli_json_put_number(o, "action_pct", m->action_pct);
+    cli_json_put_number(o, "floor_cgy", m->floor_cgy);
     cJSON_AddStringToObject(o, "verdict", m->verdict);
     for (i = 0; i < m->reasons.n; i++)
         cJSON_AddItemToArray(reasons, cJSON_CreateString(m->reasons.text[i]));
     cJSON_AddItemToObject(o, "reasons", reasons);
-    add_id(o, "supersedes_id", m->supersedes_id);
-    add_text(o, "amend_reason", m->amend_reason);
-    add_id(o, "superseded_by", m->superseded_by);
-    add_text(o, "superseded_reason", m->superseded_reason);
-    add_text(o, "superseded_verdict", m->superseded_verdict);
+    cli_json_put_id(o, "supersedes_id", m->supersedes_id);
+    cli_json_put_text(o, "amend_reason", m->amend_reason);
+    cli_json_put_id(o, "superseded_by", m->superseded_by);
+    cli_json_put_text(o, "superseded_reason", m->superseded_reason);
+    cli_json_put_text(o, "superseded_verdict", m->superseded_verdict);
     return o;
 }
 
@@ -464,12 +441,12 @@ static int queue_show(cli_env *env, int argc, char **argv)
         else
             cJSON_AddNullToObject(o, "measurement");
         cJSON_AddStringToObject(o, "trend_kind", d.trend_is_detector ? "detector" : "field");
-        add_num(o, "trend_tolerance_pct", d.trend_tolerance_pct);
-        add_num(o, "trend_action_pct", d.trend_action_pct);
+        cli_json_put_number(o, "trend_tolerance_pct", d.trend_tolerance_pct);
+        cli_json_put_number(o, "trend_action_pct", d.trend_action_pct);
         if (d.trend_is_detector) {
-            add_num(o, "cusum_target_pct", d.cusum_target_pct);
-            add_num(o, "cusum_k_pct", d.cusum_k_pct);
-            add_num(o, "cusum_h_pct", d.cusum_h_pct);
+            cli_json_put_number(o, "cusum_target_pct", d.cusum_target_pct);
+            cli_json_put_number(o, "cusum_k_pct", d.cusum_k_pct);
+            cli_json_put_number(o, "cusum_h_pct", d.cusum_h_pct);
         }
         for (i = 0; i < d.n_trend; i++) {
             const fxl_review_trend_point *t = &d.trend[i];
@@ -479,13 +456,13 @@ static int queue_show(cli_env *env, int argc, char **argv)
             cJSON_AddStringToObject(p, "treated_at", t->treated_at);
             cJSON_AddStringToObject(p, "mrn", t->mrn);
             cJSON_AddStringToObject(p, "field", t->field);
-            add_num(p, "deviation_pct", t->deviation_pct);
+            cli_json_put_number(p, "deviation_pct", t->deviation_pct);
             cJSON_AddStringToObject(p, "verdict", t->verdict);
             cJSON_AddBoolToObject(p, "superseded", t->superseded);
             cJSON_AddBoolToObject(p, "this_item", t->is_item);
             if (d.trend_is_detector) {
-                add_num(p, "cusum_high_pct", t->cusum_high);
-                add_num(p, "cusum_low_pct", t->cusum_low);
+                cli_json_put_number(p, "cusum_high_pct", t->cusum_high);
+                cli_json_put_number(p, "cusum_low_pct", t->cusum_low);
             }
             cJSON_AddItemToArray(trend, p);
         }
@@ -495,8 +472,8 @@ static int queue_show(cli_env *env, int argc, char **argv)
             cJSON *p = cJSON_CreateObject();
             cJSON_AddNumberToObject(p, "id", (double)e->id);
             cJSON_AddStringToObject(p, "kind", e->kind);
-            add_text(p, "disposition", e->disposition);
-            add_text(p, "comment", e->comment);
+            cli_json_put_text(p, "disposition", e->disposition);
+            cli_json_put_text(p, "comment", e->comment);
             cJSON_AddStringToObject(p, "user", e->user);
             cJSON_AddStringToObject(p, "user_name", e->user_name);
             cJSON_AddStringToObject(p, "role", e->user_role);
@@ -558,7 +535,7 @@ static int print_event_done(cli_env *env, int64_t id, const char *kind, const ch
         cJSON_AddNumberToObject(o, "id", (double)id);
         cJSON_AddStringToObject(o, "event", kind);
         cJSON_AddStringToObject(o, "status", d.item.status);
-        add_text(o, "disposition", strcmp(d.item.status, "closed") == 0 ? d.item.disposition : "");
+        cli_json_put_text(o, "disposition", strcmp(d.item.status, "closed") == 0 ? d.item.disposition : "");
         cJSON_AddStringToObject(o, "user", fxl_user_login(env->ctx));
         fxl_review_detail_release(&d);
         return cli_print_json(o);

@@ -4,15 +4,8 @@
 #include <math.h>
 #include <stdio.h>
 
+#include "cli/json_put.h"
 #include "cli/midline_view.h"
-
-static void add_num(cJSON *o, const char *key, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
 
 cJSON *cli_midline_json(const fxl_midline_pair *pairs, size_t n)
 {
@@ -28,13 +21,13 @@ cJSON *cli_midline_json(const fxl_midline_pair *pairs, size_t n)
         cJSON_AddStringToObject(o, "field", p->field);
         cJSON_AddNumberToObject(o, "entrance_measurement_id", (double)p->entrance_id);
         cJSON_AddNumberToObject(o, "exit_measurement_id", (double)p->exit_id);
-        add_num(o, "entrance_dose_cgy", p->estimate.entrance_cgy);
-        add_num(o, "exit_dose_cgy", p->estimate.exit_cgy);
+        cli_json_put_number(o, "entrance_dose_cgy", p->estimate.entrance_cgy);
+        cli_json_put_number(o, "exit_dose_cgy", p->estimate.exit_cgy);
         cJSON_AddBoolToObject(o, "computed", p->estimate.computed);
-        add_num(o, "midline_dose_cgy", p->estimate.geometric_cgy);
-        add_num(o, "geometric_mean_cgy", p->estimate.geometric_cgy);
-        add_num(o, "arithmetic_mean_cgy", p->estimate.arithmetic_cgy);
-        add_num(o, "transmission", p->estimate.transmission);
+        cli_json_put_number(o, "midline_dose_cgy", p->estimate.geometric_cgy);
+        cli_json_put_number(o, "geometric_mean_cgy", p->estimate.geometric_cgy);
+        cli_json_put_number(o, "arithmetic_mean_cgy", p->estimate.arithmetic_cgy);
+        cli_json_put_number(o, "transmission", p->estimate.transmission);
         cJSON_AddStringToObject(o, "method", fxl_midline_method());
         reasons = cJSON_AddArrayToObject(o, "reasons");
         for (j = 0; j < p->estimate.reasons.n && j < FXL_REASONS_MAX; j++)

@@ -7,23 +7,8 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "cli/json_put.h"
 #include "cli/plan_view.h"
-
-static void add_num_or_null(cJSON *o, const char *key, double v)
-{
-    if (isfinite(v))
-        cJSON_AddNumberToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
-
-static void add_text_or_null(cJSON *o, const char *key, const char *v)
-{
-    if (v && *v)
-        cJSON_AddStringToObject(o, key, v);
-    else
-        cJSON_AddNullToObject(o, key);
-}
 
 cJSON *cli_plan_json(const fxl_plan *p)
 {
@@ -35,9 +20,9 @@ cJSON *cli_plan_json(const fxl_plan *p)
     cJSON_AddStringToObject(o, "site", p->site);
     cJSON_AddStringToObject(o, "technique", p->technique);
     cJSON_AddNumberToObject(o, "fractions", p->fractions);
-    add_num_or_null(o, "dose_per_fraction_cgy", p->dose_per_fraction_cgy);
-    add_text_or_null(o, "replaces", p->replaces_label);
-    add_text_or_null(o, "replaced_by", p->replaced_by_label);
+    cli_json_put_number(o, "dose_per_fraction_cgy", p->dose_per_fraction_cgy);
+    cli_json_put_text(o, "replaces", p->replaces_label);
+    cli_json_put_text(o, "replaced_by", p->replaced_by_label);
     cJSON_AddStringToObject(o, "source", p->source);
     cJSON_AddNumberToObject(o, "field_rows", (double)p->n_fields);
     cJSON_AddNumberToObject(o, "fractions_logged", p->fractions_logged);
@@ -66,11 +51,11 @@ cJSON *cli_field_json(const fxl_field *f)
     cJSON_AddBoolToObject(o, "tray", f->tray);
     cJSON_AddNumberToObject(o, "gantry_deg", f->gantry_deg);
     cJSON_AddNumberToObject(o, "incidence_deg", f->incidence_deg);
-    add_num_or_null(o, "thickness_cm", f->thickness_cm);
-    add_num_or_null(o, "expected_dose_cgy", f->expected_dose_cgy);
-    add_text_or_null(o, "expected_source", f->expected_source);
+    cli_json_put_number(o, "thickness_cm", f->thickness_cm);
+    cli_json_put_number(o, "expected_dose_cgy", f->expected_dose_cgy);
+    cli_json_put_text(o, "expected_source", f->expected_source);
     cJSON_AddStringToObject(o, "policy", f->policy);
-    add_num_or_null(o, "model_dose_cgy", f->model_dose_cgy);
+    cli_json_put_number(o, "model_dose_cgy", f->model_dose_cgy);
     if (f->model_beam_data_id)
         cJSON_AddNumberToObject(o, "model_beam_data_id", (double)f->model_beam_data_id);
     else
@@ -82,8 +67,8 @@ cJSON *cli_field_json(const fxl_field *f)
     }
     xc = cJSON_AddObjectToObject(o, "crosscheck");
     cJSON_AddStringToObject(xc, "outcome", f->crosscheck);
-    add_num_or_null(xc, "deviation_pct", f->crosscheck_dev_pct);
-    add_num_or_null(xc, "level_pct", f->crosscheck_level_pct);
+    cli_json_put_number(xc, "deviation_pct", f->crosscheck_dev_pct);
+    cli_json_put_number(xc, "level_pct", f->crosscheck_level_pct);
     cJSON_AddStringToObject(xc, "summary", f->model_note);
     if (f->crosscheck_item_id)
         cJSON_AddNumberToObject(xc, "review_item_id", (double)f->crosscheck_item_id);
