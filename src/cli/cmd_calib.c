@@ -6,6 +6,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/json_put.h"
 #include "fxl/calibrations.h"
 #include "fxl/settings.h"
 
@@ -85,14 +86,8 @@ static cJSON *calib_json(const fxl_calibration *c)
     cJSON_AddNumberToObject(o, "temp_c", c->temp_c);
     cJSON_AddNumberToObject(o, "ssd_cm", c->ssd_cm);
     cJSON_AddNumberToObject(o, "field_size_cm", c->field_size_cm);
-    if (c->chamber[0])
-        cJSON_AddStringToObject(o, "chamber", c->chamber);
-    else
-        cJSON_AddNullToObject(o, "chamber");
-    if (c->notes[0])
-        cJSON_AddStringToObject(o, "notes", c->notes);
-    else
-        cJSON_AddNullToObject(o, "notes");
+    cli_json_put_text(o, "chamber", c->chamber);
+    cli_json_put_text(o, "notes", c->notes);
     cJSON_AddStringToObject(o, "user", c->user);
     cJSON_AddStringToObject(o, "state", c->state);
     if (isnan(c->previous_factor)) {

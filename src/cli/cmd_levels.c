@@ -26,10 +26,7 @@ static cJSON *set_json(const fxl_threshold_set *t)
     cli_json_put_text(scope, "site", t->site);
     cli_json_put_text(scope, "technique", t->technique);
     cli_json_put_text(scope, "modality", t->modality);
-    if (isnan(t->energy))
-        cJSON_AddNullToObject(scope, "energy");
-    else
-        cJSON_AddNumberToObject(scope, "energy", t->energy);
+    cli_json_put_number(scope, "energy", t->energy);
     cli_json_put_text(scope, "point", t->point);
     cli_json_put_text(scope, "detector_kind", t->detector_kind);
     cJSON_AddNumberToObject(o, "specificity", fxl_scope_specificity(&s));

@@ -129,10 +129,7 @@ static cJSON *beam_data_json(const fxl_beam_data_info *d)
     cJSON_AddStringToObject(o, "effective_from", d->effective_from);
     cJSON_AddBoolToObject(o, "in_force", d->in_force);
     cJSON_AddStringToObject(o, "sha256", d->sha256);
-    if (d->source[0])
-        cJSON_AddStringToObject(o, "source", d->source);
-    else
-        cJSON_AddNullToObject(o, "source");
+    cli_json_put_text(o, "source", d->source);
     cJSON_AddStringToObject(o, "loaded_by", d->loaded_by);
     cJSON_AddStringToObject(o, "loaded_at", d->created_at);
     return o;

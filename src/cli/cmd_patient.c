@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/json_put.h"
 #include "fxl/patients.h"
 #include "fxl/plans.h"
 
@@ -15,10 +16,7 @@ static cJSON *patient_json(const fxl_patient *p)
     cJSON_AddStringToObject(o, "mrn", p->mrn);
     cJSON_AddStringToObject(o, "family_name", p->family_name);
     cJSON_AddStringToObject(o, "given_name", p->given_name);
-    if (p->birth_date[0])
-        cJSON_AddStringToObject(o, "birth_date", p->birth_date);
-    else
-        cJSON_AddNullToObject(o, "birth_date");
+    cli_json_put_text(o, "birth_date", p->birth_date);
     cJSON_AddNumberToObject(o, "plan_count", p->plans);
     cJSON_AddNumberToObject(o, "fractions_logged", p->fractions_logged);
     cJSON_AddStringToObject(o, "created_at", p->created_at);
@@ -110,10 +108,7 @@ static cJSON *field_summary_json(const fxl_field *f)
     cJSON_AddStringToObject(o, "machine", f->machine);
     cJSON_AddStringToObject(o, "beam", f->beam);
     cJSON_AddNumberToObject(o, "mu", f->mu);
-    if (isnan(f->expected_dose_cgy))
-        cJSON_AddNullToObject(o, "expected_dose_cgy");
-    else
-        cJSON_AddNumberToObject(o, "expected_dose_cgy", f->expected_dose_cgy);
+    cli_json_put_number(o, "expected_dose_cgy", f->expected_dose_cgy);
     cJSON_AddStringToObject(o, "policy", f->policy);
     return o;
 }
@@ -163,14 +158,8 @@ static int patient_show(cli_env *env, int argc, char **argv)
             cJSON_AddStringToObject(o, "technique", full.technique);
             cJSON_AddNumberToObject(o, "fractions", full.fractions);
             cJSON_AddNumberToObject(o, "fractions_logged", full.fractions_logged);
-            if (full.replaces_label[0])
-                cJSON_AddStringToObject(o, "replaces", full.replaces_label);
-            else
-                cJSON_AddNullToObject(o, "replaces");
-            if (full.replaced_by_label[0])
-                cJSON_AddStringToObject(o, "replaced_by", full.replaced_by_label);
-            else
-                cJSON_AddNullToObject(o, "replaced_by");
+            cli_json_put_text(o, "replaces", full.replaces_label);
+            cli_json_put_text(o, "replaced_by", full.replaced_by_label);
             fa = cJSON_AddArrayToObject(o, "fields");
             for (k = 0; k < full.n_fields; k++)
                 cJSON_AddItemToArray(fa, field_summary_json(&full.fields[k]));

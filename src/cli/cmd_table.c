@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/json_put.h"
 #include "fxl/corrections.h"
 
 static cJSON *table_json(const fxl_corr_table *t)
@@ -22,10 +23,7 @@ static cJSON *table_json(const fxl_corr_table *t)
     cJSON_AddStringToObject(o, "x_unit", unit);
     cJSON_AddStringToObject(o, "effective_from", t->effective_from);
     cJSON_AddBoolToObject(o, "in_force", t->in_force);
-    if (t->source[0])
-        cJSON_AddStringToObject(o, "source", t->source);
-    else
-        cJSON_AddNullToObject(o, "source");
+    cli_json_put_text(o, "source", t->source);
     cJSON_AddStringToObject(o, "user", t->user);
     cJSON_AddStringToObject(o, "created_at", t->created_at);
     cJSON_AddNumberToObject(o, "n_points", (double)t->n_points);

@@ -56,10 +56,7 @@ cJSON *cli_field_json(const fxl_field *f)
     cli_json_put_text(o, "expected_source", f->expected_source);
     cJSON_AddStringToObject(o, "policy", f->policy);
     cli_json_put_number(o, "model_dose_cgy", f->model_dose_cgy);
-    if (f->model_beam_data_id)
-        cJSON_AddNumberToObject(o, "model_beam_data_id", (double)f->model_beam_data_id);
-    else
-        cJSON_AddNullToObject(o, "model_beam_data_id");
+    cli_json_put_id(o, "model_beam_data_id", f->model_beam_data_id);
     if (!f->crosscheck[0]) {
         cJSON_AddNullToObject(o, "crosscheck");
         cJSON_AddNullToObject(o, "model");
@@ -70,10 +67,7 @@ cJSON *cli_field_json(const fxl_field *f)
     cli_json_put_number(xc, "deviation_pct", f->crosscheck_dev_pct);
     cli_json_put_number(xc, "level_pct", f->crosscheck_level_pct);
     cJSON_AddStringToObject(xc, "summary", f->model_note);
-    if (f->crosscheck_item_id)
-        cJSON_AddNumberToObject(xc, "review_item_id", (double)f->crosscheck_item_id);
-    else
-        cJSON_AddNullToObject(xc, "review_item_id");
+    cli_json_put_id(xc, "review_item_id", f->crosscheck_item_id);
     /* Every factor as stored with the field, without the cross-check that
      * is already above. */
     if ((model = cJSON_Parse(f->model_factors)) != NULL) {
