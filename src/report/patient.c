@@ -317,7 +317,7 @@ static int on_field_chart(void *arg, const fxl_rq_field *f)
     preport *r = arg;
     rpt_doc *d = &r->s->doc;
     double w = (d->right - d->left - CHART_GAP) / 2, x;
-    char title[200], sub[300], levels[96];
+    char title[200], sub[300], levels[128];
     chart_ctx k;
     int maxfx;
 
