@@ -325,8 +325,9 @@ int cli_plan_import_dicom(cli_env *env, int argc, char **argv)
         code = cli_print_json(o);
         goto cleanup;
     }
-    printf("imported DICOM plan %s for patient %s (%s) on %s: %zu beam%s, %zu measured point%s%s%s\n",
-           plan.label, plan.mrn, dp.patient_name, m->name, dp.n_beams, dp.n_beams == 1 ? "" : "s",
+    printf("imported DICOM plan %s for patient %s (%s%s%s) on %s: %zu beam%s, %zu measured point%s%s%s\n",
+           plan.label, plan.mrn, patient.family_name, patient.given_name[0] ? ", " : "",
+           patient.given_name, m->name, dp.n_beams, dp.n_beams == 1 ? "" : "s",
            plan.n_fields, plan.n_fields == 1 ? "" : "s", plan.replaces_label[0] ? "; replaces plan " : "",
            plan.replaces_label);
     for (i = 0; i < dp.n_beams; i++)
