@@ -14,7 +14,7 @@ CMAKE_FLAGS ?= -DCMAKE_BUILD_TYPE=RelWithDebInfo
 ASAN_BUILD ?= build-asan
 FUZZ_BUILD ?= build-fuzz
 FUZZ_SECONDS ?= 60
-FUZZ_PARSERS ?= plan_json readings_json corrections_json beam_json dicom_json
+FUZZ_PARSERS ?= plan_json readings_json corrections_json beam_json dicom_json dicom_part10
 
 .PHONY: all deps build test demo clean sanitize valgrind fuzz
 
@@ -48,7 +48,7 @@ valgrind: build
 
 fuzz: deps
 	@command -v clang >/dev/null || { echo "make fuzz needs clang: apt-get install clang libclang-rt-14-dev" >&2; exit 1; }
-	cmake -S . -B $(FUZZ_BUILD) -DCMAKE_C_COMPILER=clang -DCMAKE_BUILD_TYPE=RelWithDebInfo \
+	cmake -S . -B $(FUZZ_BUILD) -DCMAKE_C_COMPILER=clang -DCMAKE_CXX_COMPILER=clang++ -DCMAKE_BUILD_TYPE=RelWithDebInfo \
 	      -DFXL_SANITIZE=ON -DFXL_FUZZ=ON
 	cmake --build $(FUZZ_BUILD) -j2 --target fuzzers
 	sh tests/fuzz/run_fuzz.sh $(FUZZ_BUILD) $(FUZZ_SECONDS) $(FUZZ_PARSERS)

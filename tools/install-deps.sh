@@ -3,9 +3,9 @@
 # As root it runs apt-get; otherwise it prints the exact command and stops.
 set -eu
 
-PKGS="cmake make gcc pkg-config libsqlite3-dev libcjson-dev libhpdf-dev \
-libcmocka-dev libsodium-dev sqlite3 qpdf poppler-utils fonts-dejavu-core \
-python3 python3-pydicom dcmtk tzdata"
+PKGS="cmake make gcc g++ pkg-config libsqlite3-dev libcjson-dev libhpdf-dev \
+libcmocka-dev libsodium-dev libdcmtk-dev libutf8proc-dev zlib1g-dev sqlite3 qpdf \
+poppler-utils fonts-dejavu-core python3 python3-pydicom dcmtk tzdata"
 
 missing=""
 for p in $PKGS; do

@@ -1,5 +1,6 @@
 /* Reading a DICOM RT Plan given in the DICOM JSON Model (PS3.18 Annex F), as
- * written by pydicom's Dataset.to_json_dict() or dcmtk's dcm2json, into a
+ * written by pydicom's Dataset.to_json_dict() or dcmtk's dcm2json, or as a
+ * DICOM Part 10 file (PS3.10, through fxl/dicom_part10.h), into a
  * plain C struct: patient, plan label, fractions, dose per fraction, and per
  * treatment beam its name, number, radiation type, energy, angles, wedge,
  * blocks and tray, meterset, SSD, collimator openings and equivalent squares.
@@ -82,7 +83,15 @@ typedef struct fxl_dicom_plan {
 int fxl_dicom_plan_parse(fxl_ctx *ctx, fxl_dicom_plan *out, const char *text, size_t len,
                          const char *source);
 
-/* Reads and parses the file at `path` (FXL_EIO when it cannot be read). */
+/* Parses a DICOM Part 10 file held in data[0..len) (fxl/dicom_part10.h:
+ * read with DCMTK, converted to UTF-8 and to the JSON Model) with the rules
+ * of fxl_dicom_plan_parse; the same contract on failure and success. */
+int fxl_dicom_plan_parse_part10(fxl_ctx *ctx, fxl_dicom_plan *out, const unsigned char *data, size_t len,
+                                const char *source);
+
+/* Reads and parses the file at `path` (FXL_EIO when it cannot be read): a
+ * Part 10 file when it has the 128-byte preamble and "DICM", else the DICOM
+ * JSON Model. At most 16 MiB. */
 int fxl_dicom_plan_read(fxl_ctx *ctx, fxl_dicom_plan *out, const char *path);
 
 void fxl_dicom_plan_release(fxl_dicom_plan *plan);

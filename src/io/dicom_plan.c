@@ -11,6 +11,7 @@
 #include <strings.h>
 
 #include "fxl/core.h"
+#include "fxl/dicom_part10.h"
 #include "fxl/dicom_plan.h"
 #include "fxl/fxl.h"
 #include "fxl/text.h"
@@ -944,6 +945,25 @@ cleanup:
     return rc;
 }
 
+int fxl_dicom_plan_parse_part10(fxl_ctx *ctx, fxl_dicom_plan *out, const unsigned char *data, size_t len,
+                                const char *source)
+{
+    char *json = NULL;
+    size_t json_len = 0;
+    int rc;
+
+    if (out) {
+        memset(out, 0, sizeof *out);
+        out->dose_per_fraction_cgy = NAN;
+    }
+    if (!out)
+        return fxl_fail(ctx, FXL_EINVAL, "internal: no output for the RT Plan");
+    if ((rc = fxl_dicom_part10_to_json(ctx, data, len, source ? source : "RT Plan", &json, &json_len)) == 0)
+        rc = fxl_dicom_plan_parse(ctx, out, json, json_len, source);
+    free(json);
+    return rc;
+}
+
 int fxl_dicom_plan_read(fxl_ctx *ctx, fxl_dicom_plan *out, const char *path)
 {
     static const fxl_jsondoc_file spec = {
@@ -955,7 +975,7 @@ int fxl_dicom_plan_read(fxl_ctx *ctx, fxl_dicom_plan *out, const char *path)
         .no_memory = "out of memory reading '%s'",
     };
     char *buf = NULL;
-    size_t len;
+    size_t len, lead = 0;
     int rc;
 
     if (out) {
@@ -964,8 +984,25 @@ int fxl_dicom_plan_read(fxl_ctx *ctx, fxl_dicom_plan *out, const char *path)
     }
     if (!path)
         return fxl_fail(ctx, FXL_EINVAL, "internal: no RT Plan path");
-    if ((rc = fxl_jsondoc_read_file(ctx, &buf, &len, path, &spec)) == 0)
-        rc = fxl_dicom_plan_parse(ctx, out, buf, len, path);
+    if ((rc = fxl_jsondoc_read_file(ctx, &buf, &len, path, &spec)) != 0)
+        goto cleanup;
+    /* PS3.10 7.1: a Part 10 file is told by "DICM" after its preamble; JSON
+     * by its first character. */
+    if (fxl_dicom_part10_detect((const unsigned char *)buf, len)) {
+        rc = fxl_dicom_plan_parse_part10(ctx, out, (const unsigned char *)buf, len, path);
+        goto cleanup;
+    }
+    while (lead < len && (buf[lead] == ' ' || buf[lead] == '\t' || buf[lead] == '\r' || buf[lead] == '\n'))
+        lead++;
+    if (lead < len && buf[lead] != '{' && buf[lead] != '[') {
+        rc = fxl_fail(ctx, FXL_EINVAL,
+                      "file '%s' is malformed: neither a DICOM Part 10 file ('DICM' after a %d-byte preamble) "
+                      "nor DICOM JSON (an object or an array)",
+                      path, FXL_DICOM_PREAMBLE_LEN);
+        goto cleanup;
+    }
+    rc = fxl_dicom_plan_parse(ctx, out, buf, len, path);
+cleanup:
     free(buf);
     return rc;
 }

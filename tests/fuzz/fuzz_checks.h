@@ -19,6 +19,7 @@
 #include "fxl/beam_json.h"
 #include "fxl/beam_model.h"
 #include "fxl/corrections.h"
+#include "fxl/dicom_part10.h"
 #include "fxl/dicom_plan.h"
 #include "fxl/fxl.h"
 #include "fxl/plan_json.h"
@@ -35,6 +36,7 @@
 #define FUZZ_CORRECTIONS "corrections_json"
 #define FUZZ_BEAM "beam_json"
 #define FUZZ_DICOM "dicom_json"
+#define FUZZ_DICOM_PART10 "dicom_part10"
 
 /* A context for the parsers' messages: an in-memory database opened once
  * per process (the parsers themselves touch no database). NULL if it could
@@ -386,82 +388,94 @@ cleanup:
 
 /* ---- DICOM RT Plan in the DICOM JSON Model (fxl/dicom_plan.h) ----------------- */
 
-static FUZZ_UNUSED const char *fuzz_check_dicom_json(const uint8_t *data, size_t size)
+/* The promises of a parsed (or refused) RT Plan, from either reader. */
+static FUZZ_UNUSED const char *fuzz_check_dicom_plan(fxl_ctx *ctx, int rc, const fxl_dicom_plan *p)
 {
-    fxl_ctx *ctx = fuzz_ctx();
-    fxl_dicom_plan plan;
-    const char *why = NULL;
-    char *text = fuzz_copy(data, size);
+    const fxl_dicom_plan plan = *p;
     size_t i;
-    int rc;
 
-    if (!text)
-        return NULL;
-    memset(&plan, 0, sizeof plan);
-    rc = fxl_dicom_plan_parse(ctx, &plan, text, size, "fuzz.json");
     if (rc != 0) {
-        why = fuzz_check_failure(ctx, rc);
+        const char *why = fuzz_check_failure(ctx, rc);
         if (!why && (plan.n_beams != 0 || plan.beams))
             why = "refused plan still holds beams";
-        goto cleanup;
+        return why;
     }
     if (!FUZZ_TERMINATED(plan.sop_instance_uid) || !FUZZ_TERMINATED(plan.patient_id) ||
         !FUZZ_TERMINATED(plan.patient_name) || !FUZZ_TERMINATED(plan.family_name) ||
         !FUZZ_TERMINATED(plan.given_name) || !FUZZ_TERMINATED(plan.label) ||
-        !FUZZ_TERMINATED(plan.plan_name)) {
-        why = "plan text not terminated";
-        goto cleanup;
-    }
-    if (!plan.patient_id[0] || !plan.label[0] || plan.fractions < 1) {
-        why = "plan accepted without patient, label or fractions";
-        goto cleanup;
-    }
-    if (plan.n_beams < 1 || plan.n_beams > FXL_DICOM_BEAMS_MAX || !plan.beams) {
-        why = "plan accepted with a beam count outside 1..FXL_DICOM_BEAMS_MAX";
-        goto cleanup;
-    }
-    if (plan.notes.n < 0 || plan.notes.n > FXL_REASONS_MAX) {
-        why = "notes count out of range";
-        goto cleanup;
-    }
+        !FUZZ_TERMINATED(plan.plan_name))
+        return "plan text not terminated";
+    if (!plan.patient_id[0] || !plan.label[0] || plan.fractions < 1)
+        return "plan accepted without patient, label or fractions";
+    if (plan.n_beams < 1 || plan.n_beams > FXL_DICOM_BEAMS_MAX || !plan.beams)
+        return "plan accepted with a beam count outside 1..FXL_DICOM_BEAMS_MAX";
+    if (plan.notes.n < 0 || plan.notes.n > FXL_REASONS_MAX)
+        return "notes count out of range";
     for (i = 0; i < plan.n_beams; i++) {
         const fxl_dicom_beam *b = &plan.beams[i];
         if (!FUZZ_TERMINATED(b->name) || !FUZZ_TERMINATED(b->machine) ||
             !FUZZ_TERMINATED(b->radiation) || !FUZZ_TERMINATED(b->modality) ||
             !FUZZ_TERMINATED(b->delivery) || !FUZZ_TERMINATED(b->wedge_id) ||
             !FUZZ_TERMINATED(b->wedge_type) || !FUZZ_TERMINATED(b->tray_id) ||
-            !FUZZ_TERMINATED(b->applicator_id)) {
-            why = "beam text not terminated";
-            goto cleanup;
-        }
-        if (strcmp(b->modality, "photon") != 0 && strcmp(b->modality, "electron") != 0) {
-            why = "beam accepted with a modality other than photon or electron";
-            goto cleanup;
-        }
-        if (!isfinite(b->gantry_deg) || b->gantry_deg < 0 || b->gantry_deg >= 360) {
-            why = "beam accepted with a gantry angle outside [0, 360)";
-            goto cleanup;
-        }
-        if (b->wedge_count < 0 || b->wedge_count > 1) {
-            why = "beam accepted with more than one wedge";
-            goto cleanup;
-        }
+            !FUZZ_TERMINATED(b->applicator_id))
+            return "beam text not terminated";
+        if (strcmp(b->modality, "photon") != 0 && strcmp(b->modality, "electron") != 0)
+            return "beam accepted with a modality other than photon or electron";
+        if (!isfinite(b->gantry_deg) || b->gantry_deg < 0 || b->gantry_deg >= 360)
+            return "beam accepted with a gantry angle outside [0, 360)";
+        if (b->wedge_count < 0 || b->wedge_count > 1)
+            return "beam accepted with more than one wedge";
         if (!isfinite(b->energy) || b->energy <= 0 || !isfinite(b->mu) || b->mu <= 0 ||
-            !isfinite(b->ssd_cm) || b->ssd_cm <= 0) {
-            why = "beam accepted with energy, meterset or SSD not finite and > 0";
-            goto cleanup;
-        }
+            !isfinite(b->ssd_cm) || b->ssd_cm <= 0)
+            return "beam accepted with energy, meterset or SSD not finite and > 0";
         if (!isfinite(b->jaw_x_cm) || !isfinite(b->jaw_y_cm) || !isfinite(b->field_x_cm) ||
             !isfinite(b->field_y_cm) || !isfinite(b->coll_eqsq_cm) ||
-            !isfinite(b->field_eqsq_cm)) {
-            why = "beam accepted with a collimator size that is not finite";
-            goto cleanup;
-        }
+            !isfinite(b->field_eqsq_cm))
+            return "beam accepted with a collimator size that is not finite";
     }
+    return NULL;
+}
 
-cleanup:
+static FUZZ_UNUSED const char *fuzz_check_dicom_json(const uint8_t *data, size_t size)
+{
+    fxl_ctx *ctx = fuzz_ctx();
+    fxl_dicom_plan plan;
+    const char *why;
+    char *text = fuzz_copy(data, size);
+    int rc;
+
+    if (!text)
+        return NULL;
+    memset(&plan, 0, sizeof plan);
+    rc = fxl_dicom_plan_parse(ctx, &plan, text, size, "fuzz.json");
+    why = fuzz_check_dicom_plan(ctx, rc, &plan);
     fxl_dicom_plan_release(&plan);
     free(text);
+    return why;
+}
+
+/* ---- DICOM RT Plan as a Part 10 file (fxl/dicom_part10.h) ------------------- */
+
+/* The Part 10 reader: DCMTK reads the bytes, the JSON Model reader judges
+ * the data set. Whatever the bytes, the result keeps the same promises as
+ * the JSON reader's, and every refusal has its message. */
+static FUZZ_UNUSED const char *fuzz_check_dicom_part10(const uint8_t *data, size_t size)
+{
+    fxl_ctx *ctx = fuzz_ctx();
+    fxl_dicom_plan plan;
+    const char *why;
+    char *bytes = fuzz_copy(data, size);
+    int rc;
+
+    if (!bytes)
+        return NULL;
+    memset(&plan, 0, sizeof plan);
+    rc = fxl_dicom_plan_parse_part10(ctx, &plan, (const unsigned char *)bytes, size, "fuzz.dcm");
+    why = fuzz_check_dicom_plan(ctx, rc, &plan);
+    if (!why && rc == 0 && !fxl_dicom_part10_detect((const unsigned char *)bytes, size))
+        why = "a file without the Part 10 preamble and 'DICM' was accepted";
+    fxl_dicom_plan_release(&plan);
+    free(bytes);
     return why;
 }
 

@@ -160,6 +160,12 @@ static void test_fuzz_regressions_dicom_json(void **state)
     replay(FUZZ_DICOM, fuzz_check_dicom_json);
 }
 
+static void test_fuzz_regressions_dicom_part10(void **state)
+{
+    (void)state;
+    replay(FUZZ_DICOM_PART10, fuzz_check_dicom_part10);
+}
+
 /* The checks can fail: a parse of a valid file succeeds and a file cut in
  * the middle is refused with a message, through the same check functions. */
 static void test_fuzz_regressions_checks_see_both_outcomes(void **state)
@@ -205,6 +211,7 @@ int main(void)
         cmocka_unit_test(test_fuzz_regressions_corrections_json),
         cmocka_unit_test(test_fuzz_regressions_beam_json),
         cmocka_unit_test(test_fuzz_regressions_dicom_json),
+        cmocka_unit_test(test_fuzz_regressions_dicom_part10),
         cmocka_unit_test(test_fuzz_regressions_checks_see_both_outcomes),
         cmocka_unit_test(test_fuzz_regressions_snippet_stays_inside_input),
     };
