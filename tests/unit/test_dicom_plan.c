@@ -1,3 +1,4 @@
+#define _GNU_SOURCE /* memmem */
 /* Unit tests for the DICOM RT Plan reader (src/io/dicom_plan.c). Plans were
  * written by pydicom (a reference implementation of the standard) and, for
  * the *.dcmtk.json files, converted by dcmtk's dcm2json; beside each plan an
@@ -19,6 +20,7 @@
 
 #include <cmocka.h>
 
+#include "fxl/dicom_part10.h"
 #include "fxl/dicom_plan.h"
 #include "fxl/fxl.h"
 
@@ -206,7 +208,7 @@ static int by_name(const void *a, const void *b)
 }
 
 /* Checks one expectation file; returns 1 if it expected a refusal. */
-static int check_case(fxl_ctx *ctx, const char *expect_name)
+static int check_case(fxl_ctx *ctx, const char *dir, const char *expect_name)
 {
     char path[2048], plan_path[2048];
     char *text = NULL;
@@ -215,7 +217,7 @@ static int check_case(fxl_ctx *ctx, const char *expect_name)
     fxl_dicom_plan plan;
     int rc, refused = 0;
 
-    snprintf(path, sizeof path, "%s/%s", data_dir, expect_name);
+    snprintf(path, sizeof path, "%s/%s", dir, expect_name);
     text = slurp(path);
     e = text ? cJSON_Parse(text) : NULL;
     if (!e) {
@@ -225,7 +227,7 @@ static int check_case(fxl_ctx *ctx, const char *expect_name)
     }
     plan_file = cJSON_GetObjectItemCaseSensitive(e, "plan");
     refuse = cJSON_GetObjectItemCaseSensitive(e, "refuse");
-    snprintf(plan_path, sizeof plan_path, "%s/%s", data_dir, cJSON_GetStringValue(plan_file));
+    snprintf(plan_path, sizeof plan_path, "%s/%s", dir, cJSON_GetStringValue(plan_file));
     rc = fxl_dicom_plan_read(ctx, &plan, plan_path);
     if (cJSON_IsString(refuse)) {
         refused = 1;
@@ -245,7 +247,8 @@ static int check_case(fxl_ctx *ctx, const char *expect_name)
     return refused;
 }
 
-static void test_dicom_plan_every_generated_plan(void **state)
+/* Every expectation of `dir` against its plan; returns how many were checked. */
+static size_t check_every_plan_in(const char *dir)
 {
     DIR *d;
     struct dirent *ent;
@@ -253,10 +256,9 @@ static void test_dicom_plan_every_generated_plan(void **state)
     size_t n = 0, i, refusals = 0;
     fxl_ctx *ctx = message_ctx();
 
-    (void)state;
-    d = opendir(data_dir);
+    d = opendir(dir);
     if (!d) {
-        print_error("cannot open '%s'\n", data_dir);
+        print_error("cannot open '%s'\n", dir);
         fail();
     }
     while ((ent = readdir(d)) != NULL) {
@@ -271,16 +273,36 @@ static void test_dicom_plan_every_generated_plan(void **state)
     qsort(names, n, sizeof *names, by_name);
     failures = 0;
     for (i = 0; i < n; i++) {
-        refusals += (size_t)check_case(ctx, names[i]);
+        refusals += (size_t)check_case(ctx, dir, names[i]);
         free(names[i]);
     }
     free(names);
     fxl_close(ctx);
-    print_message("checked %zu plans from %s (%zu refusals)\n", n, data_dir, refusals);
+    print_message("checked %zu plans from %s (%zu refusals)\n", n, dir, refusals);
     /* A directory without plans, or without both kinds, tests nothing. */
     assert_true(n >= 2);
     assert_true(refusals >= 1 && refusals < n);
     assert_int_equal(failures, 0);
+    return n;
+}
+
+static void test_dicom_plan_every_generated_plan(void **state)
+{
+    (void)state;
+    check_every_plan_in(data_dir);
+}
+
+/* The Part 10 files of tests/data/dicom/part10 (pydicom's save_as in each
+ * transfer syntax, dcmtk's dump2dcm) against their expectations. */
+static void test_dicom_plan_every_part10_file(void **state)
+{
+    char dir[1100];
+
+    (void)state;
+    if (getenv("FXLEDGER_DICOM_DIR"))
+        skip();
+    snprintf(dir, sizeof dir, "%s/part10", data_dir);
+    assert_true(check_every_plan_in(dir) >= 10);
 }
 
 /* ---- the committed three-field plan, against the numbers make_rtplan.py wrote ----- */
@@ -421,10 +443,193 @@ static void test_dicom_plan_malformed_refused(void **state)
     free(two);
 }
 
+/* ---- Part 10 files against the JSON Model ----------------------------------------- */
+
+static void assert_same_text(const char *what, const char *a, const char *b)
+{
+    if (strcmp(a, b) != 0) {
+        print_error("%s: '%s' != '%s'\n", what, a, b);
+        fail();
+    }
+}
+
+/* Equal, or both NaN (an attribute absent in both). */
+static void assert_same_number(const char *what, double a, double b)
+{
+    if (!(a == b || (isnan(a) && isnan(b)))) {
+        print_error("%s: %.17g != %.17g\n", what, a, b);
+        fail();
+    }
+}
+
+static void assert_same_plan(const fxl_dicom_plan *a, const fxl_dicom_plan *b)
+{
+    size_t i;
+    int j;
+
+    assert_same_text("sop_instance_uid", a->sop_instance_uid, b->sop_instance_uid);
+    assert_same_text("patient_id", a->patient_id, b->patient_id);
+    assert_same_text("patient_name", a->patient_name, b->patient_name);
+    assert_same_text("family_name", a->family_name, b->family_name);
+    assert_same_text("given_name", a->given_name, b->given_name);
+    assert_same_text("label", a->label, b->label);
+    assert_same_text("plan_name", a->plan_name, b->plan_name);
+    assert_int_equal(a->fractions, b->fractions);
+    assert_same_number("dose_per_fraction_cgy", a->dose_per_fraction_cgy, b->dose_per_fraction_cgy);
+    assert_int_equal(a->notes.n, b->notes.n);
+    for (j = 0; j < a->notes.n && j < FXL_REASONS_MAX; j++)
+        assert_same_text("note", a->notes.text[j], b->notes.text[j]);
+    assert_int_equal(a->n_beams, b->n_beams);
+    for (i = 0; i < a->n_beams; i++) {
+        const fxl_dicom_beam *x = &a->beams[i], *y = &b->beams[i];
+        assert_int_equal(x->number, y->number);
+        assert_same_text("name", x->name, y->name);
+        assert_same_text("machine", x->machine, y->machine);
+        assert_same_text("radiation", x->radiation, y->radiation);
+        assert_same_text("modality", x->modality, y->modality);
+        assert_same_text("delivery", x->delivery, y->delivery);
+        assert_same_number("energy", x->energy, y->energy);
+        assert_same_number("gantry_deg", x->gantry_deg, y->gantry_deg);
+        assert_same_number("collimator_deg", x->collimator_deg, y->collimator_deg);
+        assert_same_number("couch_deg", x->couch_deg, y->couch_deg);
+        assert_same_number("sad_cm", x->sad_cm, y->sad_cm);
+        assert_same_number("ssd_cm", x->ssd_cm, y->ssd_cm);
+        assert_same_number("mu", x->mu, y->mu);
+        assert_same_number("beam_dose_cgy", x->beam_dose_cgy, y->beam_dose_cgy);
+        assert_int_equal(x->wedge_count, y->wedge_count);
+        assert_same_number("wedge_deg", x->wedge_deg, y->wedge_deg);
+        assert_same_text("wedge_id", x->wedge_id, y->wedge_id);
+        assert_same_text("wedge_type", x->wedge_type, y->wedge_type);
+        assert_int_equal(x->block_count, y->block_count);
+        assert_int_equal(x->tray, y->tray);
+        assert_same_text("tray_id", x->tray_id, y->tray_id);
+        assert_same_text("applicator_id", x->applicator_id, y->applicator_id);
+        assert_int_equal(x->bolus_count, y->bolus_count);
+        assert_same_number("jaw_x_cm", x->jaw_x_cm, y->jaw_x_cm);
+        assert_same_number("jaw_y_cm", x->jaw_y_cm, y->jaw_y_cm);
+        assert_same_number("field_x_cm", x->field_x_cm, y->field_x_cm);
+        assert_same_number("field_y_cm", x->field_y_cm, y->field_y_cm);
+        assert_int_equal(x->mlc, y->mlc);
+        assert_same_number("coll_eqsq_cm", x->coll_eqsq_cm, y->coll_eqsq_cm);
+        assert_same_number("field_eqsq_cm", x->field_eqsq_cm, y->field_eqsq_cm);
+    }
+}
+
+/* The same invented plan (make_rtplan.py three_field()) as pydicom's JSON
+ * Model and as Part 10 files of both VRs, deflated, and written by dump2dcm:
+ * every field read is identical. */
+static void test_dicom_plan_part10_same_as_json(void **state)
+{
+    static const char *const files[] = {"three_field.explicit.dcm", "three_field.implicit.dcm",
+                                        "three_field.deflated.dcm", "three_field.dump2dcm.dcm",
+                                        "three_field.dump2dcm-implicit.dcm"};
+    fxl_dicom_plan ref, p;
+    char path[2048];
+    size_t f;
+
+    (void)state;
+    if (getenv("FXLEDGER_DICOM_DIR"))
+        skip();
+    snprintf(path, sizeof path, "%s/three_field.json", data_dir);
+    assert_int_equal(fxl_dicom_plan_read(NULL, &ref, path), 0);
+    for (f = 0; f < sizeof files / sizeof files[0]; f++) {
+        snprintf(path, sizeof path, "%s/part10/%s", data_dir, files[f]);
+        print_message("%s\n", files[f]);
+        assert_int_equal(fxl_dicom_plan_read(NULL, &p, path), 0);
+        assert_same_plan(&p, &ref);
+        fxl_dicom_plan_release(&p);
+    }
+    fxl_dicom_plan_release(&ref);
+}
+
+/* Specific Character Set ISO_IR 100 (ISO 8859-1): u-umlaut is byte 0xFC,
+ * e-diaeresis 0xEB, e-acute 0xE9 (the ISO 8859-1 code chart); read as UTF-8
+ * U+00FC (C3 BC), U+00EB (C3 AB), U+00E9 (C3 A9) (RFC 3629). */
+static void test_dicom_plan_part10_latin1_name(void **state)
+{
+    static const char *const files[] = {"latin1_name.explicit.dcm", "latin1_name.implicit.dcm",
+                                        "latin1_name.dump2dcm.dcm"};
+    fxl_dicom_plan p;
+    char path[2048], *raw;
+    size_t f;
+
+    (void)state;
+    if (getenv("FXLEDGER_DICOM_DIR"))
+        skip();
+    for (f = 0; f < sizeof files / sizeof files[0]; f++) {
+        snprintf(path, sizeof path, "%s/part10/%s", data_dir, files[f]);
+        /* the file holds the ISO 8859-1 bytes, not UTF-8 */
+        raw = slurp(path);
+        assert_non_null(raw);
+        assert_non_null(memmem(raw, 3100, "M\xfc" "ller-L\xfc" "denscheidt^Zo\xeb" " Ren\xe9" "e", 29));
+        free(raw);
+        assert_int_equal(fxl_dicom_plan_read(NULL, &p, path), 0);
+        assert_string_equal(p.family_name, "M\xc3\xbc" "ller-L\xc3\xbc" "denscheidt");
+        assert_string_equal(p.given_name, "Zo\xc3\xab" " Ren\xc3\xa9" "e");
+        fxl_dicom_plan_release(&p);
+    }
+}
+
+/* A Part 10 file cut after any number of bytes is refused with a message
+ * and holds no beam, in both VRs and deflated. */
+static void test_dicom_plan_part10_cut_anywhere_refused(void **state)
+{
+    static const char *const files[] = {"three_field.explicit.dcm", "three_field.implicit.dcm",
+                                        "three_field.deflated.dcm"};
+    fxl_ctx *ctx = message_ctx();
+    char path[2048];
+    size_t f, cut, total = 0;
+
+    (void)state;
+    if (getenv("FXLEDGER_DICOM_DIR"))
+        skip();
+    for (f = 0; f < sizeof files / sizeof files[0]; f++) {
+        FILE *fp;
+        unsigned char *buf;
+        long n;
+
+        snprintf(path, sizeof path, "%s/part10/%s", data_dir, files[f]);
+        fp = fopen(path, "rb");
+        assert_non_null(fp);
+        fseek(fp, 0, SEEK_END);
+        n = ftell(fp);
+        fseek(fp, 0, SEEK_SET);
+        buf = malloc((size_t)n);
+        assert_non_null(buf);
+        assert_int_equal(fread(buf, 1, (size_t)n, fp), (size_t)n);
+        fclose(fp);
+        /* pydicom pads a deflated data set to an even length with one zero
+         * byte after the end of the deflate stream: without it the plan is
+         * whole. */
+        if (strstr(files[f], "deflated") && n > 0 && buf[n - 1] == 0)
+            n--;
+        for (cut = 0; cut < (size_t)n; cut++) {
+            fxl_dicom_plan p;
+            int rc = fxl_dicom_plan_parse_part10(ctx, &p, buf, cut, files[f]);
+            if (rc == 0) {
+                print_error("%s cut at %zu bytes of %ld was accepted\n", files[f], cut, n);
+                fail();
+            }
+            assert_int_equal(rc, FXL_EINVAL);
+            assert_true(fxl_errmsg(ctx)[0] != '\0');
+            assert_int_equal(p.n_beams, 0);
+            assert_null(p.beams);
+            total++;
+        }
+        free(buf);
+    }
+    print_message("%zu cut files refused\n", total);
+    fxl_close(ctx);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_dicom_plan_every_generated_plan),
+        cmocka_unit_test(test_dicom_plan_every_part10_file),
+        cmocka_unit_test(test_dicom_plan_part10_same_as_json),
+        cmocka_unit_test(test_dicom_plan_part10_latin1_name),
+        cmocka_unit_test(test_dicom_plan_part10_cut_anywhere_refused),
         cmocka_unit_test(test_dicom_plan_three_field_as_written),
         cmocka_unit_test(test_dicom_plan_json_model_variants),
         cmocka_unit_test(test_dicom_plan_malformed_refused),

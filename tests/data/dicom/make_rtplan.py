@@ -10,6 +10,10 @@ plan of a directory against its expectation.
   make_rtplan.py OUTDIR                 the fixed cases (committed in tests/data/dicom/)
   make_rtplan.py OUTDIR --seed N        random plans from seed N (tests/cli/test_dicom_roundtrip.py)
   make_rtplan.py OUTDIR --dcm2json      also convert each plan with dcm2json
+  make_rtplan.py OUTDIR --part10        DICOM Part 10 files instead (tests/data/dicom/part10/):
+                                        pydicom's Dataset.save_as with file meta in
+                                        each transfer syntax, and dcmtk's dump2dcm
+                                        as a second writer of the same data sets
 
 Every patient and plan here is invented."""
 import argparse
@@ -23,7 +27,8 @@ import sys
 
 from pydicom.dataset import Dataset, FileMetaDataset
 from pydicom.sequence import Sequence
-from pydicom.uid import ExplicitVRLittleEndian
+from pydicom.uid import (DeflatedExplicitVRLittleEndian, ExplicitVRBigEndian, ExplicitVRLittleEndian,
+                         ImplicitVRLittleEndian)
 
 RT_PLAN = "1.2.840.10008.5.1.4.1.1.481.5"
 RT_ION_PLAN = "1.2.840.10008.5.1.4.1.1.481.8"
@@ -281,6 +286,8 @@ def beam_item(beam):
 
 def dataset(plan, name):
     ds = Dataset()
+    if "charset" in plan:
+        ds.SpecificCharacterSet = plan["charset"]
     ds.SOPClassUID = plan.get("sop_class", RT_PLAN)
     ds.SOPInstanceUID = uid_for(name)
     ds.Modality = "RTPLAN"
@@ -324,6 +331,8 @@ def dataset(plan, name):
     ds.BeamSequence = Sequence([beam_item(b) for b in plan["beams"]])
     for keyword in plan.get("drop", []):
         delattr(ds, keyword)
+    for index, keyword in plan.get("drop_in_fraction_group", []):
+        delattr(ds.FractionGroupSequence[0].ReferencedBeamSequence[index], keyword)
     return ds
 
 
@@ -492,6 +501,166 @@ def fixed_cases():
     return cases
 
 
+# ---- DICOM Part 10 files (PS3.10) -----------------------------------------------
+
+SYNTAXES = {
+    "explicit": (ExplicitVRLittleEndian, False, True),
+    "implicit": (ImplicitVRLittleEndian, True, True),
+    "deflated": (DeflatedExplicitVRLittleEndian, False, True),
+    "bigendian": (ExplicitVRBigEndian, False, False),
+}
+
+
+def save_part10(ds, path, syntax="explicit", sop_class=None):
+    """pydicom's Dataset.save_as with file meta: 128-byte preamble, 'DICM',
+    group 0002 and the data set in the transfer syntax named."""
+    uid, implicit, little = SYNTAXES[syntax]
+    meta = FileMetaDataset()
+    meta.MediaStorageSOPClassUID = sop_class or ds.SOPClassUID
+    meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
+    meta.TransferSyntaxUID = uid
+    # fixed, so that the committed files are what this script makes
+    meta.ImplementationClassUID = "2.25.1234567890123456789"
+    meta.ImplementationVersionName = "FXL_TEST_1"
+    ds.file_meta = meta
+    ds.is_implicit_VR = implicit
+    ds.is_little_endian = little
+    ds.save_as(path, write_like_original=False)
+    return path
+
+
+def _dump_value(elem, encoding):
+    v = elem.value
+    if v is None or v == "":
+        return "(no value available)"
+    if elem.VR in ("OB", "OW", "UN"):
+        return "\\".join("%02x" % b for b in v)
+    vals = list(v) if isinstance(v, (list, tuple)) or type(v).__name__ == "MultiValue" else [v]
+    text = "\\".join(str(x) for x in vals)
+    return "[" + text + "]"
+
+
+def _dump(ds, depth, encoding, out):
+    pad = "  " * depth
+    for elem in ds:
+        tag = "(%04x,%04x)" % (elem.tag.group, elem.tag.element)
+        if elem.VR == "SQ":
+            out.append("%s%s SQ (Sequence with undefined length #=%d)" % (pad, tag, len(elem.value)))
+            for item in elem.value:
+                out.append("%s  (fffe,e000) na (Item with undefined length #=%d)" % (pad, len(item)))
+                _dump(item, depth + 2, encoding, out)
+                out.append("%s  (fffe,e00d) na (ItemDelimitationItem)" % pad)
+            out.append("%s(fffe,e0dd) na (SequenceDelimitationItem)" % pad)
+        else:
+            out.append("%s%s %s %s" % (pad, tag, elem.VR, _dump_value(elem, encoding)))
+
+
+def dump2dcm_part10(ds, path, syntax="explicit", encoding="ascii"):
+    """The same data set written by dcmtk's dump2dcm from a text dump (a
+    second, independent DICOM encoder). Text is written in `encoding`, the
+    Python name of the data set's Specific Character Set."""
+    flag = {"explicit": "+te", "implicit": "+ti", "deflated": "+td"}[syntax]
+    lines = ["# written by make_rtplan.py for dump2dcm (invented test data)",
+             "(0002,0002) UI [%s]" % ds.SOPClassUID,
+             "(0002,0003) UI [%s]" % ds.SOPInstanceUID]
+    _dump(ds, 0, encoding, lines)
+    dump = path + ".dump"
+    with open(dump, "wb") as f:
+        f.write(("\n".join(lines) + "\n").encode(encoding))
+    subprocess.run(["dump2dcm", "-q", flag, dump, path], check=True)
+    os.remove(dump)
+    return path
+
+
+def latin1_plan():
+    """The three-field plan for a patient with accented letters in the name,
+    in Specific Character Set ISO_IR 100 (ISO 8859-1, PS3.3 C.12.1.1.2)."""
+    plan = three_field()
+    plan.update(patient_id="TEST-0100", patient_name="Müller-Lüdenscheidt^Zoë Renée",
+                charset="ISO_IR 100", label="PEL-3F-L1")
+    return plan
+
+
+def part10_cases():
+    """(file name, plan, writer, syntax, words of the refusal or None)"""
+    no_mu = three_field()
+    no_mu["drop_in_fraction_group"] = [(1, "BeamMeterset")]
+    no_label = three_field()
+    no_label["drop"] = ["RTPlanLabel"]
+    cases = []
+    for syntax in ("explicit", "implicit", "deflated"):
+        cases.append(("three_field.%s.dcm" % syntax, three_field(), "pydicom", syntax, None))
+    cases += [
+        ("three_field.dump2dcm.dcm", three_field(), "dump2dcm", "explicit", None),
+        ("three_field.dump2dcm-implicit.dcm", three_field(), "dump2dcm", "implicit", None),
+        ("latin1_name.explicit.dcm", latin1_plan(), "pydicom", "explicit", None),
+        ("latin1_name.implicit.dcm", latin1_plan(), "pydicom", "implicit", None),
+        ("latin1_name.dump2dcm.dcm", latin1_plan(), "dump2dcm", "explicit", None),
+        ("electron_single.explicit.dcm", electron_single(), "pydicom", "explicit", None),
+        ("refuse_no_meterset.explicit.dcm", no_mu, "pydicom", "explicit",
+         "beam 'RLAT' (number 2): Beam Meterset (300A,0086) missing"),
+        ("refuse_no_meterset.implicit.dcm", no_mu, "pydicom", "implicit",
+         "beam 'RLAT' (number 2): Beam Meterset (300A,0086) missing"),
+        ("refuse_no_meterset.dump2dcm.dcm", no_mu, "dump2dcm", "explicit",
+         "beam 'RLAT' (number 2): Beam Meterset (300A,0086) missing"),
+        ("refuse_no_label.implicit.dcm", no_label, "pydicom", "implicit", "RT Plan Label (300A,0002) is missing"),
+        ("refuse_big_endian.dcm", three_field(), "pydicom", "bigendian", "'1.2.840.10008.1.2.2'"),
+    ]
+    return cases
+
+
+def ct_image():
+    """A tiny CT Image Storage object (SOP class 1.2.840.10008.5.1.4.1.1.2):
+    another SOP class, refused."""
+    ds = Dataset()
+    ds.SOPClassUID = "1.2.840.10008.5.1.4.1.1.2"
+    ds.SOPInstanceUID = uid_for("ct")
+    ds.Modality = "CT"
+    ds.PatientName = "Testperson^Ada"
+    ds.PatientID = "TEST-0002"
+    ds.Rows = 2
+    ds.Columns = 2
+    ds.BitsAllocated = 16
+    ds.BitsStored = 12
+    ds.HighBit = 11
+    ds.PixelRepresentation = 0
+    ds.SamplesPerPixel = 1
+    ds.PhotometricInterpretation = "MONOCHROME2"
+    ds.PixelData = bytes(8)
+    return ds
+
+
+def write_part10(outdir, writers=("pydicom", "dump2dcm")):
+    """Writes the Part 10 cases and NAME.expect.json beside each, as
+    write_case does for the JSON Model."""
+    written = []
+    for fname, plan, writer, syntax, refuse in part10_cases():
+        if writer not in writers:
+            continue
+        ds = dataset(plan, fname.split(".")[0])
+        path = os.path.join(outdir, fname)
+        if writer == "pydicom":
+            save_part10(ds, path, syntax)
+        else:
+            dump2dcm_part10(ds, path, syntax, "latin-1" if plan.get("charset") == "ISO_IR 100" else "ascii")
+        if refuse:
+            expect = {"plan": fname, "source": writer, "refuse": refuse}
+        else:
+            expect = expected_plan(plan, fname, writer)
+        with open(path[:-len(".dcm")] + ".expect.json", "w", encoding="utf-8") as f:
+            json.dump(expect, f, indent=1, sort_keys=True, ensure_ascii=False)
+            f.write("\n")
+        written.append(fname)
+    if "pydicom" in writers:
+        save_part10(ct_image(), os.path.join(outdir, "refuse_ct_image.dcm"))
+        with open(os.path.join(outdir, "refuse_ct_image.expect.json"), "w", encoding="utf-8") as f:
+            json.dump({"plan": "refuse_ct_image.dcm", "source": "pydicom",
+                       "refuse": "SOP class '1.2.840.10008.5.1.4.1.1.2' is not an RT Plan"}, f, indent=1)
+            f.write("\n")
+        written.append("refuse_ct_image.dcm")
+    return written
+
+
 # ---- random cases ------------------------------------------------------------------
 
 def random_plan(rng, k):
@@ -574,7 +743,15 @@ def main():
     ap.add_argument("outdir")
     ap.add_argument("--seed", type=int, help="random plans from this seed instead of the fixed cases")
     ap.add_argument("--dcm2json", action="store_true", help="also convert every plan with dcmtk's dcm2json")
+    ap.add_argument("--part10", action="store_true", help="write the DICOM Part 10 cases instead")
     args = ap.parse_args()
+    if args.part10:
+        if not shutil.which("dump2dcm"):
+            sys.exit("make_rtplan.py: error: dump2dcm (Debian package dcmtk) is not installed")
+        os.makedirs(args.outdir, exist_ok=True)
+        for f in write_part10(args.outdir):
+            print(f)
+        return
     if args.dcm2json and not shutil.which("dcm2json"):
         sys.exit("make_rtplan.py: error: dcm2json (Debian package dcmtk) is not installed")
     os.makedirs(args.outdir, exist_ok=True)
