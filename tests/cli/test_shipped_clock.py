@@ -7,6 +7,8 @@ import datetime as dt
 import json
 import os
 import sqlite3
+import subprocess
+import tempfile
 import unittest
 
 from fxlcli import BIN, SHIPPED_BIN, Fxl, main
@@ -57,6 +59,20 @@ class ShippedClockTest(unittest.TestCase):
             test_build = f.read()
         self.assertNotIn(b"FXLEDGER_NOW", shipped)
         self.assertIn(b"FXLEDGER_NOW", test_build)   # the check above can fail
+
+    def test_installed_binary_ignores_fixed_clock(self):
+        """What `make install` puts on the PATH is the shipped program, and
+        the test build is not installed."""
+        build = os.path.dirname(os.path.abspath(SHIPPED_BIN))
+        with tempfile.TemporaryDirectory() as d:
+            r = subprocess.run(["cmake", "--install", build, "--prefix", d], capture_output=True,
+                               text=True, timeout=120)
+            self.assertEqual(r.returncode, 0, r.stdout + r.stderr)
+            installed = os.path.join(d, "bin", "fxledger")
+            self.assertEqual(sorted(os.listdir(os.path.join(d, "bin"))), ["fxledger"])
+            created, (audit, patients), before, after = self.session(installed)
+            self.assertTrue(before <= utc(created) <= after, (created, before, after))
+            self.assertNotIn(FIXED, audit + patients)
 
     def test_test_build_takes_the_fixed_clock(self):
         """The counterpart: the test build does stamp the fixed time, so the
