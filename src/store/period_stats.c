@@ -44,8 +44,9 @@ int fxl_ps_parse_by(fxl_ctx *ctx, unsigned *out, const char *text)
                 found = 1;
             }
         if (!found)
-            return fxl_fail(ctx, FXL_EINVAL, "grouping key '%.*s' must be one of site, technique, "
-                            "energy, point, detector, all", (int)len, p);
+            return fxl_fail(ctx, FXL_EINVAL, "grouping key '%.*s%s' must be one of site, "
+                            "technique, energy, point, detector, all", (int)(len > 40 ? 40 : len),
+                            p, len > 40 ? "..." : "");
         p += len;
         if (*p == ',')
             p++;
