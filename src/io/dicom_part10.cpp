@@ -18,6 +18,7 @@
 #include "dcmtk/oflog/oflog.h"
 
 #include <cerrno>
+#include <cstdint>
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
@@ -143,6 +144,153 @@ const char *inflate_raw(const unsigned char *data, size_t len, std::string &out)
     return nullptr;
 }
 
+/* ---- a bound on what DCMTK is asked to read --------------------------------
+
+ * Before DCMTK sees the bytes, the element headers are walked here (PS3.5
+ * 7.1 and 7.5): every value length must fit in the bytes that remain of the
+ * file and of the item or sequence holding it, and sequences may nest at
+ * most SEQ_DEPTH_MAX deep (the JSON Model reader takes no more). DCMTK would
+ * otherwise allocate whatever length a damaged file claims before finding
+ * that the bytes are not there, and recurse as deep as the file nests. */
+
+constexpr int SEQ_DEPTH_MAX = 8;
+constexpr uint32_t UNDEFINED_LENGTH = 0xFFFFFFFFu;
+
+uint16_t le16(const unsigned char *p) { return static_cast<uint16_t>(p[0] | p[1] << 8); }
+uint32_t le32(const unsigned char *p)
+{
+    return static_cast<uint32_t>(p[0]) | static_cast<uint32_t>(p[1]) << 8 | static_cast<uint32_t>(p[2]) << 16 |
+           static_cast<uint32_t>(p[3]) << 24;
+}
+
+/* VRs with a 2-byte length (PS3.5 table 7.1-2). Every other VR, also one
+ * that the standard does not know, has 2 reserved bytes and a 4-byte length,
+ * as DCMTK reads it. */
+bool long_vr(const unsigned char *vr)
+{
+    static const char *const shorts[] = {"AE", "AS", "AT", "CS", "DA", "DS", "DT", "FL", "FD", "IS", "LO",
+                                         "LT", "PN", "SH", "SL", "SS", "ST", "TM", "UI", "UL", "US"};
+    for (const char *v : shorts)
+        if (vr[0] == v[0] && vr[1] == v[1])
+            return false;
+    return true;
+}
+
+struct ScanResult {
+    const char *why = nullptr;   /* nullptr: all lengths fit */
+    unsigned group = 0, element = 0;
+    size_t end = 0;              /* where the walk stopped */
+};
+
+/* Walks data[pos..len). `explicit_vr`: the VR follows the tag (else the
+ * dictionary tells which elements are sequences). `meta_only`: stops at the
+ * first element that is not of group 0002. */
+ScanResult scan_elements(const unsigned char *data, size_t pos, size_t len, bool explicit_vr, bool meta_only)
+{
+    struct Open {
+        size_t end;       /* SIZE_MAX for an undefined length */
+        bool sequence;
+    };
+    Open open[2 * SEQ_DEPTH_MAX + 2];
+    int n_open = 0, depth = 0;
+    ScanResult r;
+
+    while (pos < len) {
+        while (n_open > 0 && open[n_open - 1].end <= pos) {
+            depth -= open[n_open - 1].sequence ? 1 : 0;
+            n_open--;
+        }
+        size_t limit = n_open > 0 && open[n_open - 1].end < len ? open[n_open - 1].end : len;
+        if (limit - pos < 8) {
+            r.why = "an element header is cut short";
+            r.end = pos;
+            return r;
+        }
+        r.group = le16(data + pos);
+        r.element = le16(data + pos + 2);
+        if (meta_only && r.group != 0x0002)
+            break;
+        if (r.group == 0xFFFE) {   /* item and delimiters: tag and a 4-byte length, no VR */
+            uint32_t ilen = le32(data + pos + 4);
+            pos += 8;
+            if (r.element == 0xE000) {
+                if (ilen != UNDEFINED_LENGTH && ilen > limit - pos) {
+                    r.why = "an item is longer than the bytes that remain";
+                    r.end = pos;
+                    return r;
+                }
+                if (n_open == static_cast<int>(sizeof open / sizeof open[0])) {
+                    r.why = "items nested too deep";
+                    return r;
+                }
+                open[n_open++] = {ilen == UNDEFINED_LENGTH ? SIZE_MAX : pos + ilen, false};
+            } else if (r.element == 0xE00D || r.element == 0xE0DD) {
+                /* closes the innermost open item (E00D) or sequence (E0DD)
+                 * of undefined length */
+                bool seq = r.element == 0xE0DD;
+                while (n_open > 0) {
+                    Open o = open[--n_open];
+                    depth -= o.sequence ? 1 : 0;
+                    if (o.sequence == seq)
+                        break;
+                }
+            }
+            continue;
+        }
+        uint32_t vlen;
+        size_t header;
+        bool sequence;
+        if (explicit_vr) {
+            const unsigned char *vr = data + pos + 4;
+            if (vr[0] < 'A' || vr[0] > 'Z' || vr[1] < 'A' || vr[1] > 'Z') {
+                r.why = "an element has no valid value representation";
+                return r;
+            }
+            if (long_vr(vr)) {
+                if (limit - pos < 12) {
+                    r.why = "an element header is cut short";
+                    return r;
+                }
+                vlen = le32(data + pos + 8);
+                header = 12;
+            } else {
+                vlen = le16(data + pos + 6);
+                header = 8;
+            }
+            /* UN of undefined length holds an implicit VR sequence (PS3.5
+             * 6.2.2): walked as one. */
+            sequence = (vr[0] == 'S' && vr[1] == 'Q') || vlen == UNDEFINED_LENGTH;
+        } else {
+            vlen = le32(data + pos + 4);
+            header = 8;
+            sequence = vlen == UNDEFINED_LENGTH ||
+                       DcmTag(static_cast<Uint16>(r.group), static_cast<Uint16>(r.element)).getEVR() == EVR_SQ;
+        }
+        pos += header;
+        if (vlen != UNDEFINED_LENGTH && vlen > limit - pos) {
+            r.why = "an element is longer than the bytes that remain";
+            return r;
+        }
+        if (!sequence) {
+            pos += vlen;
+            continue;
+        }
+        if (++depth > SEQ_DEPTH_MAX) {
+            r.why = "sequences are nested deeper than 8";
+            return r;
+        }
+        open[n_open++] = {vlen == UNDEFINED_LENGTH ? SIZE_MAX : pos + vlen, true};
+    }
+    r.end = pos;
+    return r;
+}
+
+int scan_refusal(fxl_ctx *ctx, const char *name, const ScanResult &r)
+{
+    return fxl_fail(ctx, FXL_EINVAL, "file '%s' is cut short or damaged: %s (element (%04X,%04X))", name, r.why,
+                    r.group, r.element);
+}
+
 /* The converted data set as one JSON object. A DcmDataset writes its members
  * without the enclosing braces in some DCMTK versions and with them in
  * others: whichever it is, the result here is one object. */
@@ -199,6 +347,11 @@ extern "C" int fxl_dicom_part10_to_json(fxl_ctx *ctx, const unsigned char *data,
         long bad;
         int rc;
 
+        /* The file meta information is always explicit VR little endian
+         * (PS3.10 7.1). */
+        ScanResult meta_scan = scan_elements(data, FXL_DICOM_PREAMBLE_LEN + 4, len, true, true);
+        if (meta_scan.why)
+            return scan_refusal(ctx, name, meta_scan);
         if (len > UINT32_MAX || !file.write(data, len))
             return fxl_fail(ctx, FXL_EIO, "cannot read DICOM file '%s': no temporary file for DCMTK (TMPDIR)",
                             name);
@@ -237,12 +390,20 @@ extern "C" int fxl_dicom_part10_to_json(fxl_ctx *ctx, const unsigned char *data,
                                 name);
             if ((why = inflate_raw(data + start, len - start, plain)) != nullptr)
                 return fxl_fail(ctx, FXL_EINVAL, "file '%s': %s", name, why);
+            ScanResult inner_scan = scan_elements(reinterpret_cast<const unsigned char *>(plain.data()), 0,
+                                                  plain.size(), true, false);
+            if (inner_scan.why)
+                return scan_refusal(ctx, name, inner_scan);
             if (!inner.write(reinterpret_cast<const unsigned char *>(plain.data()), plain.size()))
                 return fxl_fail(ctx, FXL_EIO, "cannot read DICOM file '%s': no temporary file for DCMTK (TMPDIR)",
                                 name);
             st = inflated.loadFile(inner.path(), EXS_LittleEndianExplicit, EGL_noChange, DCM_MaxReadLength);
             ds = &inflated;
         } else {
+            ScanResult ds_scan = scan_elements(data, meta_scan.end, len, xfer != UID_LittleEndianImplicitTransferSyntax,
+                                               false);
+            if (ds_scan.why)
+                return scan_refusal(ctx, name, ds_scan);
             st = full.loadFile(file.path(), EXS_Unknown, EGL_noChange, DCM_MaxReadLength, ERM_fileOnly);
             ds = full.getDataset();
         }
