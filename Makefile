@@ -47,7 +47,7 @@ uninstall:
 	xargs -d '\n' rm -f -- < $(BUILD)/install_manifest.txt
 
 demo: build
-	/usr/bin/python3 demo/run_demo.py $(BUILD)/fxledger
+	/usr/bin/python3 demo/run_demo.py $(BUILD)/fxledger-testclock
 
 # Sanitizer reports go to files (a report from a command that a test expects
 # to fail would otherwise pass unseen); any report fails the target.
@@ -74,4 +74,4 @@ clean:
 # same) and prints each figure beside its target; exits 1 if one is missed.
 .PHONY: bench
 bench: build
-	/usr/bin/python3 tests/bench/run_bench.py --fxledger $(BUILD)/fxledger
+	/usr/bin/python3 tests/bench/run_bench.py --fxledger $(BUILD)/fxledger-testclock

@@ -115,5 +115,6 @@ int cmd_amend(cli_env *env, int argc, char **argv);
 int cmd_backup(cli_env *env, int argc, char **argv);
 int cmd_report(cli_env *env, int argc, char **argv);
 int cmd_today(cli_env *env, int argc, char **argv);
+int cmd_stats(cli_env *env, int argc, char **argv);
 
 #endif
