@@ -33,6 +33,8 @@ static const cli_command commands[] = {
     {"amend", cmd_amend, "supersede a mistyped reading with a corrected one", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"report", cmd_report, "write per-patient and monthly PDF summaries", CLI_READONLY | CLI_NEEDS_USER},
     {"stats", cmd_stats, "statistics of a period's deviations by site, technique, energy, point, detector", CLI_READONLY | CLI_NEEDS_USER},
+    {"export", cmd_export, "export the measurement record as CSV or JSON", CLI_READONLY | CLI_NEEDS_USER},
+    {"audit", cmd_audit, "list and show rows of the audit trail", CLI_READONLY | CLI_NEEDS_USER},
     {"backup", cmd_backup, "copy the database online to a file", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"verify", cmd_verify, "check the audit chain and the database's integrity", CLI_NEEDS_DB | CLI_NEEDS_USER},
 };
