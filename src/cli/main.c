@@ -27,6 +27,7 @@ static const cli_command commands[] = {
     {"patient", cmd_patient, "add, list and show patients", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"plan", cmd_plan, "import, list and show treatment plans and their fields", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"levels", cmd_levels, "set and list tolerance and action levels", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"today", cmd_today, "today's worklist: patients, fields due, detectors, holds", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"record", cmd_record, "log one fraction's readings and show the verdicts", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"history", cmd_history, "list logged measurements of a patient", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"queue", cmd_queue, "work the review queue: list, show, acknowledge, comment, close", CLI_NEEDS_DB | CLI_NEEDS_USER},

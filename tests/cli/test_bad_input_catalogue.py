@@ -41,7 +41,7 @@ DICOM_PLAN = os.path.join(DATA, "dicom", "three_field.json")   # Patient ID TEST
 
 # Commands with their sub-commands, as 'fxledger --help' lists them today.
 # test_catalogue_covers_every_command checks this against the program.
-FAMILIES_WITHOUT_SUB = ("init", "record", "history", "amend", "backup", "verify")
+FAMILIES_WITHOUT_SUB = ("init", "record", "history", "amend", "backup", "verify", "today")
 
 
 def run(db, args, user="admin", stdin=None, now=NOW, extra_env=None):
@@ -262,6 +262,10 @@ class Department:
         d["00100020"]["Value"] = [SQL]
         put("dcm_patient_sql.json", json.dumps(d))
         put("not_json.bin", bytes(range(256)) * 64)
+        put("dl_no_header.csv", "08:30,P-1,plan\n")
+        put("dl_many.csv", "time,mrn\n" + "".join("08:%02d,P-%d\n" % (i % 60, i) for i in range(501)))
+        put("dl_bad_time.csv", "time,mrn\n25:00,P-1\n")
+        put("dl_escape.csv", "time,mrn\n08:30,Bad\x1b[2JName\n")
         return files
 
     def restore(self):
@@ -706,6 +710,18 @@ def catalogue(f):
             (R, ["report", "month", "2026-13", "--out", "@m2.pdf"], dict(expect="2026-13", new_file="m2.pdf")),
             (M, ["report", "month", "2026-11"], dict(code=1, expect="--out")),
             (H, ["report", "month", SQL, "--out", "@m3.pdf"], dict(new_file="m3.pdf")),
+        ],
+        "today": [
+            (M, ["today", "--at"], dict(code=1)),
+            (M, ["today", "--day-list", f["dl_no_header.csv"]], dict(expect="header")),
+            (O, ["today", "--day-list", f["dl_many.csv"]], dict(expect="more than 500")),
+            (R, ["today", "--at", "2026-13-01"], dict(expect="2026-13-01")),
+            (R, ["today", "--day-list", f["dl_bad_time.csv"]], dict(expect="25:00")),
+            (W, ["today", "--at", "noon"], dict(expect="noon")),
+            (W, ["today", "--day-list", f["not_json.bin"]], dict()),
+            (W, ["today", "--day-list", "@no-such-day-list.csv"], dict(code=2, expect="cannot open")),
+            (H, ["today", "--day-list", f["dl_escape.csv"]], dict(expect="printable")),
+            (H, ["today", "--at", SQL], dict(expect="not valid")),
         ],
         "stats": [
             (M, ["stats"], dict(code=1, expect="period is required")),
