@@ -10,6 +10,7 @@
 
 #include "cli/cli.h"
 #include "cli/record_flow.h"
+#include "fxl/number.h"
 #include "cli/record_view.h"
 #include "cli/worklist_view.h"
 #include "fxl/fraction.h"
@@ -215,9 +216,8 @@ static int parse_number(double *out, const char *text, const char *what, const c
     char *end = NULL;
     double v;
 
-    errno = 0;
-    v = strtod(text, &end);
-    if (!*text || errno != 0 || end == text || *end != '\0' || !isfinite(v)) {
+    (void)end;
+    if (fxl_number_parse(&v, text, 0) != FXL_NUM_OK) {
         cli_error("%s '%s' for field '%s' is not a number: must be %s", what, text, field, range);
         return -1;
     }

@@ -16,6 +16,7 @@
 #include "cli/table.h"
 #include "cli/worklist_view.h"
 #include "fxl/fraction.h"
+#include "fxl/number.h"
 #include "fxl/readings_json.h"
 #include "fxl/worklist.h"
 
@@ -228,9 +229,8 @@ static int one_field(cli_env *env, const fxl_fraction_state *st, const fxl_workl
             }
             continue;
         }
-        errno = 0;
-        reading = strtod(line, &end);
-        if (errno == 0 && end != line && *end == '\0' && isfinite(reading) && reading > 0)
+        (void)end;
+        if (fxl_number_parse(&reading, line, 0) == FXL_NUM_OK && reading > 0)
             break;
         cli_error("reading '%s' for field '%s' must be a number > 0 %s", line, f->name, unit);
     }
