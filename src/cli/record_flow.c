@@ -111,16 +111,15 @@ static int choose_patient(cli_env *env, char mrn[65], char plan[65])
         printf("\n");
     }
     for (;;) {
-        char *end = NULL;
+        double v;
         if (ask(env, line, sizeof line, "Patient: line 1-%zu or MRN: ", w.n) != 0 || !line[0]) {
             cli_error("no patient chosen; nothing recorded");
             code = CLI_EXIT_USAGE;
             goto cleanup;
         }
-        errno = 0;
-        k = strtol(line, &end, 10);
-        if (errno == 0 && end != line && *end == '\0') {
-            if (k >= 1 && (size_t)k <= w.n) {
+        if (fxl_number_parse(&v, line, FXL_NUM_WHOLE) == FXL_NUM_OK) {
+            k = (long)v;
+            if (v >= 1 && v <= (double)w.n) {
                 snprintf(mrn, 65, "%s", w.entries[k - 1].mrn);
                 snprintf(plan, 65, "%s", w.entries[k - 1].plan);
                 break;
