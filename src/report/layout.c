@@ -2,6 +2,7 @@
  * TrueType fonts and UTF-8 text, running header and footer, text measuring,
  * wrapping and cutting, boxes and lines, number formatting. */
 #include "report/layout.h"
+#include "report/tounicode.h"
 
 #include <math.h>
 #include <stdio.h>
@@ -64,6 +65,9 @@ int rpt_doc_init(rpt_doc *d, fxl_ctx *ctx, const char *font_dir, int landscape)
     if (!d->font || !d->bold || d->hpdf_error)
         return fxl_fail(ctx, FXL_EIO, "cannot load the report fonts from '%s' (PDF library error 0x%04lX)",
                         font_dir, d->hpdf_error);
+    /* libharu's own ToUnicode stream is an encoding CMap (report/tounicode.h) */
+    if (rpt_tounicode_fix(d->font) != 0 || rpt_tounicode_fix(d->bold) != 0)
+        return fxl_fail(ctx, FXL_EIO, "cannot write the text map of the report fonts");
     d->page_w = landscape ? RPT_A4_LONG : RPT_A4_SHORT;
     d->page_h = landscape ? RPT_A4_SHORT : RPT_A4_LONG;
     d->left = MARGIN_SIDE;

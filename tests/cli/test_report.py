@@ -10,6 +10,7 @@ import re
 import shutil
 import sqlite3
 import subprocess
+import tempfile
 import unittest
 
 import record_fixture
@@ -141,6 +142,20 @@ def pdftext(path, first=None, last=None, layout=True):
     return r.stdout
 
 
+def assertPopplerClean(test, path):
+    """No warning or error from poppler-utils on the file (stderr empty), and
+    text extraction gives text."""
+    t = subprocess.run(["pdftotext", path, "-"], capture_output=True, text=True)
+    test.assertEqual(t.returncode, 0, t.stderr)
+    test.assertEqual(t.stderr, "", "pdftotext warns on %s" % path)
+    test.assertIn("Page 1 of", t.stdout)
+    with tempfile.TemporaryDirectory() as d:
+        r = subprocess.run(["pdftoppm", "-r", "20", "-png", path, os.path.join(d, "p")],
+                           capture_output=True, text=True)
+        test.assertEqual(r.returncode, 0, r.stderr)
+        test.assertEqual(r.stderr, "", "pdftoppm warns on %s" % path)
+
+
 def pdfpages(path):
     out = subprocess.run(["pdfinfo", path], capture_output=True, text=True, check=True).stdout
     return int(re.search(r"^Pages:\s+(\d+)", out, re.M).group(1))
@@ -163,11 +178,17 @@ class ReportTestCase(FxlTestCase):
         if r.returncode == 0:
             out = args[list(args).index("--out") + 1]
             self.assertQpdfOk(out)      # every report the tests produce
+            self.assertPopplerClean(out)
         keep = os.environ.get("FXL_TEST_KEEP_PDF")  # a directory to look at the files in
         if keep and r.returncode == 0:
             shutil.copy(out, os.path.join(keep, "%s-%s" % (self.id().split(".")[-1],
                                                            os.path.basename(out))))
         return r
+
+    def assertPopplerClean(self, path):
+        """poppler (pdftotext, pdftoppm) reads the file without a warning: no
+        "Invalid 'begincidrange' operator in ToUnicode CMap" or any other."""
+        assertPopplerClean(self, path)
 
     def assertQpdfOk(self, path):
         r = subprocess.run(["qpdf", "--check", path], capture_output=True, text=True)
