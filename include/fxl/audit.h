@@ -23,4 +23,15 @@ typedef struct fxl_verify_report {
  * FXL_ECONFLICT with a message naming the first failing row or check. */
 int fxl_audit_verify(fxl_ctx *ctx, fxl_verify_report *out);
 
+/* The head of the chain: number of rows, id, time and hash of the last row
+ * ("" and 0 for an empty log). Any role may read. */
+typedef struct fxl_audit_head {
+    int64_t rows;
+    int64_t last_id;
+    char last_at[FXL_TIME_LEN];
+    char last_hash[65];
+} fxl_audit_head;
+
+int fxl_audit_head_get(fxl_ctx *ctx, fxl_audit_head *out);
+
 #endif

@@ -73,8 +73,8 @@ int fxl_audit_append(fxl_ctx *ctx, const char *action, const char *entity,
     row_hash(hash, prev, id, at, ctx->user_login, action, entity, idtext, text);
 
     if ((rc = fxl_stmt_prepare(&ins, ctx,
-                               "INSERT INTO audit_log (id, at, user, action, entity, entity_id, content, prev_hash, hash) "
-                               "VALUES (:id, :at, :user, :action, :entity, :entity_id, :content, :prev, :hash)")) != 0)
+                               "INSERT INTO audit_log (id, at, user, action, entity, entity_id, content, prev_hash, hash, client) "
+                               "VALUES (:id, :at, :user, :action, :entity, :entity_id, :content, :prev, :hash, :client)")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&ins, ":id", id);
     fxl_stmt_bind_text(&ins, ":at", at);
@@ -88,6 +88,10 @@ int fxl_audit_append(fxl_ctx *ctx, const char *action, const char *entity,
     fxl_stmt_bind_text(&ins, ":content", text);
     fxl_stmt_bind_text(&ins, ":prev", prev);
     fxl_stmt_bind_text(&ins, ":hash", hash);
+    if (ctx->origin[0])
+        fxl_stmt_bind_text(&ins, ":client", ctx->origin);
+    else
+        fxl_stmt_bind_null(&ins, ":client");
     rc = fxl_stmt_exec(&ins);
 cleanup:
     fxl_stmt_finalize(&last);
@@ -148,6 +152,27 @@ int fxl_audit_verify(fxl_ctx *ctx, fxl_verify_report *out)
         rc = fxl_fail(ctx, FXL_ECONFLICT, "foreign-key check failed in table '%s' row %lld",
                       fxl_stmt_text(&s, 0), (long long)fxl_stmt_int(&s, 1));
 cleanup:
+    fxl_stmt_finalize(&s);
+    return rc < 0 ? rc : 0;
+}
+
+int fxl_audit_head_get(fxl_ctx *ctx, fxl_audit_head *out)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    memset(out, 0, sizeof *out);
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+                               "SELECT (SELECT count(*) FROM audit_log), id, at, hash FROM audit_log "
+                               "ORDER BY id DESC LIMIT 1")) != 0)
+        return rc;
+    rc = fxl_stmt_step(&s);
+    if (rc == 1) {
+        out->rows = fxl_stmt_int(&s, 0);
+        out->last_id = fxl_stmt_int(&s, 1);
+        snprintf(out->last_at, sizeof out->last_at, "%s", fxl_stmt_text(&s, 2));
+        snprintf(out->last_hash, sizeof out->last_hash, "%s", fxl_stmt_text(&s, 3));
+    }
     fxl_stmt_finalize(&s);
     return rc < 0 ? rc : 0;
 }
