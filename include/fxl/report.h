@@ -13,7 +13,7 @@
 typedef struct fxl_report_options {
     /* Generation time printed on every page and stored as the PDF creation
      * date, in the stored UTC form 'YYYY-MM-DDTHH:MM:SSZ'. NULL: fxl_now()
-     * (which honours FXLEDGER_NOW). The same database and the same time give
+     * (which honours FXLEDGER_NOW in the test build only). The same database and the same time give
      * a byte-identical file. */
     const char *generated_at;
     /* Directory holding DejaVuSans.ttf and DejaVuSans-Bold.ttf; NULL: the
