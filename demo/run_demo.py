@@ -351,9 +351,14 @@ def reports():
         user="qaudit", now=gen, show=True)
     run("report", "month", "2026-11", "--out", month_pdf, "--generated-at", gen,
         user="qaudit", now=gen, show=True)
+    stats_pdf = os.path.join(OUT, "stats-2026-11.pdf")
+    run("stats", "--month", "2026-11", "--by", "site,technique,energy,point,detector",
+        "--out", stats_pdf, "--generated-at", gen, user="mkeller", now=gen, show=True)
+    run("stats", "--month", "2026-11", "--by", "site", user="mkeller", now=gen, show=True)
     run("verify", user="qaudit", now=gen, show=True)
     print("demo database: %s" % os.path.relpath(DB))
-    print("reports:       %s, %s" % (os.path.relpath(patient_pdf), os.path.relpath(month_pdf)))
+    print("reports:       %s, %s, %s" % (os.path.relpath(patient_pdf), os.path.relpath(month_pdf),
+                                     os.path.relpath(stats_pdf)))
     print()
     print("All people, patients, plans, detectors and readings in this demo are invented.")
 

@@ -9,6 +9,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "fxl/number.h"
 #include "cli/record_view.h"
 #include "fxl/readings_json.h"
 #include "fxl/record.h"
@@ -210,9 +211,8 @@ static int parse_number(double *out, const char *text, const char *what, const c
     char *end = NULL;
     double v;
 
-    errno = 0;
-    v = strtod(text, &end);
-    if (!*text || errno != 0 || end == text || *end != '\0' || !isfinite(v)) {
+    (void)end;
+    if (fxl_number_parse(&v, text, 0) != FXL_NUM_OK) {
         cli_error("%s '%s' for field '%s' is not a number: must be %s", what, text, field, range);
         return -1;
     }
@@ -376,9 +376,8 @@ static int interactive(cli_env *env, const fxl_record_plan *plan, long *fraction
                 return ended();
             if (!line[0])
                 break;
-            errno = 0;
-            cur->reading = strtod(line, &end);
-            if (errno == 0 && end != line && *end == '\0' && isfinite(cur->reading) && cur->reading > 0)
+            (void)end;
+            if (fxl_number_parse(&cur->reading, line, 0) == FXL_NUM_OK && cur->reading > 0)
                 break;
             cli_error("reading '%s' for field '%s' must be a number > 0 %s", line, f->name, unit);
         }

@@ -27,11 +27,15 @@ static const cli_command commands[] = {
     {"patient", cmd_patient, "add, list and show patients", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"plan", cmd_plan, "import, list and show treatment plans and their fields", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"levels", cmd_levels, "set and list tolerance and action levels", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"today", cmd_today, "today's worklist: patients, fields due, detectors, holds", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"record", cmd_record, "log one fraction's readings and show the verdicts", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"history", cmd_history, "list logged measurements of a patient", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"queue", cmd_queue, "work the review queue: list, show, acknowledge, comment, close", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"amend", cmd_amend, "supersede a mistyped reading with a corrected one", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"report", cmd_report, "write per-patient and monthly PDF summaries", CLI_READONLY | CLI_NEEDS_USER},
+    {"stats", cmd_stats, "statistics of a period's deviations by site, technique, energy, point, detector", CLI_READONLY | CLI_NEEDS_USER},
+    {"export", cmd_export, "export the measurement record as CSV or JSON", CLI_READONLY | CLI_NEEDS_USER},
+    {"audit", cmd_audit, "list and show rows of the audit trail", CLI_READONLY | CLI_NEEDS_USER},
     {"backup", cmd_backup, "copy the database online to a file", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"verify", cmd_verify, "check the audit chain and the database's integrity", CLI_NEEDS_DB | CLI_NEEDS_USER},
 };
@@ -71,7 +75,7 @@ static const char *default_user(void)
 /* Removes the global options from argv wherever they stand (before "--"). */
 static int take_global_options(cli_env *env, int *argc, char **argv, int *want_help, int *want_version)
 {
-    int i, j = 0;
+    int i, j = 0, seen_db = 0, seen_user = 0, seen_json = 0;
 
     for (i = 0; i < *argc; i++) {
         const char *a = argv[i];
@@ -79,6 +83,21 @@ static int take_global_options(cli_env *env, int *argc, char **argv, int *want_h
             while (i < *argc)
                 argv[j++] = argv[i++];
             break;
+        }
+        /* A global option given twice is refused like a repeated command
+         * option: which of two users or databases was meant is a guess. */
+        if (strcmp(a, "--db") == 0 || strncmp(a, "--db=", 5) == 0 || strcmp(a, "--user") == 0 ||
+            strncmp(a, "--user=", 7) == 0 || strcmp(a, "--json") == 0) {
+            int *seen = a[2] == 'd' ? &seen_db : a[2] == 'u' ? &seen_user : &seen_json;
+            if ((strcmp(a, "--db") == 0 || strcmp(a, "--user") == 0) && i + 1 >= *argc) {
+                cli_error("option '%s' needs a value", a);
+                return -1;
+            }
+            if (*seen) {
+                cli_error("option '%.*s' is given more than once", a[2] == 'd' ? 4 : a[2] == 'u' ? 6 : 6, a);
+                return -1;
+            }
+            *seen = 1;
         }
         if (strcmp(a, "--db") == 0 || strcmp(a, "--user") == 0) {
             if (i + 1 >= *argc) {

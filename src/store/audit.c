@@ -156,23 +156,20 @@ cleanup:
     return rc < 0 ? rc : 0;
 }
 
-int fxl_audit_head_get(fxl_ctx *ctx, fxl_audit_head *out)
+int fxl_audit_anchor(fxl_ctx *ctx, char *buf, size_t size)
 {
     fxl_stmt s = FXL_STMT_INIT;
     int rc;
 
-    memset(out, 0, sizeof *out);
-    if ((rc = fxl_stmt_prepare(&s, ctx,
-                               "SELECT (SELECT count(*) FROM audit_log), id, at, hash FROM audit_log "
-                               "ORDER BY id DESC LIMIT 1")) != 0)
-        return rc;
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT id, at, hash FROM audit_log ORDER BY id DESC LIMIT 1")) != 0)
+        goto cleanup;
     rc = fxl_stmt_step(&s);
-    if (rc == 1) {
-        out->rows = fxl_stmt_int(&s, 0);
-        out->last_id = fxl_stmt_int(&s, 1);
-        snprintf(out->last_at, sizeof out->last_at, "%s", fxl_stmt_text(&s, 2));
-        snprintf(out->last_hash, sizeof out->last_hash, "%s", fxl_stmt_text(&s, 3));
-    }
+    if (rc == 1)
+        snprintf(buf, size, "fxledger-anchor rows=%lld at=%s head=%s", (long long)fxl_stmt_int(&s, 0),
+                 fxl_stmt_text(&s, 1), fxl_stmt_text(&s, 2));
+    else if (rc == 0)
+        snprintf(buf, size, "fxledger-anchor rows=0 at=- head=%s", GENESIS);
+cleanup:
     fxl_stmt_finalize(&s);
     return rc < 0 ? rc : 0;
 }
