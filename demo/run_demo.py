@@ -115,6 +115,7 @@ def setup():
                 "--chamber-dose", 100, "--readings", ",".join(map(str, readings)),
                 "--temp", CAL_TEMP_C, "--valid-days", 90, "--at", "2026-10-26",
                 "--chamber", "Farmer-type chamber FC-7 (invented)", user=ph,
+                *(["--thickness", EXIT_PHANTOM_CM] if point == "exit" else []),
                 show=(serial == "PD-0101" and machine == "LINAC-A"))
     for f in sorted(os.listdir(DATA)):
         if f.startswith("corrections-"):
@@ -178,6 +179,7 @@ def load_tables():
 
 
 TABLES = load_tables()
+EXIT_PHANTOM_CM = 20  # phantom behind which the exit diode was calibrated (invented)
 
 
 def interp(points, x):
@@ -209,7 +211,14 @@ def reading_for(mrn, field_name, point, serial, deviation_pct, temp_c):
     expected = next(p["expected_dose_cgy"] for p in field["points"] if p["point"] == point)
     key = (serial, field["machine"], field["beam"])
     eq_sq = 2.0 * field["x_cm"] * field["y_cm"] / (field["x_cm"] + field["y_cm"])
-    cf = (interp(TABLES[key + ("field_size",)], eq_sq) * interp(TABLES[key + ("ssd",)], field["ssd_cm"])
+    if point == "exit":
+        # exit tables: thickness and source-to-detector distance (SSD + thickness)
+        thick = next(p["thickness_cm"] for p in field["points"] if p["point"] == point)
+        cf_dist = (interp(TABLES[key + ("thickness",)], thick)
+                   * interp(TABLES[key + ("sdd",)], field["ssd_cm"] + thick))
+    else:
+        cf_dist = interp(TABLES[key + ("ssd",)], field["ssd_cm"])
+    cf = (interp(TABLES[key + ("field_size",)], eq_sq) * cf_dist
           * interp(TABLES[key + ("wedge",)], field["wedge_deg"])
           * interp(TABLES[key + ("tray",)], 1 if field["tray"] else 0)
           * interp(TABLES[key + ("angle",)], field["incidence_deg"]))
@@ -297,7 +306,8 @@ def treat():
 def amend(at, correct_reading):
     hist = json.loads(run("--json", "history", "--patient", "DEMO-1003", user="lsands", now=at).stdout)
     rows = hist["measurements"] if isinstance(hist, dict) else hist
-    wrong = [m for m in rows if m.get("verdict") == "implausible"][-1]
+    # a slipped decimal point is a gross deviation (outside the action level)
+    wrong = [m for m in rows if m.get("gross") and not m.get("superseded_by")][-1]
     print("--- the therapist re-reads the electrometer: %s was typed for %s" % (wrong["reading"], correct_reading))
     run("amend", wrong["measurement_id"], "--reading", correct_reading, "--reason",
         "decimal point slipped: typed %s for %s" % (wrong["reading"], correct_reading),

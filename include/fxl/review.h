@@ -101,7 +101,9 @@ typedef struct fxl_review_measurement {
     int temp_entered;
     int64_t calibration_id;     /* 0 = none */
     double factor_n;            /* cGy per reading unit */
-    double cf[FXL_CF_COUNT];    /* field size, SSD, wedge, tray, angle */
+    double cf[FXL_CF_COUNT];    /* field size, SSD, wedge, tray, angle, thickness, SDD */
+    double background;          /* M_0; NaN in rows older than schema 5 */
+    int gross;                  /* 1: beyond the plausibility bound */
     double cf_temp;
     double corrected_dose_cgy;
     double expected_dose_cgy;

@@ -311,7 +311,8 @@ static void print_factor(const char *name, double v, const char *fmt_unit)
 static void print_measurement(const fxl_review_measurement *m)
 {
     static const char *const cf_names[FXL_CF_COUNT] = {"CF field size", "CF SSD", "CF wedge",
-                                                       "CF tray", "CF angle"};
+                                                       "CF tray", "CF angle", "CF thickness",
+                                                       "CF SDD"};
     int i;
 
     printf("\nMeasurement #%lld: fraction %d, treated %s, recorded by %s at %s\n", (long long)m->id,
@@ -319,8 +320,13 @@ static void print_measurement(const fxl_review_measurement *m)
     printf("  %-16s %s %s, beam %s, detector %s\n", "field", m->field, m->point, m->beam,
            m->detector);
     printf("  %-16s %.4g %s\n", "reading", m->reading, m->reading_unit);
+    if (isfinite(m->background))
+        printf("  %-16s %.4g %s\n", "background M0", m->background, m->reading_unit);
     printf("  %-16s %.1f degC (%s)\n", "temperature", m->temp_c,
-           m->temp_entered ? "entered" : "skin-temperature setting");
+           m->temp_entered ? "entered" : "temperature assumed: skin-temperature setting");
+    if (m->gross)
+        printf("  %-16s beyond the plausibility bound: re-read and unit check first; a confirmed "
+               "reading stands\n", "gross deviation");
     if (m->calibration_id)
         printf("  %-16s #%lld, N = %.5g cGy/%s\n", "calibration", (long long)m->calibration_id,
                m->factor_n, m->reading_unit);
@@ -366,7 +372,8 @@ static void print_measurement(const fxl_review_measurement *m)
 static cJSON *measurement_json(const fxl_review_measurement *m)
 {
     static const char *const cf_keys[FXL_CF_COUNT] = {"cf_field_size", "cf_ssd", "cf_wedge",
-                                                      "cf_tray", "cf_angle"};
+                                                      "cf_tray", "cf_angle", "cf_thickness",
+                                                      "cf_sdd"};
     cJSON *o = cJSON_CreateObject(), *reasons = cJSON_CreateArray();
     int i;
 
@@ -383,6 +390,9 @@ static cJSON *measurement_json(const fxl_review_measurement *m)
     cJSON_AddStringToObject(o, "reading_unit", m->reading_unit);
     cli_json_put_number(o, "temp_c", m->temp_c);
     cJSON_AddBoolToObject(o, "temp_entered", m->temp_entered);
+    cJSON_AddBoolToObject(o, "temperature_assumed", !m->temp_entered);
+    cli_json_put_number(o, "background", m->background);
+    cJSON_AddBoolToObject(o, "gross", m->gross);
     cli_json_put_id(o, "calibration_id", m->calibration_id);
     cli_json_put_number(o, "factor_n_cgy_per_unit", m->factor_n);
     for (i = 0; i < FXL_CF_COUNT; i++)

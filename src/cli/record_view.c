@@ -91,7 +91,8 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r)
         num(dev, sizeof dev, implausible ? NAN : m->deviation_pct, "%+.2f", "%");
         printf("%-6s %-12s %-9s %-12s %-14s %-12s %-12s %-10s %s%s%s%s\n", id, m->field, m->point,
                m->detector, reading, dose, expected, dev, cli_color(env, verdict_color(m->verdict)),
-               fxl_verdict_label(m->verdict), m->escalated ? " (escalated)" : "",
+               fxl_verdict_label(m->verdict),
+               m->gross ? " (gross)" : m->escalated ? " (escalated)" : "",
                cli_color(env, CLI_RESET));
         if (m->verdict != FXL_VERDICT_WITHIN)
             flagged = 1;
@@ -103,7 +104,7 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r)
 
         if (m->temp_entered || !isfinite(m->temp_c))
             continue;
-        printf("%s%s %s", j++ ? ", " : "No temperature entered for ", m->field, m->point);
+        printf("%s%s %s", j++ ? ", " : "Temperature assumed (none entered) for ", m->field, m->point);
         assumed_c = m->temp_c;
     }
     if (j)
@@ -118,7 +119,8 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r)
                fxl_verdict_label(m->verdict), cli_color(env, CLI_RESET));
         for (j = 0; j < m->reasons.n && j < FXL_REASONS_MAX; j++)
             printf("  - %s\n", m->reasons.text[j]);
-        printf("  What to do: %s\n", fxl_verdict_guidance(m->verdict));
+        printf("  What to do: %s\n",
+               m->gross ? fxl_gross_guidance() : fxl_verdict_guidance(m->verdict));
         if (m->review_item_id)
             printf("  Review item #%lld opened for a physicist.\n", (long long)m->review_item_id);
     }

@@ -1,6 +1,7 @@
 /* Read-only SQL behind the PDF reports: each listing steps its statement and
  * hands one row at a time to a callback, so memory stays flat however large
  * the course or the month. Nothing here writes. */
+#include "store/dose_counted.h"
 #include "store/report_query.h"
 
 #include <math.h>
@@ -593,7 +594,7 @@ int fxl_rq_detectors_near_limit_each(fxl_ctx *ctx, const char *as_of, double war
         "         " STATUS_AT("d.id") " AS status, "
         "         coalesce((SELECT max(c.calibrated_at) FROM calibrations c "
         "           WHERE c.detector_id = d.id AND c.calibrated_at <= :asof), '') AS last_cal, "
-        "         coalesce((SELECT sum(m.corrected_dose_cgy) FROM measurements m "
+        "         coalesce((SELECT sum(" FXL_SQL_DOSE_COUNTED("m") ") FROM measurements m "
         "           JOIN fractions f ON f.id = m.fraction_id "
         "           WHERE m.detector_id = d.id AND " CURRENT_M
         "             AND m.created_at > coalesce((SELECT max(c.calibrated_at) "

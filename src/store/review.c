@@ -532,7 +532,7 @@ static int load_measurement(fxl_ctx *ctx, fxl_review_measurement *m, int64_t id)
             "       coalesce(t.version, 0), m.tolerance_pct, m.action_pct, m.floor_cgy, m.verdict, "
             "       m.reasons, coalesce(m.supersedes_id, 0), coalesce(m.amend_reason, ''), "
             "       coalesce(n.id, 0), coalesce(n.amend_reason, ''), coalesce(n.verdict, ''), "
-            "       n.deviation_pct "
+            "       n.deviation_pct, m.cf_thickness, m.cf_sdd, m.background, m.gross "
             "FROM measurements m "
             "JOIN fractions fr ON fr.id = m.fraction_id "
             "JOIN fields f ON f.id = m.field_id "
@@ -565,7 +565,7 @@ static int load_measurement(fxl_ctx *ctx, fxl_review_measurement *m, int64_t id)
     m->temp_entered = (int)fxl_stmt_int(&s, 12);
     m->calibration_id = fxl_stmt_int(&s, 13);
     m->factor_n = fxl_stmt_double_opt(&s, 14);
-    for (i = 0; i < FXL_CF_COUNT; i++)
+    for (i = 0; i <= FXL_CF_ANGLE; i++)
         m->cf[i] = fxl_stmt_double_opt(&s, 15 + i);
     m->cf_temp = fxl_stmt_double_opt(&s, 20);
     m->corrected_dose_cgy = fxl_stmt_double_opt(&s, 21);
@@ -585,6 +585,10 @@ static int load_measurement(fxl_ctx *ctx, fxl_review_measurement *m, int64_t id)
     copy(m->superseded_reason, sizeof m->superseded_reason, fxl_stmt_text(&s, 35));
     copy(m->superseded_verdict, sizeof m->superseded_verdict, fxl_stmt_text(&s, 36));
     m->superseded_deviation_pct = fxl_stmt_double_opt(&s, 37);
+    m->cf[FXL_CF_THICKNESS] = fxl_stmt_double_opt(&s, 38);
+    m->cf[FXL_CF_SDD] = fxl_stmt_double_opt(&s, 39);
+    m->background = fxl_stmt_double_opt(&s, 40);
+    m->gross = (int)fxl_stmt_int(&s, 41);
     rc = 0;
 cleanup:
     fxl_stmt_finalize(&s);

@@ -9,6 +9,7 @@
 #include <string.h>
 
 #include "fxl/rules.h"
+#include "store/dose_counted.h"
 #include "store/grow.h"
 #include "store/review_store.h"
 #include "store/rules_hook.h"
@@ -364,7 +365,11 @@ static int rule_dose_limit(fxl_ctx *ctx, const hook_detector *d)
         return 0;
     if ((rc = fxl_stmt_prepare(&s, ctx,
             "SELECT coalesce(c.id, 0), coalesce(c.calibrated_at, ''), "
-            "       coalesce((SELECT sum(m.corrected_dose_cgy) FROM measurements m "
+            /* A gross or implausible result (a unit slip can be a factor
+             * 1000) adds the planned dose, the best estimate of what the
+             * detector received; one without a dose adds nothing
+             * (docs/rules.md). */
+            "       coalesce((SELECT sum(" FXL_SQL_DOSE_COUNTED("m") ") FROM measurements m "
             "                 JOIN fractions fr ON fr.id = m.fraction_id "
             "                 WHERE m.detector_id = :d AND m.corrected_dose_cgy IS NOT NULL "
             "                 AND NOT EXISTS (SELECT 1 FROM measurements n WHERE n.supersedes_id = m.id) "

@@ -70,9 +70,11 @@ class HazardTest(RecordTestCase):
         out = self.record_json("--plan", PLAN, "--at", "2026-11-02T09:30", *self.ref(20.0))
         self.assertEqual((out["plan"]["label"], out["results"][0]["verdict"]), (PLAN, "within_tolerance"))
         # Without --plan the current plan is taken: 200 cGy against REC-2's 100 cGy.
-        out = self.record_json(*self.ref(20.0), expect_code=10)
+        # +100 %: a gross deviation, outside the action level (docs/physics.md).
+        out = self.record_json(*self.ref(20.0), expect_code=12)
         self.assertEqual(out["plan"]["label"], "REC-2")
-        self.assertEqual(out["results"][0]["verdict"], "implausible")
+        self.assertEqual(out["results"][0]["verdict"], "outside_action")
+        self.assertTrue(out["results"][0]["gross"])
 
     def test_plan_replaced_while_logging_interactively(self):
         """The interactive session shows plan REC-1; a plan change imported
@@ -127,11 +129,15 @@ class HazardTest(RecordTestCase):
         r = self.record("--detector", "D-1001", "--field", "REF", "--reading", "20.0",
                         "--field", "AP", "--reading", "20.0", "--temp", "30")
         self.assertEqual(r.returncode, 0, r.stderr)
-        note = [line for line in r.stdout.splitlines() if line.startswith("No temperature entered")]
-        self.assertEqual(note, ["No temperature entered for REF entrance: 32.0 degC assumed "
-                                "(setting skin_temp_c); give --temp with the measured value."])
+        note = [line for line in r.stdout.splitlines() if line.startswith("Temperature assumed")]
+        self.assertEqual(note, ["Temperature assumed (none entered) for REF entrance: 32.0 degC "
+                                "assumed (setting skin_temp_c); give --temp with the measured value."])
+        # history marks it too
+        hist = self.fx.run("history", "--patient", MRN)
+        line = [l for l in hist.stdout.splitlines() if " REF " in l][0]
+        self.assertIn("temperature assumed", line)
         r = self.record(*self.ref(20.0), now="2026-11-03T09:00:00Z")
-        self.assertNotIn("No temperature entered", r.stdout)
+        self.assertNotIn("Temperature assumed", r.stdout)
 
     # ---- calibration, detector, levels ------------------------------------------------
 
