@@ -1,6 +1,9 @@
-"""Shared harness for the command-line tests: runs build/fxledger against a
-temporary database with a fixed clock, and checks that failed commands leave
-the database file byte-for-byte unchanged. Test data here is invented."""
+"""Shared harness for the command-line tests: runs the test build of fxledger
+(build/fxledger-testclock, the same sources with a clock that FXLEDGER_NOW
+fixes) against a temporary database with a fixed clock, and checks that
+failed commands leave the database file byte-for-byte unchanged. SHIPPED_BIN
+is the program users run, which ignores FXLEDGER_NOW; only tests about that
+binary itself use it. Test data here is invented."""
 import hashlib
 import json
 import os
@@ -10,6 +13,8 @@ import tempfile
 import unittest
 
 BIN = os.environ.get("FXLEDGER_BIN") or os.path.join(
+    os.path.dirname(__file__), "..", "..", "build", "fxledger-testclock")
+SHIPPED_BIN = os.environ.get("FXLEDGER_SHIPPED_BIN") or os.path.join(
     os.path.dirname(__file__), "..", "..", "build", "fxledger")
 SRC = os.environ.get("FXLEDGER_SRC") or os.path.join(os.path.dirname(__file__), "..", "..")
 DATA = os.path.join(SRC, "tests", "data")
@@ -18,7 +23,8 @@ DATA = os.path.join(SRC, "tests", "data")
 class Fxl:
     """One temporary database and the ways to drive fxledger on it."""
 
-    def __init__(self, now="2026-11-02T09:00:00Z", user="admin"):
+    def __init__(self, now="2026-11-02T09:00:00Z", user="admin", bin=None):
+        self.bin = bin or BIN   # SHIPPED_BIN only for tests about the program users run
         self.dir = tempfile.mkdtemp(prefix="fxltest-")
         self.db = os.path.join(self.dir, "test.db")
         self.now = now
@@ -46,7 +52,7 @@ class Fxl:
         e["NO_COLOR"] = "1"
         if env:
             e.update(env)
-        return subprocess.run([BIN, "--db", self.db] + [str(a) for a in args],
+        return subprocess.run([self.bin, "--db", self.db] + [str(a) for a in args],
                               input=stdin, capture_output=True, text=True, env=e, timeout=60)
 
     def ok(self, *args, **kw):
