@@ -29,7 +29,9 @@ import sys
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 DATA = os.path.join(HERE, "data")
-OUT = os.path.join(HERE, "out")
+# FXLEDGER_DEMO_OUT moves the output (tests/cli/test_demo_rows.py runs the demo in a
+# temporary directory).
+OUT = os.environ.get("FXLEDGER_DEMO_OUT") or os.path.join(HERE, "out")
 DB = os.path.join(OUT, "demo.db")
 
 BIN = os.path.abspath(sys.argv[1] if len(sys.argv) > 1 else os.path.join(HERE, "..", "build", "fxledger-testclock"))

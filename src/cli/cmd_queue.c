@@ -260,10 +260,12 @@ static void print_trend(const cli_env *env, const fxl_review_detail *d)
 
     (void)env;
     if (d->trend_is_detector) {
-        printf("\nDeviations measured with detector %s since its latest calibration or closed\n"
-               "drift review, all patients, with the CUSUM sums (target %.2f %%, k = %.2f %%,\n"
-               "h = %.2f %%):\n",
-               d->item.detector, d->cusum_target_pct, d->cusum_k_pct, d->cusum_h_pct);
+        printf("\nDeviations measured with detector %s%s%s since its latest calibration or\n"
+               "closed drift review, all patients, with the standardised CUSUM sums in spreads\n"
+               "(target %.2f %%, k = %.2f, h = %.2f spreads, start-up %d results; spread from\n"
+               "the series' moving ranges):\n",
+               d->item.detector, d->trend_series[0] ? ", " : "", d->trend_series,
+               d->cusum_target_pct, d->cusum_k_sd, d->cusum_h_sd, d->cusum_startup);
     } else {
         printf("\nHistory of field %s %s (patient %s), deviation per fraction:\n", d->item.field,
                d->item.point, d->item.mrn);
@@ -292,6 +294,8 @@ static void print_trend(const cli_env *env, const fxl_review_detail *d)
         if (d->trend_is_detector)
             printf("  %.10s  %-10.10s %-8.8s %s  C+ %5.2f  C- %5.2f  %s\n", t->treated_at, t->mrn,
                    t->field, dev, t->cusum_high, t->cusum_low, lane);
+    if (d->trend_is_detector && d->n_trend && isfinite(d->trend[d->n_trend - 1].sigma_pct))
+        printf("  spread used at the last result: %.2f %%\n", d->trend[d->n_trend - 1].sigma_pct);
         else
             printf("  fx %3d  %.10s  %s  %-18s %s%s\n", t->fraction_number, t->treated_at, dev,
                    t->verdict, lane, t->superseded ? "  (superseded)" : "");
@@ -455,8 +459,10 @@ static int queue_show(cli_env *env, int argc, char **argv)
         cli_json_put_number(o, "trend_action_pct", d.trend_action_pct);
         if (d.trend_is_detector) {
             cli_json_put_number(o, "cusum_target_pct", d.cusum_target_pct);
-            cli_json_put_number(o, "cusum_k_pct", d.cusum_k_pct);
-            cli_json_put_number(o, "cusum_h_pct", d.cusum_h_pct);
+            cli_json_put_number(o, "cusum_k_sd", d.cusum_k_sd);
+            cli_json_put_number(o, "cusum_h_sd", d.cusum_h_sd);
+            cJSON_AddNumberToObject(o, "cusum_startup", d.cusum_startup);
+            cJSON_AddStringToObject(o, "series", d.trend_series);
         }
         for (i = 0; i < d.n_trend; i++) {
             const fxl_review_trend_point *t = &d.trend[i];
@@ -471,8 +477,9 @@ static int queue_show(cli_env *env, int argc, char **argv)
             cJSON_AddBoolToObject(p, "superseded", t->superseded);
             cJSON_AddBoolToObject(p, "this_item", t->is_item);
             if (d.trend_is_detector) {
-                cli_json_put_number(p, "cusum_high_pct", t->cusum_high);
-                cli_json_put_number(p, "cusum_low_pct", t->cusum_low);
+                cli_json_put_number(p, "cusum_high_sd", t->cusum_high);
+                cli_json_put_number(p, "cusum_low_sd", t->cusum_low);
+                cli_json_put_number(p, "sigma_pct", t->sigma_pct);
             }
             cJSON_AddItemToArray(trend, p);
         }

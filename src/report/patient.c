@@ -192,6 +192,12 @@ static int on_measurement(void *arg, const fxl_rq_measurement *m)
     else if (m->supersedes_id)
         snprintf(amend, sizeof amend, "replaces %lld: %.500s", (long long)m->supersedes_id,
                  m->amend_reason);
+    /* CF_T of such a row rests on the skin-temperature setting: say so
+     * wherever the result is read (docs/physics.md section 1.2a). */
+    if (!m->temp_entered) {
+        size_t used = strlen(amend);
+        snprintf(amend + used, sizeof amend - used, "%stemperature assumed", used ? "; " : "");
+    }
     cells[0] = id;
     cells[1] = date;
     cells[2] = fx;

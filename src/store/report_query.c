@@ -124,7 +124,7 @@ int fxl_rq_measurements_each(fxl_ctx *ctx, int64_t plan_id, fxl_rq_measurement_c
         "         ORDER BY e.created_at DESC, e.id DESC LIMIT 1), ''), "
         "       coalesce(m.supersedes_id, 0), "
         "       coalesce((SELECT s.id FROM measurements s WHERE s.supersedes_id = m.id), 0), "
-        "       coalesce(m.amend_reason, '') "
+        "       coalesce(m.amend_reason, ''), m.temp_entered, m.gross "
         "FROM measurements m "
         "JOIN fractions f ON f.id = m.fraction_id "
         "JOIN fields fl ON fl.id = m.field_id "
@@ -158,6 +158,8 @@ int fxl_rq_measurements_each(fxl_ctx *ctx, int64_t plan_id, fxl_rq_measurement_c
         m.supersedes_id = fxl_stmt_int(&s, 19);
         m.superseded_by = fxl_stmt_int(&s, 20);
         m.amend_reason = fxl_stmt_text(&s, 21);
+        m.temp_entered = (int)fxl_stmt_int(&s, 22);
+        m.gross = (int)fxl_stmt_int(&s, 23);
         if ((rc = cb(arg, &m)) != 0)
             goto cleanup;
     }

@@ -86,6 +86,8 @@ typedef struct fxl_rq_measurement {
     int64_t supersedes_id;           /* 0 unless it amends an earlier row */
     int64_t superseded_by;           /* 0 unless a later row amends it */
     const char *amend_reason;        /* "" unless it amends */
+    int temp_entered;                /* 0: temperature assumed (skin setting) */
+    int gross;                       /* 1: beyond the plausibility bound */
 } fxl_rq_measurement;
 
 typedef int (*fxl_rq_measurement_cb)(void *arg, const fxl_rq_measurement *m);

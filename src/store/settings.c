@@ -9,6 +9,7 @@
 
 #include "fxl/beam_model.h"
 #include "fxl/calibrations.h"
+#include "fxl/drift.h"
 #include "fxl/review.h"
 #include "fxl/rules.h"
 #include "fxl/settings.h"
@@ -49,10 +50,12 @@ static const setting_rule rules[] = {
     {{"calibration_sd_limit_pct", "largest SD of the calibration readings (percent of their mean) "
       "accepted without a physicist's confirmation", "0.01 to 20 %",
       STR(FXL_CALIB_SD_LIMIT_PCT_DEFAULT)}, KIND_NUMBER, 0.01, 20},
-    {{"cusum_h_pct", "CUSUM decision interval for detector and course drift",
-      "0.1 to 100 %", STR(FXL_CUSUM_H_PCT_DEFAULT)}, KIND_NUMBER, 0.1, 100},
-    {{"cusum_k_pct", "CUSUM allowance (slack) for detector and course drift",
-      "0 to 20 %", STR(FXL_CUSUM_K_PCT_DEFAULT)}, KIND_NUMBER, 0, 20},
+    {{"cusum_h_sd", "drift CUSUM decision interval, in spreads of the series",
+      "1 to 20", STR(FXL_DRIFT_H_SIGMA_DEFAULT)}, KIND_NUMBER, 1, 20},
+    {{"cusum_k_sd", "drift CUSUM allowance (slack), in spreads of the series",
+      "0 to 3", STR(FXL_DRIFT_K_SIGMA_DEFAULT)}, KIND_NUMBER, 0, 3},
+    {{"cusum_startup", "results of a drift series before its chart starts (spread estimate)",
+      "10 to 100", STR(FXL_DRIFT_STARTUP_DEFAULT)}, KIND_INT, 10, 100},
     {{"cusum_target_pct", "CUSUM target mean deviation", "-20 to 20 %",
       STR(FXL_CUSUM_TARGET_PCT_DEFAULT)}, KIND_NUMBER, -20, 20},
     {{"department", "department name printed on reports", "1 to 200 characters", NULL},
