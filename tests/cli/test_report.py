@@ -242,6 +242,9 @@ class PatientReportTest(ReportTestCase):
             self.assertIn("%.1f cGy" % (EXPECTED * (1 + dev / 100)), line[0])
         self.assertRegex(t, r"%d\s.*superseded by %d" % (self.bad, self.good))
         self.assertRegex(t, r"replaces %d: reading" % self.bad)
+        # the fixture's rows carry no entered temperature: each says so
+        self.assertGreaterEqual(pdftext(self.out, layout=False).replace("\n", " ").count(
+            "temperature assumed"), len(self.rows))
         self.assertRegex(t, r"outside action level\s+set-up error")
         self.assertRegex(t, r"outside tolerance\s+review pending")
         # counts: 8 rows + the correction + the not-evaluable one; the superseded
