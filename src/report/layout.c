@@ -2,7 +2,9 @@
  * TrueType fonts and UTF-8 text, running header and footer, text measuring,
  * wrapping and cutting, boxes and lines, number formatting. */
 #include "report/layout.h"
+#include "report/tounicode.h"
 
+#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -10,6 +12,7 @@
 #include <unistd.h>
 
 #include "fxl/core.h"
+#include "fxl/outfile.h"
 
 #define MARGIN_SIDE 36.0
 #define MARGIN_TOP 28.0
@@ -64,6 +67,9 @@ int rpt_doc_init(rpt_doc *d, fxl_ctx *ctx, const char *font_dir, int landscape)
     if (!d->font || !d->bold || d->hpdf_error)
         return fxl_fail(ctx, FXL_EIO, "cannot load the report fonts from '%s' (PDF library error 0x%04lX)",
                         font_dir, d->hpdf_error);
+    /* libharu's own ToUnicode stream is an encoding CMap (report/tounicode.h) */
+    if (rpt_tounicode_fix(d->font) != 0 || rpt_tounicode_fix(d->bold) != 0)
+        return fxl_fail(ctx, FXL_EIO, "cannot write the text map of the report fonts");
     d->page_w = landscape ? RPT_A4_LONG : RPT_A4_SHORT;
     d->page_h = landscape ? RPT_A4_SHORT : RPT_A4_LONG;
     d->left = MARGIN_SIDE;
@@ -122,12 +128,17 @@ static void draw_footer(rpt_doc *d, int index)
     rpt_text_center(d, d->font, 7, SOFT_GRAY, (d->left + d->right) / 2 + 40, y - 27, buf);
     snprintf(buf, sizeof buf, "Page %d of %d", index + 1, d->npages);
     rpt_text_right(d, d->bold, 8, TEXT_GRAY, d->right, y - 27, buf);
+    /* The record as read, for checking later with 'fxledger verify --anchor'. */
+    if (d->anchor[0])
+        rpt_text(d, d->font, 6, SOFT_GRAY, d->left, y - 35, d->anchor);
 }
 
 int rpt_doc_save(rpt_doc *d, fxl_ctx *ctx, const char *path)
 {
-    char tmp[4096];
-    int i;
+    fxl_outfile o = FXL_OUTFILE_INIT;
+    HPDF_BYTE chunk[8192];
+    HPDF_UINT32 n;
+    int i, rc;
 
     for (i = 0; i < d->npages; i++)
         draw_footer(d, i);
@@ -136,18 +147,32 @@ int rpt_doc_save(rpt_doc *d, fxl_ctx *ctx, const char *path)
     if (d->hpdf_error)
         return fxl_fail(ctx, FXL_EIO, "PDF library error 0x%04lX (detail %lu) while drawing the report",
                         d->hpdf_error, d->hpdf_detail);
-    if (snprintf(tmp, sizeof tmp, "%s.part", path) >= (int)sizeof tmp)
-        return fxl_fail(ctx, FXL_EINVAL, "output path '%s' is too long", path);
-    if (HPDF_SaveToFile(d->pdf, tmp) != HPDF_OK || d->hpdf_error) {
-        unlink(tmp);
-        return fxl_fail(ctx, FXL_EIO, "cannot write report '%s' (check the directory exists and is writable)",
-                        path);
+    /* Into memory, then through the safe output file: libharu's own
+     * SaveToFile would follow a symlink and replace any file. */
+    if (HPDF_SaveToStream(d->pdf) != HPDF_OK || d->hpdf_error)
+        return fxl_fail(ctx, FXL_EIO, "PDF library error 0x%04lX while writing the report", d->hpdf_error);
+    if ((rc = fxl_outfile_open(&o, ctx, path, d->force ? FXL_OUT_FORCE : 0)) != 0)
+        return rc;
+    HPDF_ResetStream(d->pdf);
+    for (;;) {
+        HPDF_STATUS st;
+        n = sizeof chunk;
+        st = HPDF_ReadFromStream(d->pdf, chunk, &n);
+        if (n > 0 && fwrite(chunk, 1, n, o.fp) != n) {
+            rc = fxl_fail(ctx, FXL_EIO, "cannot write report '%s': %s", path, strerror(errno));
+            goto cleanup;
+        }
+        if (st == HPDF_STREAM_EOF)
+            break;
+        if (st != HPDF_OK) {
+            rc = fxl_fail(ctx, FXL_EIO, "PDF library error 0x%04lX while writing the report", (unsigned long)st);
+            goto cleanup;
+        }
     }
-    if (rename(tmp, path) != 0) {
-        unlink(tmp);
-        return fxl_fail(ctx, FXL_EIO, "cannot write report '%s'", path);
-    }
-    return 0;
+    rc = fxl_outfile_commit(&o, ctx);
+cleanup:
+    fxl_outfile_abort(&o);
+    return rc;
 }
 
 void rpt_page_new(rpt_doc *d)
@@ -347,7 +372,7 @@ static int unit_follows(const char *s)
 const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text, double width,
                           char *out, size_t outsz)
 {
-    const char *p = text, *q, *brk = NULL, *brk_next = NULL, *end, *rest;
+    const char *p = text, *q, *brk = NULL, *brk_next = NULL, *hbrk = NULL, *end, *rest;
     double w = 0;
     size_t len;
 
@@ -373,6 +398,11 @@ const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text
             } else if (brk) {
                 end = brk;
                 rest = brk_next;
+            } else if (hbrk) {
+                /* no space on the line: a word too long alone, cut after
+                 * its last hyphen or slash rather than inside a letter run */
+                end = hbrk;
+                rest = hbrk;
             } else {
                 end = q;
                 rest = q;
@@ -385,9 +415,10 @@ const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text
             brk = q;
             brk_next = q + 1;
         } else if ((*q == '-' || *q == '/') && !(q[1] >= '0' && q[1] <= '9')) {
-            /* after a hyphen or slash, but never inside a number or a date */
-            brk = q + 1;
-            brk_next = q + 1;
+            /* after a hyphen or slash only when no space is left to break
+             * at (an identifier such as BR-R-1 is one word), never inside a
+             * number or a date */
+            hbrk = q + 1;
         }
         q += n;
     }
@@ -572,13 +603,23 @@ void rpt_fmt_cgy(char *out, size_t n, double v)
 
 void rpt_fmt_reading(char *out, size_t n, double v, const char *unit)
 {
-    double a = fabs(v);
-    int dec = a >= 1000 ? 0 : a >= 100 ? 1 : a >= 10 ? 2 : 3;
+    char num[40];
+    int p;
 
-    if (!isfinite(v))
+    if (!isfinite(v)) {
         snprintf(out, n, DASH);
-    else
-        snprintf(out, n, "%.*f %s", dec, v, unit && *unit ? unit : "");
+        return;
+    }
+    /* As entered: the fewest decimals that read back to the stored value,
+     * so 12.774 stays 12.774 and 20.1 is not padded to 20.100 (a typed
+     * decimal has far fewer than 15 significant digits; past 12 decimals
+     * the value was computed, not typed, and 12 are shown). */
+    for (p = 0; p <= 12; p++) {
+        snprintf(num, sizeof num, "%.*f", p, v);
+        if (strtod(num, NULL) == v)
+            break;
+    }
+    snprintf(out, n, "%s %s", num, unit && *unit ? unit : "");
 }
 
 const char *rpt_verdict_label(const char *verdict)
