@@ -35,9 +35,11 @@ class GrossDeviationTest(RecordTestCase):
         self.assertEqual(r.returncode, 12, r.stdout + r.stderr)
         want = dose(WEDGE_LEFT_OUT_NC, 10, 100, temp=20)  # 320 cGy, formula
         self.assertAlmostEqual(want, 320.0, places=9)
-        self.assertIn("outside action level (gross)", r.stdout)
-        # guidance names both the re-read and the hold
-        guidance = [l for l in r.stdout.splitlines() if "What to do:" in l][0]
+        self.assertIn("REF entrance: outside action level", r.stdout)
+        self.assertIn("gross", r.stdout[:r.stdout.index("REF entrance:")])  # marked in the table
+        # guidance names both the re-read and the hold (wrapped: read as one paragraph)
+        text = r.stdout[r.stdout.index("What to do:"):]
+        guidance = " ".join(text[:text.index("Review item")].split())
         self.assertIn("re-read the electrometer", guidance)
         self.assertIn("check the reading's unit", guidance)
         self.assertIn("do not continue this patient's treatment", guidance)

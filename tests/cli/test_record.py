@@ -130,11 +130,13 @@ class RecordVerdictTest(RecordTestCase):
         # measured, so the physicist sees what the detector read.
         r = self.record("--field", "REF", "--detector", "D-1001", "--reading", "200", "--temp", "20")
         self.assertEqual(r.returncode, 12, r.stderr)
-        row = next(line for line in r.stdout.splitlines() if line.startswith("#1 "))
-        self.assertIn("gross", row)
-        self.assertIn("2000.0", row)
-        self.assertIn("+900.00 %", row)
-        self.assertIn("200.000 nC", row)
+        # the verdict table (laid out in rows or, when too wide, one block per
+        # result) before the first explanation
+        table = r.stdout[:r.stdout.index("REF entrance: outside action level")]
+        self.assertIn("gross", table)
+        self.assertIn("2000.0", table)
+        self.assertIn("+900.00 %", table)
+        self.assertIn("200.000 nC", table)
 
     def test_amendment_keeps_the_background(self):
         out = self.record_json("--field", "REF", "--detector", "D-1001", "--reading", "2.01",
