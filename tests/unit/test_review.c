@@ -327,6 +327,30 @@ static void test_review_dose_limit_boundary(void **state)
     assert_int_equal(items(f, FXL_RULE_DOSE_LIMIT), 1);
 }
 
+static void test_review_dose_limit_not_inflated_by_gross_results(void **state)
+{
+    fixture *f = *state;
+
+    /* D-1 limit 1000 cGy. A reading typed in pC for nC (a factor 1000:
+     * 200000 cGy against 200 cGy expected) is a gross deviation; it adds its
+     * planned 200 cGy, not 200000 cGy (docs/rules.md). An old implausible
+     * row counts the same way. 200 + 200 + 200 = 600 cGy: under the limit. */
+    sql(f, "INSERT INTO fractions (id, plan_id, number, treated_at, user_id, created_at) VALUES "
+           "(150, 1, 20, '2026-11-02T08:00:00Z', 2, '2026-11-02T08:00:00Z');"
+           "INSERT INTO measurements (fraction_id, field_id, detector_id, reading, reading_unit, temp_c, "
+           "temp_entered, corrected_dose_cgy, expected_dose_cgy, deviation_pct, verdict, gross, user_id, "
+           "created_at) VALUES (150, 3, 1, 20000, 'nC', 32, 0, 200000, 200, 99900, 'outside_action', 1, "
+           "2, '2026-11-02T08:00:00Z'), (150, 1, 1, 20000, 'nC', 32, 0, 200000, 200, 99900, "
+           "'implausible', 0, 2, '2026-11-02T08:00:00Z')");
+    log_fraction(f, 1, 2, "2026-11-03T08:00:00Z", "3:1:0");
+    assert_int_equal(items(f, FXL_RULE_DOSE_LIMIT), 0);
+    /* two more plausible 200 cGy results: 1000 cGy, at the limit; a third is over */
+    log_fraction(f, 1, 3, "2026-11-04T08:00:00Z", "3:1:0 1:1:0");
+    assert_int_equal(items(f, FXL_RULE_DOSE_LIMIT), 0);
+    log_fraction(f, 1, 4, "2026-11-05T08:00:00Z", "3:1:0");
+    assert_int_equal(items(f, FXL_RULE_DOSE_LIMIT), 1);
+}
+
 /* ---- detector drift (standardised CUSUM) ---------------------------------- */
 
 /* The index (0-based) at which the standardised CUSUM of docs/rules.md first
@@ -758,6 +782,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_review_missing_weekly_boundary, setup, teardown),
         cmocka_unit_test_setup_teardown(test_review_calibration_due_and_expired, setup, teardown),
         cmocka_unit_test_setup_teardown(test_review_dose_limit_boundary, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_review_dose_limit_not_inflated_by_gross_results, setup,
+                                        teardown),
         cmocka_unit_test_setup_teardown(test_review_drift_opens_item_on_detector, setup, teardown),
         cmocka_unit_test_setup_teardown(test_review_drift_ignores_superseded_and_not_evaluable, setup, teardown),
         cmocka_unit_test_setup_teardown(test_review_bad_setting_refuses_logging, setup, teardown),
