@@ -122,7 +122,7 @@ class RecordVerdictTest(RecordTestCase):
         con.close()
 
     def test_implausible_reading_shows_no_dose(self):
-        # An implausible entry is never reported as a dose result (DESIGN.md
+        # An implausible entry is never reported as a dose result (docs/physics.md;
         # section 4): the verdict table shows no corrected dose or deviation.
         # 200 nC x 10 cGy/nC would be 2000 cGy, ten times the expected 200 cGy.
         r = self.record("--field", "REF", "--detector", "D-1001", "--reading", "200", "--temp", "20")
