@@ -15,6 +15,7 @@ struct fxl_ctx {
     int64_t user_id;
     char user_login[65];
     fxl_role user_role;
+    char origin[64];       /* client address of a served request, "" if none */
 };
 
 /* Maps the connection's last SQLite error to FXL_EBUSY, FXL_ECONFLICT (a
