@@ -354,6 +354,31 @@ def review():
         run("queue", "show", spine, user="mkeller", now=later, show=True)
 
 
+# ---- the console at the start of a day -------------------------------------------
+
+def console_day():
+    heading("Monday 16 November at the console: the worklist, then a patient on hold")
+    morning = "2026-11-16T07:45:00Z"
+    run("today", "--day-list", os.path.join(DATA, "daylist-2026-11-16.csv"), user="lsands",
+        now=morning, show=True)
+    # DEMO-1002 still has the escalated LAT result open (acknowledged, not
+    # closed): the hold is shown before the readings and beside the verdicts.
+    at = "2026-11-16T08:31:00Z"
+    answers = []
+    for field, point in (("MED", "entrance"), ("LAT", "entrance")):
+        answers += [str(reading_for("DEMO-1002", field, point, "PD-0101", 0.8, 32.0)), "32"]
+    stdin = "\n".join(["2"] + answers) + "\n"
+    env = dict(os.environ, FXLEDGER_DB=DB, FXLEDGER_USER="rpatel", FXLEDGER_NOW=at, NO_COLOR="1")
+    print("$ fxledger record        (line 2 of the worklist, then the readings as they come)")
+    r = subprocess.run([BIN, "record", "--interactive"], input=stdin, capture_output=True, text=True,
+                       env=env)
+    if r.returncode not in (0, 10, 11, 12):
+        sys.stderr.write("demo step failed (%d): record\n%s%s" % (r.returncode, r.stdout, r.stderr))
+        sys.exit(1)
+    sys.stdout.write(r.stdout)
+    print()
+
+
 def reports():
     heading("Reports for the auditor")
     gen = "2026-12-01T08:00:00Z"
@@ -384,6 +409,7 @@ def main():
     setup()
     treat()
     review()
+    console_day()
     reports()
 
 

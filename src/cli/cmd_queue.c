@@ -603,23 +603,28 @@ static int queue_ack(cli_env *env, int argc, char **argv)
 
 static int queue_comment(cli_env *env, int argc, char **argv)
 {
-    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
-    const char *pos[2];
+    cli_opt opts[] = {{"comment", "TEXT", "the comment (required), as for the other events", NULL},
+                      {NULL, NULL, NULL, NULL}};
+    const char *pos[2], *text;
     int64_t id;
     int npos, rc;
 
-    rc = cli_parse(env, "queue comment ID TEXT",
-                   "Adds a signed comment to an item in any status (therapist, physicist, admin).",
+    rc = cli_parse(env, "queue comment ID --comment TEXT",
+                   "Adds a signed comment to an item in any status (therapist, physicist, admin).\n"
+                   "The text may also follow the id (queue comment ID TEXT), as before.",
                    opts, argc, argv, pos, 2, &npos);
     if (rc != 0)
         return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
-    if (npos != 2) {
-        cli_error("queue comment needs an item id and the comment text");
+    text = cli_get(opts, "comment");
+    if (npos < 1 || npos > 2 || (npos == 2 && text) || (npos == 1 && !text)) {
+        cli_error("queue comment needs an item id and --comment TEXT");
         return CLI_EXIT_USAGE;
     }
+    if (npos == 2)
+        text = pos[1];
     if (parse_item_id(&id, pos[0]) != 0)
         return CLI_EXIT_USAGE;
-    if ((rc = fxl_review_comment(env->ctx, id, pos[1])) != 0)
+    if ((rc = fxl_review_comment(env->ctx, id, text)) != 0)
         return cli_fail(env, rc);
     return print_event_done(env, id, "comment", "commented");
 }

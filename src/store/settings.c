@@ -29,7 +29,7 @@ typedef struct setting_rule {
     double lo, hi;          /* numbers: inclusive range; text: length range */
 } setting_rule;
 
-/* Ranges: skin temperature from DOMAIN.md (skin 28 to 34 degC) widened to what
+/* Ranges: skin temperature (skin 28 to 34 degC, common practice) widened to what
  * the measurements table accepts; the rules-over-history keys use the ranges
  * their reader checks (src/store/rules_hook.c, docs/rules.md); the rest are
  * local policy choices documented in docs/equipment.md. Sorted by key. */

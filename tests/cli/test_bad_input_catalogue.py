@@ -512,6 +512,28 @@ def catalogue(f):
         "patient list": [
             (M, ["patient", "list", "extra"], dict(code=1, expect="unexpected argument")),
         ],
+        "patient correct": [
+            (M, ["patient", "correct", rf.MRN, "--family", "X"], dict(code=1, expect="--reason")),
+            (M, ["patient", "correct", rf.MRN, "--reason", "typo"], dict(expect="nothing to correct")),
+            (O, ["patient", "correct", rf.MRN, "--family", LONG, "--reason", "typo"], dict(user="phil")),
+            (R, ["patient", "correct", rf.MRN, "--birth-date", "2030-01-01", "--reason", "typo"],
+             dict(user="phil", expect="2030-01-01")),
+            (R, ["patient", "correct", rf.MRN, "--family", "X", "--reason", "typo"],
+             dict(user="tina", code=4)),
+            (W, ["patient", "correct", rf.MRN, "--birth-date", "yesterday", "--reason", "typo"],
+             dict(user="phil", expect="yesterday")),
+            (H, ["patient", "correct", SQL, "--family", "X", "--reason", "typo"],
+             dict(user="phil", expect="unknown patient")),
+            (H, ["patient", "correct", rf.MRN, "--family", ESC, "--reason", "typo"],
+             dict(user="phil")),
+        ],
+        "patient history": [
+            (M, ["patient", "history"], dict(code=1)),
+            (H, ["patient", "history", SQL], dict(expect="unknown patient")),
+            (O, ["patient", "history", LONG], dict()),
+            (W, ["patient", "history", rf.MRN, "extra"], dict(code=1)),
+            (R, ["patient", "history", "P-NONE"], dict(code=2)),
+        ],
         "patient show": [
             (H, ["patient", "show", SQL], dict(expect="unknown patient")),
             (H, ["patient", "show", BAD_UTF8], dict()),

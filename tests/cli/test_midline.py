@@ -6,7 +6,7 @@ carries it.
 Method (named beside the check values, docs/expected-dose.md section 5):
 geometric mean sqrt(D_E x D_X), with the arithmetic mean (D_E + D_X)/2 beside
 it, as described in ESTRO Booklet 1 (Van Dam and Marinello, 2nd ed. 2006,
-from memory). Check values DOMAIN.md section 7: D_E 120, D_X 60 cGy give
+from memory). Check values arithmetic of the published formula: D_E 120, D_X 60 cGy give
 arithmetic 90.000 and geometric 84.853 cGy. Test data is invented."""
 import json
 import math
@@ -16,10 +16,15 @@ import os
 from fxlcli import DATA, main
 from record_fixture import MRN, RecordTestCase, dose
 
+<<<<<<< HEAD
 EXIT_TABLES = os.path.join(DATA, "corrections", "diode_6x_exit.json")
 
 GEOMETRIC_120_60 = 84.853   # sqrt(120 x 60), DOMAIN.md section 7
 ARITHMETIC_120_60 = 90.000  # (120 + 60)/2, DOMAIN.md section 7
+=======
+GEOMETRIC_120_60 = 84.853   # sqrt(120 x 60), arithmetic of the published formula
+ARITHMETIC_120_60 = 90.000  # (120 + 60)/2, arithmetic of the published formula
+>>>>>>> main
 
 
 def reading_for(target_cgy):

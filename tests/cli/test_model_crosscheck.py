@@ -85,7 +85,7 @@ class CrossCheckTest(ModelTestCase):
     def test_planning_value_10_percent_off_opens_an_item(self):
         off, off_f = mf.expected(self.bd, 200, 90, 15, 15)                 # TG-71, model_fixture.py
         ok, ok_f = mf.expected(self.bd, 150, 95, 10, 20, wedge=30, tray=True)
-        self.assertAlmostEqual(off_f["inverse_square"], 1.230523, places=6)  # DOMAIN.md section 7
+        self.assertAlmostEqual(off_f["inverse_square"], 1.230523, places=6)  # arithmetic of the published formula
         tps_off = round(off * 1.10, 1)
         tps_ok = round(ok * 1.02, 1)
         r = self.import_plan(plan("XC-1", [field("OFF", 90, 15, 15, [tps(tps_off)]),
