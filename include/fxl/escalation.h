@@ -1,11 +1,6 @@
 /* The rule over history that changes a verdict: the same field outside
-<<<<<<< HEAD
  * tolerance with the same sign of deviation on its last two evaluated
- * results escalates to the action level (DESIGN.md section 4; the
-=======
- * tolerance with the same sign of deviation on two consecutive measured
- * fractions escalates to the action level (docs/physics.md; the
->>>>>>> main
+ * results escalates to the action level (docs/physics.md; the
  * re-measure-then-escalate practice of ESTRO Booklet 5 and AAPM TG-62, from
  * memory). Pure functions, no I/O. docs/record.md. */
 #ifndef FXL_ESCALATION_H

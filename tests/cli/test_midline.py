@@ -16,15 +16,10 @@ import os
 from fxlcli import DATA, main
 from record_fixture import MRN, RecordTestCase, dose
 
-<<<<<<< HEAD
 EXIT_TABLES = os.path.join(DATA, "corrections", "diode_6x_exit.json")
 
-GEOMETRIC_120_60 = 84.853   # sqrt(120 x 60), DOMAIN.md section 7
-ARITHMETIC_120_60 = 90.000  # (120 + 60)/2, DOMAIN.md section 7
-=======
 GEOMETRIC_120_60 = 84.853   # sqrt(120 x 60), arithmetic of the published formula
 ARITHMETIC_120_60 = 90.000  # (120 + 60)/2, arithmetic of the published formula
->>>>>>> main
 
 
 def reading_for(target_cgy):
