@@ -8,6 +8,7 @@
 #include <sys/stat.h>
 #include <time.h>
 
+#include "fxl/auth.h"
 #include "store/audit.h"
 #include "store/ctx.h"
 #include "store/migrations.h"
@@ -195,6 +196,7 @@ void fxl_close(fxl_ctx *ctx)
 {
     if (!ctx)
         return;
+    fxl_sign_end(ctx);
     sqlite3_close_v2(ctx->db);
     free(ctx);
 }

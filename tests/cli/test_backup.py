@@ -21,6 +21,10 @@ class BackupTest(ReviewCase):
     def test_backup_copy_verifies(self):
         self.record("P-1", "2026-11-02T08:00:00Z", ("AP", 6.0), ("PA", 0.0))
         copy = self.fx.path("copy.db")
+        # Logged in before the copy: their logins are audit rows, and the copy
+        # holds their own passwords, not the one-time ones (fxlcli.py).
+        self.fx.ensure_session("phys")
+        self.fx.ensure_session("aud")
         audit_before = self.count(self.fx.db, "audit_log")
         out = self.fx.json("backup", copy, user="phys")
         self.assertEqual(out["file"], copy)
@@ -79,6 +83,8 @@ class BackupTest(ReviewCase):
                 if r.returncode not in (0, 10, 11, 12):
                     errors.append(r.stderr)
 
+        self.fx.ensure_session("phys", "2026-12-01T09:00:00Z")
+        self.fx.ensure_session("aud")
         t = threading.Thread(target=writer)
         t.start()
         copies = []
