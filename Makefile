@@ -2,6 +2,7 @@
 #   make demo   build fxledger and run the invented demo scenario into demo/out/
 #   make test   build fxledger and run every test (ctest)
 #   make bench  build fxledger and run the benchmark on synthetic databases (docs/performance.md)
+#   make install  build, then install fxledger into PREFIX (default /usr/local)
 # Both first install the Debian packages the project needs when they are missing.
 # Robustness (docs/robustness.md):
 #   make sanitize   AddressSanitizer + UBSan build in build-asan, every test there
@@ -10,13 +11,15 @@
 # FXL_LONG=1 makes the crash and concurrency tests long (hundreds of kills).
 
 BUILD ?= build
+# make install: where fxledger goes (bin/ under it); DESTDIR stages a package.
+PREFIX ?= /usr/local
 CMAKE_FLAGS ?= -DCMAKE_BUILD_TYPE=RelWithDebInfo
 ASAN_BUILD ?= build-asan
 FUZZ_BUILD ?= build-fuzz
 FUZZ_SECONDS ?= 60
 FUZZ_PARSERS ?= plan_json readings_json corrections_json beam_json dicom_json
 
-.PHONY: all deps build test demo clean sanitize valgrind fuzz
+.PHONY: all deps build test demo clean sanitize valgrind fuzz install uninstall
 
 all: build
 
@@ -33,8 +36,18 @@ build: deps
 test: build
 	cd $(BUILD) && ctest --output-on-failure -j2
 
+# Installs build/fxledger as $(PREFIX)/bin/fxledger and the documentation
+# under $(PREFIX)/share/doc/fxledger; DESTDIR=... stages the same tree.
+install: build
+	cmake --install $(BUILD) --prefix $(PREFIX)
+
+# Removes what 'make install' put in place (the list CMake wrote).
+uninstall:
+	@test -f $(BUILD)/install_manifest.txt || { echo "nothing installed from $(BUILD)" >&2; exit 1; }
+	xargs -d '\n' rm -f -- < $(BUILD)/install_manifest.txt
+
 demo: build
-	/usr/bin/python3 demo/run_demo.py $(BUILD)/fxledger
+	/usr/bin/python3 demo/run_demo.py $(BUILD)/fxledger-testclock
 
 # Sanitizer reports go to files (a report from a command that a test expects
 # to fail would otherwise pass unseen); any report fails the target.
@@ -61,4 +74,4 @@ clean:
 # same) and prints each figure beside its target; exits 1 if one is missed.
 .PHONY: bench
 bench: build
-	/usr/bin/python3 tests/bench/run_bench.py --fxledger $(BUILD)/fxledger
+	/usr/bin/python3 tests/bench/run_bench.py --fxledger $(BUILD)/fxledger-testclock

@@ -14,7 +14,11 @@ the planning-system values of the breast plan at import, and gives the
 expected doses of a fifth patient whose plan comes from a DICOM RT Plan
 (DICOM JSON Model, made for the demo by make_demo_rtplan.py).
 
-Usage: run_demo.py PATH/TO/fxledger
+Usage: run_demo.py PATH/TO/fxledger-testclock
+
+The demo plays two weeks in minutes, so it needs the test build of the
+program (fxledger-testclock), whose clock FXLEDGER_NOW fixes; the program
+users run (fxledger) ignores FXLEDGER_NOW.
 """
 import calendar
 import json
@@ -31,7 +35,7 @@ DATA = os.path.join(HERE, "data")
 OUT = os.path.join(HERE, "out")
 DB = os.path.join(OUT, "demo.db")
 
-BIN = os.path.abspath(sys.argv[1] if len(sys.argv) > 1 else os.path.join(HERE, "..", "build", "fxledger"))
+BIN = os.path.abspath(sys.argv[1] if len(sys.argv) > 1 else os.path.join(HERE, "..", "build", "fxledger-testclock"))
 
 DAYS = ["2026-11-%02d" % d for d in (2, 3, 4, 5, 6, 9, 10, 11, 12, 13)]  # two working weeks
 CAL_TEMP_C = 21.0
@@ -410,9 +414,14 @@ def reports():
         user="qaudit", now=gen, show=True)
     run("report", "month", "2026-11", "--out", month_pdf, "--generated-at", gen,
         user="qaudit", now=gen, show=True)
+    stats_pdf = os.path.join(OUT, "stats-2026-11.pdf")
+    run("stats", "--month", "2026-11", "--by", "site,technique,energy,point,detector",
+        "--out", stats_pdf, "--generated-at", gen, user="mkeller", now=gen, show=True)
+    run("stats", "--month", "2026-11", "--by", "site", user="mkeller", now=gen, show=True)
     run("verify", user="qaudit", now=gen, show=True)
     print("demo database: %s" % os.path.relpath(DB))
-    print("reports:       %s, %s" % (os.path.relpath(patient_pdf), os.path.relpath(month_pdf)))
+    print("reports:       %s, %s, %s" % (os.path.relpath(patient_pdf), os.path.relpath(month_pdf),
+                                     os.path.relpath(stats_pdf)))
     print()
     print("All people, patients, plans, detectors and readings in this demo are invented.")
 

@@ -23,4 +23,40 @@ typedef struct fxl_verify_report {
  * FXL_ECONFLICT with a message naming the first failing row or check. */
 int fxl_audit_verify(fxl_ctx *ctx, fxl_verify_report *out);
 
+/* ---- reading the trail (fxledger audit) ------------------------------- */
+
+/* Which rows to read; NULL / 0 members do not filter. */
+typedef struct fxl_audit_filter {
+    const char *user;        /* login recorded in the row */
+    const char *action;      /* e.g. "record", "close", "set" */
+    const char *entity;      /* table name, e.g. "measurements" */
+    int64_t entity_id;       /* with or without entity */
+    const char *from;        /* UTC [from, to) of the row's time */
+    const char *to;
+    int64_t limit;           /* > 0: only the last `limit` rows that match */
+} fxl_audit_filter;
+
+#define FXL_AUDIT_FILTER_INIT {NULL, NULL, NULL, 0, NULL, NULL, 0}
+
+/* One audit row; strings borrowed for the duration of the callback. */
+typedef struct fxl_audit_row {
+    int64_t id;
+    const char *at;          /* stored UTC time */
+    const char *user;        /* login */
+    const char *user_name;   /* the user's full name, "" if no such user */
+    const char *action;
+    const char *entity;
+    int64_t entity_id;       /* 0 when the row names none */
+    const char *content;     /* the canonical JSON content that was hashed */
+    const char *prev_hash;
+    const char *hash;
+} fxl_audit_row;
+
+typedef int (*fxl_audit_row_cb)(void *arg, const fxl_audit_row *r);
+
+/* The rows matching f in id order (the order of the chain). */
+int fxl_audit_list(fxl_ctx *ctx, const fxl_audit_filter *f, fxl_audit_row_cb cb, void *arg);
+/* The row with this id; FXL_ENOTFOUND naming it when there is none. */
+int fxl_audit_get(fxl_ctx *ctx, int64_t id, fxl_audit_row_cb cb, void *arg);
+
 #endif

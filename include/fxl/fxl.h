@@ -90,9 +90,17 @@ int fxl_commit(fxl_ctx *ctx);
 void fxl_rollback(fxl_ctx *ctx);  /* safe to call when no transaction is open */
 
 /* The clock: current UTC time as 'YYYY-MM-DDTHH:MM:SSZ' into buf (size >=
- * FXL_TIME_LEN). The environment variable FXLEDGER_NOW, when set to such a
- * timestamp, fixes the clock (tests and the demo). */
+ * FXL_TIME_LEN). Only in the test build (fxledger-testclock, the unit tests)
+ * does the environment variable FXLEDGER_NOW, when set to such a timestamp,
+ * fix the clock; the program users run ignores it. */
 void fxl_now(const fxl_ctx *ctx, char *buf);
+
+/* Provided by the executable, not by the library (src/clock/clock.c, built
+ * once as the system clock and once with FXL_TEST_CLOCK): writes the fixed
+ * test time into buf and returns 1, or returns 0 to use the system clock.
+ * fxl_clock_is_test() is 1 only in a test build. */
+int fxl_clock_fixed(char buf[FXL_TIME_LEN]);
+int fxl_clock_is_test(void);
 
 /* Validates a date or time typed by a person or found in a file and writes
  * it in the stored form 'YYYY-MM-DDTHH:MM:SSZ'. Accepts 'YYYY-MM-DD' (as

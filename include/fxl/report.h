@@ -13,7 +13,7 @@
 typedef struct fxl_report_options {
     /* Generation time printed on every page and stored as the PDF creation
      * date, in the stored UTC form 'YYYY-MM-DDTHH:MM:SSZ'. NULL: fxl_now()
-     * (which honours FXLEDGER_NOW). The same database and the same time give
+     * (which honours FXLEDGER_NOW in the test build only). The same database and the same time give
      * a byte-identical file. */
     const char *generated_at;
     /* Directory holding DejaVuSans.ttf and DejaVuSans-Bold.ttf; NULL: the
@@ -49,6 +49,32 @@ int fxl_report_patient(fxl_ctx *ctx, fxl_report_result *out, const char *path, c
  * of the month or the generation time, whichever is earlier. A month without
  * measurements gets a report that says so. out may be NULL. */
 int fxl_report_month(fxl_ctx *ctx, fxl_report_result *out, const char *path, const char *month,
+                     const fxl_report_options *opt);
+
+/* A period of the periodic review, in the department's time zone. */
+typedef struct fxl_report_period {
+    char from[FXL_TIME_LEN];   /* UTC bounds [from, to) of treatment times */
+    char to[FXL_TIME_LEN];
+    char first_day[11];        /* local calendar days covered, inclusive */
+    char last_day[11];
+    char timezone[64];
+    char label[40];            /* "2026-11" or "2026-10-01 to 2026-12-31" */
+} fxl_report_period;
+
+/* Resolves either a month 'YYYY-MM' or local days first_day..last_day
+ * ('YYYY-MM-DD', inclusive) in the department's time zone (setting
+ * 'timezone', UTC when unset) to UTC bounds. Exactly one of month and the
+ * pair must be given; FXL_EINVAL with a message otherwise. */
+int fxl_report_period_resolve(fxl_ctx *ctx, fxl_report_period *out, const char *month,
+                              const char *first_day, const char *last_day);
+
+/* Writes the statistics of a period (fxl/period_stats.h, grouped by `by`)
+ * to `path`: per group n, mean, SD, median, 5th and 95th percentiles, shares
+ * outside the levels, the levels in force beside a suggestion from the
+ * spread, and an individuals and moving-range chart with its limits. A4
+ * landscape. A period without results gets a report that says so. */
+int fxl_report_stats(fxl_ctx *ctx, fxl_report_result *out, const char *path,
+                     const fxl_report_period *period, unsigned by,
                      const fxl_report_options *opt);
 
 #endif

@@ -111,6 +111,34 @@ typedef struct fxl_required_result {
  * fraction not among the slots, a timestamp not in stored form). */
 int fxl_rule_required(fxl_required_result *out, const fxl_required_input *in);
 
+/* What the policy asks of the fraction about to be logged (the worklist's
+ * "due today"), the forward-looking twin of fxl_rule_required. */
+typedef enum {
+    FXL_RULE_DUE_NOT = 0,
+    FXL_RULE_DUE_FIRST,             /* the plan's first fraction, or not measured there */
+    FXL_RULE_DUE_WEEKLY,            /* the interval since the last measurement is reached */
+    FXL_RULE_DUE_EVERY              /* every fraction */
+} fxl_rule_due_kind;
+
+typedef struct fxl_rule_due_result {
+    fxl_rule_due_kind kind;
+    int catch_up;                   /* first: the first fraction went unmeasured */
+    char due_date[11];              /* weekly: 'YYYY-MM-DD' the measurement is due by
+                                       (the key of the weekly-gap item), else "" */
+} fxl_rule_due_result;
+
+/* Decides whether the field is due at fraction in->current_number treated at
+ * `at` (stored form). in->slots are the plan's logged fractions; a slot
+ * numbered current_number, if any, is ignored (it is the fraction being
+ * logged). first / weekly: due at first_number, and at any later fraction
+ * while fraction first_number has no measurement (catch up); weekly also
+ * when the calendar days (UTC dates, as fxl_rule_required counts them) from
+ * the latest measured fraction before the current one (or the plan's
+ * earliest logged fraction when none was measured) to `at` are interval_days
+ * or more; every: always; none: never. FXL_EINVAL for bad input as
+ * fxl_rule_required (the current fraction need not be among the slots). */
+int fxl_rule_due(fxl_rule_due_result *out, const fxl_required_input *in, const char *at);
+
 /* ---- calibration expiry ------------------------------------------------- */
 
 typedef enum {

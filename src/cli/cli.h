@@ -120,5 +120,9 @@ int cmd_backup(cli_env *env, int argc, char **argv);
 int cmd_report(cli_env *env, int argc, char **argv);
 int cmd_login(cli_env *env, int argc, char **argv);
 int cmd_logout(cli_env *env, int argc, char **argv);
+int cmd_today(cli_env *env, int argc, char **argv);
+int cmd_stats(cli_env *env, int argc, char **argv);
+int cmd_export(cli_env *env, int argc, char **argv);
+int cmd_audit(cli_env *env, int argc, char **argv);
 
 #endif

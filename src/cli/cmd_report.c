@@ -9,7 +9,7 @@ static const char *const generated_help =
     "fix the generation time printed on every page (UTC, YYYY-MM-DD or "
     "YYYY-MM-DDTHH:MM[:SS]Z); the same database and time give a byte-identical file";
 
-/* --generated-at, else FXLEDGER_NOW through fxl_now(), else the clock. */
+/* --generated-at, else fxl_now() (the clock; FXLEDGER_NOW in the test build). */
 static int generation_time(char out[FXL_TIME_LEN], const char *given)
 {
     if (!given)

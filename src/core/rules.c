@@ -151,6 +151,64 @@ int fxl_rule_required(fxl_required_result *out, const fxl_required_input *in)
     return 0;
 }
 
+int fxl_rule_due(fxl_rule_due_result *out, const fxl_required_input *in, const char *at)
+{
+    const fxl_fraction_slot *first = NULL, *anchor = NULL;
+    long at_day, day;
+    size_t i;
+
+    memset(out, 0, sizeof *out);
+    if (!in || (unsigned)in->policy > FXL_POLICY_EVERY || !at)
+        return FXL_EINVAL;
+    if (in->first_number < 1 || in->first_number > FXL_FRACTION_NUMBER_MAX)
+        return FXL_EINVAL;
+    if (in->policy == FXL_POLICY_WEEKLY && in->interval_days < 1)
+        return FXL_EINVAL;
+    if (in->n_slots > 0 && !in->slots)
+        return FXL_EINVAL;
+    if (day_number(&at_day, at) != 0)
+        return FXL_EINVAL;
+    for (i = 0; i < in->n_slots; i++)
+        if (day_number(&day, in->slots[i].treated_at) != 0)
+            return FXL_EINVAL;
+    if (in->policy == FXL_POLICY_NONE)
+        return 0;
+    if (in->policy == FXL_POLICY_EVERY) {
+        out->kind = FXL_RULE_DUE_EVERY;
+        return 0;
+    }
+    if (in->current_number <= in->first_number) {
+        out->kind = FXL_RULE_DUE_FIRST;
+        return 0;
+    }
+    for (i = 0; i < in->n_slots; i++)
+        if (in->slots[i].number == in->first_number)
+            first = &in->slots[i];
+    if (!first || !first->measured) {
+        out->kind = FXL_RULE_DUE_FIRST;
+        out->catch_up = 1;
+        return 0;
+    }
+    if (in->policy == FXL_POLICY_FIRST)
+        return 0;
+    for (i = 0; i < in->n_slots; i++) {
+        const fxl_fraction_slot *s = &in->slots[i];
+        if (s->measured && s->number < in->current_number && (!anchor || s->number > anchor->number))
+            anchor = s;
+    }
+    if (!anchor)
+        return 0;  /* unreachable: the first fraction is measured */
+    day_number(&day, anchor->treated_at);
+    if (at_day - day >= in->interval_days) {
+        char due[FXL_TIME_LEN];
+        out->kind = FXL_RULE_DUE_WEEKLY;
+        if (fxl_time_add_days(due, anchor->treated_at, in->interval_days) != 0)
+            return FXL_EINVAL;
+        date_part(out->due_date, due);
+    }
+    return 0;
+}
+
 /* ---- calibration expiry ----------------------------------------------------- */
 
 int fxl_rule_calibration(fxl_calib_due_result *out, const char *valid_until, const char *now,

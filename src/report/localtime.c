@@ -93,17 +93,33 @@ void rpt_local(char *out, size_t n, const char *stored, const char *fmt)
         out[0] = '\0';
 }
 
-static int local_midnight(time_t *out, int year, int month)
+static int local_midnight_day(time_t *out, int year, int month, int day)
 {
     struct tm tm;
 
     memset(&tm, 0, sizeof tm);
     tm.tm_year = year - 1900;
     tm.tm_mon = month - 1;
-    tm.tm_mday = 1;
+    tm.tm_mday = day;   /* mktime carries day 32 into the next month */
     tm.tm_isdst = -1;  /* let the zone decide summer or winter time */
     *out = mktime(&tm);
     return *out == (time_t)-1 ? FXL_EINVAL : 0;
+}
+
+static int local_midnight(time_t *out, int year, int month)
+{
+    return local_midnight_day(out, year, month, 1);
+}
+
+int rpt_day_start(fxl_ctx *ctx, char out[FXL_TIME_LEN], int year, int month, int day)
+{
+    time_t t;
+
+    if (local_midnight_day(&t, year, month, day) != 0)
+        return fxl_fail(ctx, FXL_EINVAL, "cannot place day '%04d-%02d-%02d' in the local time zone",
+                        year, month, day);
+    rpt_stored_from_epoch(out, t);
+    return 0;
 }
 
 int rpt_month_bounds(fxl_ctx *ctx, char from[FXL_TIME_LEN], char to[FXL_TIME_LEN], int year,

@@ -37,6 +37,10 @@ void rpt_local(char *out, size_t n, const char *stored, const char *fmt);
 int rpt_month_bounds(fxl_ctx *ctx, char from[FXL_TIME_LEN], char to[FXL_TIME_LEN], int year,
                      int month);
 
+/* UTC time of the local midnight that starts day `day` of the month (day
+ * past the month's end carries into the next one). */
+int rpt_day_start(fxl_ctx *ctx, char out[FXL_TIME_LEN], int year, int month, int day);
+
 /* English name of a month, 1..12. */
 const char *rpt_month_name(int month);
 

@@ -279,7 +279,7 @@ int fxl_require_role(fxl_ctx *ctx, unsigned roles_mask, const char *action)
     int i;
 
     if (!ctx->user_id)
-        return fxl_fail(ctx, FXL_EPERM, "%s needs a user (give --user or set FXLEDGER_USER)", action);
+        return fxl_fail(ctx, FXL_EPERM, "%s needs a logged-in user (fxledger login)", action);
     if (ctx->user_role & roles_mask)
         return 0;
     for (i = 0; i < 4; i++) {
@@ -316,15 +316,12 @@ void fxl_rollback(fxl_ctx *ctx)
 
 void fxl_now(const fxl_ctx *ctx, char *buf)
 {
-    const char *fixed = getenv("FXLEDGER_NOW");
     time_t t;
     struct tm tm;
 
     (void)ctx;
-    /* The fixed clock is for tests; only a well-formed, real UTC time is
-     * taken, anything else is never stamped on the record (docs/hazards.md). */
-    if (fixed && strlen(fixed) == FXL_TIME_LEN - 1 && fxl_time_normalize(buf, fixed, 0) == 0 &&
-        strcmp(buf, fixed) == 0)
+    /* A fixed clock exists only in the test build (src/clock/clock.c). */
+    if (fxl_clock_fixed(buf))
         return;
     t = time(NULL);
     gmtime_r(&t, &tm);

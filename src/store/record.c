@@ -53,7 +53,7 @@ static const char *unit_or(const char *unit)
 }
 
 /* The checks on the numbers of one reading, shared by record and amend. */
-static int check_numbers(fxl_ctx *ctx, const char *field, double reading, double background,
+int rec_check_numbers(fxl_ctx *ctx, const char *field, double reading, double background,
                          double temp_c, const char *unit)
 {
     if (!isfinite(reading))
@@ -75,7 +75,7 @@ static int check_numbers(fxl_ctx *ctx, const char *field, double reading, double
     return 0;
 }
 
-static int check_treated_at(fxl_ctx *ctx, char at[FXL_TIME_LEN], const char *given, const char *now)
+int rec_check_treated_at(fxl_ctx *ctx, char at[FXL_TIME_LEN], const char *given, const char *now)
 {
     if (!given) {
         memcpy(at, now, FXL_TIME_LEN);
@@ -119,7 +119,7 @@ cleanup:
  * fraction numbers in the order of their treatment times. Run before the
  * transaction and again inside it, where a plan imported meanwhile is seen
  * (docs/hazards.md). */
-static int check_plan_and_time(fxl_ctx *ctx, const rec_plan *plan, int number, const char *at)
+int rec_check_plan_and_time(fxl_ctx *ctx, const rec_plan *plan, int number, const char *at)
 {
     fxl_stmt s = FXL_STMT_INIT;
     int rc;
@@ -201,7 +201,7 @@ static cJSON *measurement_audit(const rec_inputs *in, int64_t fraction_id)
     return o;
 }
 
-static int insert_measurement(fxl_ctx *ctx, rec_inputs *in, int64_t fraction_id, const char *now)
+int rec_insert_measurement(fxl_ctx *ctx, rec_inputs *in, int64_t fraction_id, const char *now)
 {
     fxl_stmt s = FXL_STMT_INIT;
     fxl_measurement_result *m = &in->m;
@@ -296,7 +296,7 @@ static int severity_of(fxl_verdict v)
     return 3;  /* an unknown verdict is never a pass */
 }
 
-static int open_review_item(fxl_ctx *ctx, rec_inputs *in, const rec_plan *plan, int number,
+int rec_open_review_item(fxl_ctx *ctx, rec_inputs *in, const rec_plan *plan, int number,
                             const char *now)
 {
     fxl_stmt s = FXL_STMT_INIT;
@@ -356,7 +356,7 @@ cleanup:
     return rc;
 }
 
-static void fill_header(fxl_record_result *out, const rec_plan *plan, int64_t fraction_id,
+void rec_fill_header(fxl_record_result *out, const rec_plan *plan, int64_t fraction_id,
                         int number, const char *at, const char *now, const char *login)
 {
     out->fraction_id = fraction_id;
@@ -394,7 +394,7 @@ static int validate_entries(fxl_ctx *ctx, rec_entry *ent, const rec_plan *plan,
                                 e->field, ent[i].point);
         if ((rc = rec_find_detector(ctx, &ent[i].detector_id, ent[i].unit, e->detector)) != 0)
             return rc;
-        if ((rc = check_numbers(ctx, e->field, e->reading, e->background, e->temp_c, ent[i].unit)) != 0)
+        if ((rc = rec_check_numbers(ctx, e->field, e->reading, e->background, e->temp_c, ent[i].unit)) != 0)
             return rc;
         ent[i].temp_entered = !isnan(e->temp_c);
         ent[i].temp_c = ent[i].temp_entered ? e->temp_c : settings->skin_temp_c;
@@ -412,7 +412,7 @@ static int write_fraction(fxl_ctx *ctx, int64_t *fraction_id, rec_inputs *in, si
 
     if ((rc = fxl_begin(ctx)) != 0)
         return rc;
-    if ((rc = check_plan_and_time(ctx, plan, number, at)) != 0)
+    if ((rc = rec_check_plan_and_time(ctx, plan, number, at)) != 0)
         goto cleanup;
     if ((rc = fxl_stmt_prepare(&s, ctx,
                                "INSERT INTO fractions (plan_id, number, treated_at, user_id, created_at) "
@@ -439,8 +439,8 @@ static int write_fraction(fxl_ctx *ctx, int64_t *fraction_id, rec_inputs *in, si
     if ((rc = fxl_audit_append(ctx, "record", "fractions", *fraction_id, audit)) != 0)
         goto cleanup;
     for (i = 0; i < n; i++) {
-        if ((rc = insert_measurement(ctx, &in[i], *fraction_id, now)) != 0 ||
-            (rc = open_review_item(ctx, &in[i], plan, number, now)) != 0)
+        if ((rc = rec_insert_measurement(ctx, &in[i], *fraction_id, now)) != 0 ||
+            (rc = rec_open_review_item(ctx, &in[i], plan, number, now)) != 0)
             goto cleanup;
     }
     if ((rc = fxl_rules_after_record(ctx, *fraction_id)) != 0)
@@ -479,7 +479,7 @@ int fxl_record_fraction(fxl_ctx *ctx, fxl_record_result *out, const fxl_record_r
         return fxl_fail(ctx, FXL_EINVAL, "%zu readings given: at most %d per fraction",
                         req->n_readings, FXL_RECORD_READINGS_MAX);
     fxl_now(ctx, now);
-    if ((rc = check_treated_at(ctx, at, req->treated_at, now)) != 0 ||
+    if ((rc = rec_check_treated_at(ctx, at, req->treated_at, now)) != 0 ||
         (rc = rec_load_plan(ctx, &plan, req->mrn, req->plan)) != 0)
         return rc;
 
@@ -496,7 +496,7 @@ int fxl_record_fraction(fxl_ctx *ctx, fxl_record_result *out, const fxl_record_r
                         number, plan.label, plan.fractions);
     }
     if ((rc = check_fraction_free(ctx, &plan, number)) != 0 ||
-        (rc = check_plan_and_time(ctx, &plan, number, at)) != 0 ||
+        (rc = rec_check_plan_and_time(ctx, &plan, number, at)) != 0 ||
         (rc = rec_load_settings(ctx, &settings)) != 0)
         return rc;
 
@@ -521,7 +521,7 @@ int fxl_record_fraction(fxl_ctx *ctx, fxl_record_result *out, const fxl_record_r
         goto cleanup;
 
     out->items = calloc(req->n_readings, sizeof *out->items);
-    fill_header(out, &plan, fraction_id, number, at, now, fxl_user_login(ctx));
+    rec_fill_header(out, &plan, fraction_id, number, at, now, fxl_user_login(ctx));
     if (out->items) {
         out->n = req->n_readings;
         for (i = 0; i < req->n_readings; i++)
@@ -634,7 +634,7 @@ int fxl_record_amend(fxl_ctx *ctx, fxl_record_result *out, const fxl_amend_reque
         return rc;
     loaded = 1;
     snprintf(field, sizeof field, "%s", in.m.field);
-    if ((rc = check_numbers(ctx, field, req->reading, req->background, req->temp_c,
+    if ((rc = rec_check_numbers(ctx, field, req->reading, req->background, req->temp_c,
                             in.m.reading_unit)) != 0)
         goto cleanup;
     temp_entered = isnan(req->temp_c) ? orig.temp_entered : 1;
@@ -649,8 +649,8 @@ int fxl_record_amend(fxl_ctx *ctx, fxl_record_result *out, const fxl_amend_reque
     /* The rules over history run again for the fraction: they link the
      * superseded row's queue items to the new row and open items only for
      * hits not yet open (store/rules_hook.h). */
-    if ((rc = insert_measurement(ctx, &in, orig.fraction_id, now)) != 0 ||
-        (rc = open_review_item(ctx, &in, &plan, orig.number, now)) != 0 ||
+    if ((rc = rec_insert_measurement(ctx, &in, orig.fraction_id, now)) != 0 ||
+        (rc = rec_open_review_item(ctx, &in, &plan, orig.number, now)) != 0 ||
         (rc = fxl_rules_after_record(ctx, orig.fraction_id)) != 0) {
         if (rc == FXL_ECONFLICT)
             rc = fxl_fail(ctx, FXL_ECONFLICT, "measurement #%lld was amended meanwhile; nothing written",
@@ -660,7 +660,7 @@ int fxl_record_amend(fxl_ctx *ctx, fxl_record_result *out, const fxl_amend_reque
     }
     if ((rc = fxl_commit(ctx)) != 0)
         goto cleanup;
-    fill_header(out, &plan, orig.fraction_id, orig.number, orig.treated_at, now, fxl_user_login(ctx));
+    rec_fill_header(out, &plan, orig.fraction_id, orig.number, orig.treated_at, now, fxl_user_login(ctx));
     out->items = calloc(1, sizeof *out->items);
     if (out->items) {
         out->items[0] = in.m;

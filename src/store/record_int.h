@@ -80,4 +80,22 @@ cJSON *rec_reasons_json(const fxl_reasons *r);
 /* Parses a stored reasons array into *r (unknown content is kept as text). */
 void rec_reasons_parse(fxl_reasons *r, const char *json);
 
+
+/* ---- shared by record.c and fraction.c (implemented in record.c) ---------- */
+
+/* The checks on the numbers of one reading (reading > 0, background, temperature). */
+int rec_check_numbers(fxl_ctx *ctx, const char *field, double reading, double background,
+                      double temp_c, const char *unit);
+/* A given treatment time normalised to the stored form, not after now; NULL = now. */
+int rec_check_treated_at(fxl_ctx *ctx, char at[FXL_TIME_LEN], const char *given, const char *now);
+/* No fraction on a replaced plan; fraction numbers in the order of their times. */
+int rec_check_plan_and_time(fxl_ctx *ctx, const rec_plan *plan, int number, const char *at);
+/* Inside the caller's transaction: one measurement row with its audit row. */
+int rec_insert_measurement(fxl_ctx *ctx, rec_inputs *in, int64_t fraction_id, const char *now);
+/* Inside the caller's transaction: the review item of a result not within tolerance. */
+int rec_open_review_item(fxl_ctx *ctx, rec_inputs *in, const rec_plan *plan, int number,
+                         const char *now);
+void rec_fill_header(fxl_record_result *out, const rec_plan *plan, int64_t fraction_id,
+                     int number, const char *at, const char *now, const char *login);
+
 #endif

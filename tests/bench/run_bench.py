@@ -2,7 +2,7 @@
 """fxledger's performance benchmark (docs/performance.md). Run on demand:
 
     make bench                    (builds, then runs this script)
-    tests/bench/run_bench.py --fxledger build/fxledger [--workdir DIR]
+    tests/bench/run_bench.py --fxledger build/fxledger-testclock [--workdir DIR]
 
 Builds (or reuses) two synthetic databases with tests/bench/gen_department.py
 - INVENTED data only - a large one (20 years of a busy department) and a

@@ -1,6 +1,9 @@
-"""Shared harness for the command-line tests: runs build/fxledger against a
-temporary database with a fixed clock, and checks that failed commands leave
-the database file byte-for-byte unchanged. Test data here is invented.
+"""Shared harness for the command-line tests: runs the test build of fxledger
+(build/fxledger-testclock, the same sources with a clock that FXLEDGER_NOW
+fixes) against a temporary database with a fixed clock, and checks that
+failed commands leave the database file byte-for-byte unchanged. SHIPPED_BIN
+is the program users run, which ignores FXLEDGER_NOW; only tests about that
+binary itself use it. Test data here is invented.
 
 Identity: every command needs a logged-in user. The harness gives each user
 an invented password, logs each user in once per scenario (its own
@@ -22,6 +25,8 @@ import time
 import unittest
 
 BIN = os.environ.get("FXLEDGER_BIN") or os.path.join(
+    os.path.dirname(__file__), "..", "..", "build", "fxledger-testclock")
+SHIPPED_BIN = os.environ.get("FXLEDGER_SHIPPED_BIN") or os.path.join(
     os.path.dirname(__file__), "..", "..", "build", "fxledger")
 SRC = os.environ.get("FXLEDGER_SRC") or os.path.join(os.path.dirname(__file__), "..", "..")
 DATA = os.path.join(SRC, "tests", "data")
@@ -52,7 +57,8 @@ def epoch(iso):
 class Fxl:
     """One temporary database and the ways to drive fxledger on it."""
 
-    def __init__(self, now="2026-11-02T09:00:00Z", user="admin"):
+    def __init__(self, now="2026-11-02T09:00:00Z", user="admin", bin=None):
+        self.bin = bin or BIN   # SHIPPED_BIN only for tests about the program users run
         self.dir = tempfile.mkdtemp(prefix="fxltest-")
         self.db = os.path.join(self.dir, "test.db")
         self.now = now
@@ -98,7 +104,7 @@ class Fxl:
 
     def argv(self, *args, user=None, password_fd=None):
         """The command line of a call as `user` (global options first)."""
-        a = [BIN, "--db", self.db, "--user", user or self.user]
+        a = [self.bin, "--db", self.db, "--user", user or self.user]
         if password_fd is not None:
             a += ["--password-fd", str(password_fd)]
         return a + [str(x) for x in args]
@@ -236,7 +242,7 @@ class Fxl:
     _templates = {}
 
     def init(self, department="Invented Test Department"):
-        key = (department, self.now)
+        key = (department, self.now, self.bin)
         t = Fxl._templates.get(key)
         if t is None or not os.path.exists(t["db"]):
             self.ok("init", "--department", department, "--admin", "admin",

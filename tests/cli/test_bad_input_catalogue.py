@@ -41,7 +41,7 @@ DICOM_PLAN = os.path.join(DATA, "dicom", "three_field.json")   # Patient ID TEST
 
 # Commands with their sub-commands, as 'fxledger --help' lists them today.
 # test_catalogue_covers_every_command checks this against the program.
-FAMILIES_WITHOUT_SUB = ("init", "record", "history", "amend", "backup", "verify")
+FAMILIES_WITHOUT_SUB = ("init", "record", "history", "amend", "backup", "verify", "today")
 
 
 # The department's Fxl: its users' sessions and passwords (fxlcli.py).
@@ -290,6 +290,10 @@ class Department:
         d["00100020"]["Value"] = [SQL]
         put("dcm_patient_sql.json", json.dumps(d))
         put("not_json.bin", bytes(range(256)) * 64)
+        put("dl_no_header.csv", "08:30,P-1,plan\n")
+        put("dl_many.csv", "time,mrn\n" + "".join("08:%02d,P-%d\n" % (i % 60, i) for i in range(501)))
+        put("dl_bad_time.csv", "time,mrn\n25:00,P-1\n")
+        put("dl_escape.csv", "time,mrn\n08:30,Bad\x1b[2JName\n")
         return files
 
     def restore(self):
@@ -763,6 +767,58 @@ def catalogue(f):
             (R, ["report", "month", "2026-13", "--out", "@m2.pdf"], dict(expect="2026-13", new_file="m2.pdf")),
             (M, ["report", "month", "2026-11"], dict(code=1, expect="--out")),
             (H, ["report", "month", SQL, "--out", "@m3.pdf"], dict(new_file="m3.pdf")),
+        ],
+        "today": [
+            (M, ["today", "--at"], dict(code=1)),
+            (M, ["today", "--day-list", f["dl_no_header.csv"]], dict(expect="header")),
+            (O, ["today", "--day-list", f["dl_many.csv"]], dict(expect="more than 500")),
+            (R, ["today", "--at", "2026-13-01"], dict(expect="2026-13-01")),
+            (R, ["today", "--day-list", f["dl_bad_time.csv"]], dict(expect="25:00")),
+            (W, ["today", "--at", "noon"], dict(expect="noon")),
+            (W, ["today", "--day-list", f["not_json.bin"]], dict()),
+            (W, ["today", "--day-list", "@no-such-day-list.csv"], dict(code=2, expect="cannot open")),
+            (H, ["today", "--day-list", f["dl_escape.csv"]], dict(expect="printable")),
+            (H, ["today", "--at", SQL], dict(expect="not valid")),
+        ],
+        "stats": [
+            (M, ["stats"], dict(code=1, expect="period is required")),
+            (M, ["stats", "--month"], dict(code=1)),
+            (W, ["stats", "--month", "November"], dict(expect="November")),
+            (R, ["stats", "--month", "2026-13"], dict(expect="2026-13")),
+            (R, ["stats", "--from", "2026-11-05", "--to", "2026-11-01"], dict(expect="must not be before")),
+            (W, ["stats", "--from", "2026-02-30", "--to", "2026-03-01"], dict(expect="2026-02-30")),
+            (W, ["stats", "--month", "2026-11", "--from", "2026-11-01"], dict(expect="not both")),
+            (H, ["stats", "--month", "2026-11", "--by", SQL], dict(expect="grouping key")),
+            (O, ["stats", "--month", "2026-11", "--by", LONG], dict(expect="grouping key")),
+            (H, ["stats", "--month", "2026-11", "--out", "@s1" + ESC], dict(expect="control character")),
+            (R, ["stats", "--month", "2026-11", "--out", "@nodir/s2.pdf"], dict(new_file="nodir/s2.pdf")),
+        ],
+        "export measurements": [
+            (M, ["export", "measurements", "--format"], dict(code=1)),
+            (W, ["export", "measurements", "--format", "xml"], dict(code=1, expect="csv or json")),
+            (R, ["export", "measurements", "--month", "2026-13"], dict(expect="2026-13")),
+            (W, ["export", "measurements", "--from", "yesterday", "--to", "2026-11-01"],
+             dict(expect="yesterday")),
+            (H, ["export", "measurements", "--patient", SQL], dict(expect="unknown patient")),
+            (O, ["export", "measurements", "--detector", LONG], dict(expect="unknown detector")),
+            (R, ["export", "measurements", "--out", f["not_json.bin"]], dict(expect="already exists")),
+            (R, ["export", "measurements", "--out", "@nodir/x1.csv"], dict(new_file="nodir/x1.csv")),
+            (H, ["export", "measurements", "--out", "@x2" + ESC], dict(expect="control character")),
+        ],
+        "audit list": [
+            (M, ["audit", "list", "--who"], dict(code=1)),
+            (W, ["audit", "list", "--limit", "ten"], dict(expect="ten")),
+            (R, ["audit", "list", "--limit", "0"], dict()),
+            (R, ["audit", "list", "--month", "2026-00"], dict(expect="2026-00")),
+            (O, ["audit", "list", "--id", "9" * 40], dict()),
+            (H, ["audit", "list", "--who", BAD_UTF8], dict(expect="UTF-8")),
+        ],
+        "audit show": [
+            (M, ["audit", "show"], dict(code=1)),
+            (W, ["audit", "show", "abc"], dict(expect="abc")),
+            (R, ["audit", "show", "99999999"], dict(expect="not found")),
+            (O, ["audit", "show", "9" * 40], dict()),
+            (H, ["audit", "show", SQL], dict()),
         ],
         "backup": [
             (M, ["backup"], dict(code=1)),

@@ -540,8 +540,9 @@ class EndToEndTest(record_fixture.RecordTestCase, ReportTestCase):
 
 class MemoryTest(ReportTestCase):
     def peak_kib(self, *args):
-        e = dict(os.environ, FXLEDGER_USER="admin", NO_COLOR="1")
-        p = subprocess.Popen([BIN, "--db", self.fx.db] + list(args), env=e,
+        self.fx.ensure_session("admin")
+        e = self.fx.env("admin")
+        p = subprocess.Popen(self.fx.argv(*args, user="admin"), env=e,
                              stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
         _, status, usage = os.wait4(p.pid, 0)
         p.returncode = os.waitstatus_to_exitcode(status)

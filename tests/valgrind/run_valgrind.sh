@@ -3,7 +3,8 @@
 # valgrind (memcheck), in an ordinary build. Used by `make valgrind`; see
 # docs/robustness.md.
 #   run_valgrind.sh BUILD_DIR [TEST_SCRIPT...]   (paths from the source root)
-# The command-line tests drive fxledger through a wrapper that starts every
+# The command-line tests drive fxledger (its test build, fxledger-testclock,
+# whose clock the tests fix) through a wrapper that starts every
 # command under valgrind with its own log file; any invalid access,
 # uninitialised value or definite/indirect leak in any log fails the run,
 # even in a command that a test expected to fail.
@@ -47,7 +48,7 @@ done
 wrapper="$logs/fxledger-vg"
 cat >"$wrapper" <<WRAP
 #!/bin/sh
-exec $VG --quiet --log-file="$logs/cli/fxledger.%p.log" "$build/fxledger" "\$@"
+exec $VG --quiet --log-file="$logs/cli/fxledger.%p.log" "$build/fxledger-testclock" "\$@"
 WRAP
 chmod +x "$wrapper"
 

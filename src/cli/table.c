@@ -1,0 +1,189 @@
+/* Tables sized to their content that fall back to one block per row when
+ * they would pass the console width; paragraphs wrapped at words. */
+#include <stdlib.h>
+#include <string.h>
+
+#include "cli/table.h"
+
+size_t cli_text_width(const char *s)
+{
+    size_t n = 0;
+
+    for (; s && *s; s++)
+        if (((unsigned char)*s & 0xC0) != 0x80)
+            n++;
+    return n;
+}
+
+/* Bytes of the first `chars` characters of s. */
+static size_t bytes_of(const char *s, size_t chars)
+{
+    size_t b = 0, c = 0;
+
+    while (s[b]) {
+        if (((unsigned char)s[b] & 0xC0) != 0x80) {
+            if (c == chars)
+                break;
+            c++;
+        }
+        b++;
+    }
+    return b;
+}
+
+void cli_wrap(FILE *out, const char *first, const char *text, int width)
+{
+    cli_wrap_hang(out, first, (int)cli_text_width(first), text, width);
+}
+
+void cli_wrap_hang(FILE *out, const char *first, int hang, const char *text, int width)
+{
+    size_t indent = (size_t)(hang < 0 ? 0 : hang), fw = cli_text_width(first);
+    size_t room = width > (int)indent + 10 ? (size_t)width - indent : 10;
+    size_t col;          /* characters used on this line beyond the indent */
+    const char *p = text ? text : "";
+    int words = 0;       /* words on this line */
+
+    fputs(first, out);
+    col = fw > indent ? fw - indent : 0;
+    for (;;) {
+        const char *e;
+        size_t w, need;
+
+        while (*p == ' ')
+            p++;
+        if (!*p)
+            break;
+        for (e = p; *e && *e != ' '; e++)
+            ;
+        w = cli_text_width(p) - cli_text_width(e);
+        need = w + (words ? 1 : 0);
+        if (col + need > room && (words || col > 0) && w <= room) {
+            fprintf(out, "\n%*s", (int)indent, "");
+            col = 0;
+            words = 0;
+            need = w;
+        }
+        if (words) {
+            fputc(' ', out);
+            col++;
+        }
+        while (col + w > room) {  /* a word longer than a line: broken only then */
+            size_t part = room > col ? room - col : 1, b = bytes_of(p, part);
+            fwrite(p, 1, b, out);
+            fprintf(out, "\n%*s", (int)indent, "");
+            p += b;
+            w -= part;
+            col = 0;
+        }
+        fwrite(p, 1, (size_t)(e - p), out);
+        col += w;
+        words++;
+        p = e;
+    }
+    fputc('\n', out);
+}
+
+void cli_table_init(cli_table *t, const char *const *head)
+{
+    memset(t, 0, sizeof *t);
+    while (head[t->ncol] && t->ncol < CLI_TABLE_COLS) {
+        t->head[t->ncol] = head[t->ncol];
+        t->ncol++;
+    }
+}
+
+int cli_table_add(cli_table *t, const char *const *cells)
+{
+    size_t i;
+
+    if (t->nrow == t->cap) {
+        size_t cap = t->cap ? 2 * t->cap : 16;
+        char **c = realloc(t->cells, cap * t->ncol * sizeof *c);
+        if (!c)
+            return -1;
+        t->cells = c;
+        t->cap = cap;
+    }
+    for (i = 0; i < t->ncol; i++) {
+        const char *v = cells[i] ? cells[i] : "";
+        char *copy = malloc(strlen(v) + 1);
+        if (!copy)
+            return -1;
+        strcpy(copy, v);
+        t->cells[t->nrow * t->ncol + i] = copy;
+    }
+    t->nrow++;
+    return 0;
+}
+
+void cli_table_release(cli_table *t)
+{
+    size_t i;
+
+    for (i = 0; i < t->nrow * t->ncol; i++)
+        free(t->cells[i]);
+    free(t->cells);
+    memset(t, 0, sizeof *t);
+}
+
+static void pad(FILE *out, const char *s, size_t w, int right, int last)
+{
+    size_t n = cli_text_width(s);
+
+    if (right && n < w)
+        fprintf(out, "%*s", (int)(w - n), "");
+    fputs(s, out);
+    if (!right && !last && n < w)
+        fprintf(out, "%*s", (int)(w - n), "");
+}
+
+void cli_table_print(FILE *out, const cli_table *t, int width, int indent)
+{
+    size_t w[CLI_TABLE_COLS], total = 0, i, r, headw = 0;
+
+    for (i = 0; i < t->ncol; i++) {
+        w[i] = cli_text_width(t->head[i]);
+        for (r = 0; r < t->nrow; r++) {
+            size_t n = cli_text_width(t->cells[r * t->ncol + i]);
+            if (n > w[i])
+                w[i] = n;
+        }
+        total += w[i] + (i ? 2 : 0);
+        if (cli_text_width(t->head[i]) > headw)
+            headw = cli_text_width(t->head[i]);
+    }
+    if (total + (size_t)indent <= (size_t)width) {
+        fprintf(out, "%*s", indent, "");
+        for (i = 0; i < t->ncol; i++) {
+            if (i)
+                fputs("  ", out);
+            pad(out, t->head[i], w[i], t->right[i], i + 1 == t->ncol);
+        }
+        fputc('\n', out);
+        for (r = 0; r < t->nrow; r++) {
+            fprintf(out, "%*s", indent, "");
+            for (i = 0; i < t->ncol; i++) {
+                if (i)
+                    fputs("  ", out);
+                pad(out, t->cells[r * t->ncol + i], w[i], t->right[i], i + 1 == t->ncol);
+            }
+            fputc('\n', out);
+        }
+        return;
+    }
+    /* Too wide: one block per row, "heading: value", values wrapped. */
+    for (r = 0; r < t->nrow; r++) {
+        if (r)
+            fputc('\n', out);
+        for (i = 0; i < t->ncol; i++) {
+            char first[64];
+            const char *v = t->cells[r * t->ncol + i];
+            if (!*v)
+                continue;
+            snprintf(first, sizeof first, "%*s%s%s:%*s ", indent, "", i == 0 ? "" : "  ",
+                     t->head[i], (int)(headw - cli_text_width(t->head[i])), "");
+            cli_wrap(out, first, v, width);
+        }
+    }
+}
