@@ -68,6 +68,8 @@ int cmd_login(cli_env *env, int argc, char **argv)
         code = CLI_EXIT_DB;
         goto cleanup;
     }
+    memset(pw, 0, FXL_PASSWORD_BUF);
+    memset(npw, 0, FXL_PASSWORD_BUF);
     snprintf(prompt, sizeof prompt, "fxledger: password for '%s': ", login);
     if (cli_read_password(env, prompt, pw, FXL_PASSWORD_BUF) != 0) {
         code = CLI_EXIT_PERM;
