@@ -3,8 +3,9 @@
 built from nothing in demo/out/ with fxledger's own commands, then about two
 weeks of logged fractions, the physicist's review queue and the PDF reports.
 
-Every person, patient, plan, detector, calibration and reading here is
-invented for the demo; none is real. The readings are made up so that the
+Every person, patient, plan, detector, calibration, reading and password
+here is invented for the demo; none is real. The invented passwords reach
+fxledger through --password-fd, so the demo runs with no prompt. The readings are made up so that the
 corrected doses land at chosen deviations from the expected doses: mostly
 small, with one result outside tolerance, two consecutive results outside
 tolerance that escalate, one outside the action level, one mistyped reading

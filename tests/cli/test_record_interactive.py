@@ -12,6 +12,7 @@ from record_fixture import MRN, SKIN_DEFAULT_C, RecordTestCase, deviation, dose
 
 class RecordInteractiveTest(RecordTestCase):
     def interactive(self, lines, *args, now=None, **kw):
+        self.fx.ensure_session(kw.get("user", "tina"), now)   # logged in before any digest
         return self.record("--interactive", *args, stdin="\n".join(lines) + "\n", now=now, **kw)
 
     def test_defaults_accepted_with_empty_lines(self):
