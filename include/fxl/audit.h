@@ -18,6 +18,15 @@ typedef struct fxl_verify_report {
     int foreign_keys_ok;     /* PRAGMA foreign_key_check returned no rows */
 } fxl_verify_report;
 
+/* The external anchor: one line naming the chain head as it is now,
+ *     fxledger-anchor rows=N at=YYYY-MM-DDTHH:MM:SSZ head=<64 hex>
+ * (N audit rows, the time and hash of row N; rows=0 and 64 zeros for an
+ * empty log). Printed by 'verify --anchor' and on every report; kept on
+ * paper, in an e-mail or on another machine, it lets 'verify --anchor LINE'
+ * prove later that rows 1..N are unchanged and none was removed. */
+#define FXL_ANCHOR_LEN 160
+int fxl_audit_anchor(fxl_ctx *ctx, char *buf, size_t size);
+
 /* Walks the audit chain from the first row, recomputing every hash, then runs
  * SQLite's integrity and foreign-key checks. Returns 0 when all hold, else
  * FXL_ECONFLICT with a message naming the first failing row or check. */

@@ -19,9 +19,13 @@ typedef struct fxl_report_options {
     /* Directory holding DejaVuSans.ttf and DejaVuSans-Bold.ttf; NULL: the
      * directory fixed at build time (FXL_FONT_DIR). */
     const char *font_dir;
+    /* 1: an existing regular, non-SQLite file at the output path may be
+     * replaced (--force); never the database or a non-regular file
+     * (fxl/outfile.h). 0: an existing path is refused. */
+    int force;
 } fxl_report_options;
 
-#define FXL_REPORT_OPTIONS_INIT {NULL, NULL}
+#define FXL_REPORT_OPTIONS_INIT {NULL, NULL, 0}
 
 /* What a written report holds, for the caller's message. */
 typedef struct fxl_report_result {
@@ -33,9 +37,11 @@ typedef struct fxl_report_result {
     char timezone[64];      /* the department time zone used */
 } fxl_report_result;
 
-/* Writes the report of the patient with ID `mrn` to `path` (replaced if it
- * exists; written under a temporary name and renamed, so a failure leaves no
- * partial file). plan_label NULL covers every plan of the patient, else only
+/* Writes the report of the patient with ID `mrn` to `path` through
+ * fxl/outfile.h (an existing path is refused unless opt->force, and never
+ * the database; written under a temporary name and renamed, so a failure
+ * leaves no partial file; mode 0600). Every page's footer carries the audit
+ * anchor line of the database as read (fxl_audit_anchor). plan_label NULL covers every plan of the patient, else only
  * that plan. An unknown patient or plan is FXL_ENOTFOUND and writes nothing;
  * a patient without measurements gets a report that says so. Any role may
  * run it. out may be NULL. */

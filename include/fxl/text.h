@@ -27,4 +27,29 @@ long fxl_json_nul_escape_at(const char *s, size_t len);
  * s NULL gives "". */
 void fxl_text_printable(char *out, size_t out_size, const char *s);
 
+/* Byte offset of the first bidirectional formatting character in the UTF-8
+ * text s - U+061C ARABIC LETTER MARK, U+200E/U+200F (LRM, RLM), U+202A..U+202E
+ * (embeddings and overrides), U+2066..U+2069 (isolates), the "bidi controls"
+ * of Unicode UAX #9 section 2 - or -1. They can make text display in another
+ * order than it is stored ("Trojan Source", CVE-2021-42574). */
+long fxl_text_bidi_at(const char *s);
+
+/* Byte offset of the first invisible zero-width character: U+200B ZERO WIDTH
+ * SPACE, U+200C ZWNJ, U+200D ZWJ, U+2060 WORD JOINER, U+FEFF (BOM/ZWNBSP),
+ * U+180E, U+00AD SOFT HYPHEN; or -1. Two identifiers that look the same must
+ * be the same. */
+long fxl_text_zero_width_at(const char *s);
+
+/* Checks text for an identifier (MRN, serial, login, label, machine or beam
+ * name): valid UTF-8, no control, bidi or zero-width character, no leading
+ * or trailing space (ASCII space or U+00A0). Returns 0, or -1 with *why set
+ * to a short reason ("contains a zero-width character", ...) and *at to the
+ * byte offset. why and at may be NULL. */
+int fxl_text_identifier_check(const char *s, const char **why, long *at);
+
+/* Checks text for a name or note (names may hold any printable UTF-8):
+ * valid UTF-8, no control character, no bidi formatting character. Same
+ * returns as fxl_text_identifier_check. */
+int fxl_text_name_check(const char *s, const char **why, long *at);
+
 #endif

@@ -8,6 +8,7 @@
 #include "cli/cli.h"
 #include "cli/signature_view.h"
 #include "cli/session.h"
+#include "fxl/number.h"
 #include "cli/json_put.h"
 #include "fxl/calibrations.h"
 #include "fxl/settings.h"
@@ -42,9 +43,8 @@ static int parse_readings(double *out, size_t *n, const char *text, const char *
         item[len] = '\0';
         for (t = len; t > 0 && (item[t - 1] == ' ' || item[t - 1] == '\t'); t--)
             item[t - 1] = '\0';  /* "10.01, 10.03" is fine; strtod skips leading blanks */
-        errno = 0;
-        v = strtod(item, &end);
-        if (errno != 0 || end == item || *end != '\0' || !isfinite(v)) {
+        (void)end;
+        if (fxl_number_parse(&v, item + strspn(item, " \t"), 0) != FXL_NUM_OK) {
             cli_error("reading %zu '%s' is not a number (> 0, %s)", count + 1, item, unit);
             return -1;
         }

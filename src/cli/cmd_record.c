@@ -9,16 +9,20 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/record_flow.h"
+#include "fxl/number.h"
 #include "cli/record_view.h"
+#include "cli/worklist_view.h"
+#include "fxl/fraction.h"
 #include "fxl/readings_json.h"
 #include "fxl/record.h"
 
 #define SYNOPSIS                                                                              \
-    "record --patient MRN [--plan LABEL] [--fraction N] [--at DATETIME]\n"                    \
+    "record --patient MRN [--plan LABEL] [--fraction N] [--at TIME]\n"                        \
     "                       --field NAME[:entrance|exit] --detector SERIAL --reading X\n"     \
     "                       [--temp C] [--background X] [--field ... ]...\n"                 \
     "   or: fxledger record --file READINGS.json [--patient MRN ...]\n"                       \
-    "   or: fxledger record --patient MRN --interactive"
+    "   or: fxledger record [--patient MRN] [--interactive]"
 
 #define ABOUT                                                                                 \
     "Logs one fraction of a patient's plan: turns each reading into a corrected dose,\n"      \
@@ -26,21 +30,23 @@
     "Each '--field' starts a reading; the --detector, --reading, --temp and --background\n"   \
     "after it belong to that field. Given before the first --field, --detector, --temp\n"     \
     "and --background are defaults for every field. --temp is the temperature at the\n"       \
-    "detector (default: setting skin_temp_c). --at is the treatment time in UTC\n"            \
-    "(YYYY-MM-DD[THH:MM[:SS]], default now). The plan defaults to the patient's latest\n"     \
-    "plan that no other plan replaces, the fraction to the next number.\n"                    \
+    "detector (default: setting skin_temp_c). --at is the treatment time: local time in\n"    \
+    "the department's zone (YYYY-MM-DD[THH:MM[:SS]] or HH:MM today) or ISO 8601 with an\n"    \
+    "offset (2026-11-02T10:00+01:00); default now. The plan defaults to the patient's\n"      \
+    "latest plan that no other plan replaces, the fraction to the next number.\n"             \
     "--file reads the readings format of docs/format-readings.md ('-' = standard input).\n"   \
-    "--interactive (automatic when no readings are given on a terminal) asks field by\n"      \
-    "field; Enter accepts the default in brackets, a blank reading skips the field.\n"        \
-    "Nothing is written unless every input is valid. Exit: 0 all within tolerance,\n"         \
-    "10 not evaluable or implausible, 11 outside tolerance, 12 outside action level;\n"       \
-    "1 usage, 2 invalid input (nothing written)."
+    "Interactive (--interactive, or no readings given on a terminal): without --patient\n"    \
+    "today's worklist is shown and its line number chosen; the fields due are asked one\n"    \
+    "by one with their detector filled in, each field is saved as soon as its reading is\n"   \
+    "entered and its verdict shown at once; a due field left blank is named at the end.\n"    \
+    "Exit: 0 all within tolerance, 10 not evaluable or implausible, 11 outside\n"             \
+    "tolerance, 12 outside action level; 1 usage, 2 invalid input (nothing written)."
 
 static cli_opt opts_template[] = {
     {"patient", "MRN", "patient (medical record number)", NULL},
     {"plan", "LABEL", "plan label (default: latest plan not replaced)", NULL},
     {"fraction", "N", "fraction number, 1 to the plan's fractions (default: next)", NULL},
-    {"at", "DATETIME", "treatment time, UTC (default: now)", NULL},
+    {"at", "TIME", "treatment time, local or ISO 8601 with offset (default: now)", NULL},
     {"field", "NAME[:POINT]", "starts a reading of this field (point entrance or exit)", NULL},
     {"detector", "SERIAL", "detector of the reading", NULL},
     {"reading", "X", "electrometer reading, > 0, in the detector's unit", NULL},
@@ -210,9 +216,8 @@ static int parse_number(double *out, const char *text, const char *what, const c
     char *end = NULL;
     double v;
 
-    errno = 0;
-    v = strtod(text, &end);
-    if (!*text || errno != 0 || end == text || *end != '\0' || !isfinite(v)) {
+    (void)end;
+    if (fxl_number_parse(&v, text, 0) != FXL_NUM_OK) {
         cli_error("%s '%s' for field '%s' is not a number: must be %s", what, text, field, range);
         return -1;
     }
@@ -251,174 +256,6 @@ static int build_entries(fxl_reading_entry *e, const record_args *a)
     return 0;
 }
 
-/* ---- interactive ------------------------------------------------------------------- */
-
-static FILE *prompt_out(const cli_env *env)
-{
-    return env->json ? stderr : stdout;
-}
-
-/* Reads one line without its newline; -1 at end of input. */
-static int read_line(char *buf, size_t size)
-{
-    size_t len;
-
-    if (!fgets(buf, (int)size, stdin))
-        return -1;
-    len = strlen(buf);
-    while (len && (buf[len - 1] == '\n' || buf[len - 1] == '\r'))
-        buf[--len] = '\0';
-    while (len && (buf[len - 1] == ' ' || buf[len - 1] == '\t'))
-        buf[--len] = '\0';
-    if (len && buf[0] == ' ') {
-        size_t k = strspn(buf, " \t");
-        memmove(buf, buf + k, len - k + 1);
-    }
-    return 0;
-}
-
-static int ask(const cli_env *env, char *buf, size_t size, const char *fmt, ...)
-    __attribute__((format(printf, 4, 5)));
-
-static int ask(const cli_env *env, char *buf, size_t size, const char *fmt, ...)
-{
-    va_list ap;
-    FILE *out = prompt_out(env);
-
-    va_start(ap, fmt);
-    vfprintf(out, fmt, ap);
-    va_end(ap);
-    fflush(out);
-    if (read_line(buf, size) != 0) {
-        fputc('\n', out);
-        return -1;
-    }
-    /* Piped answers are not echoed by a terminal: show them, so that the
-     * transcript reads like the session. */
-    if (!env->interactive)
-        fprintf(out, "%s\n", buf);
-    return 0;
-}
-
-static int ended(void)
-{
-    cli_error("input ended before the readings were complete; nothing recorded");
-    return CLI_EXIT_USAGE;
-}
-
-/* Asks for everything, field by field. Fills e[] with pointers into
- * detectors[] (owned by the caller) and *n. */
-static int interactive(cli_env *env, const fxl_record_plan *plan, long *fraction,
-                       fxl_reading_entry *e, char (*detectors)[65], size_t *n,
-                       const record_args *a)
-{
-    FILE *out = prompt_out(env);
-    char line[256], last[65] = "";
-    size_t i;
-
-    *n = 0;
-    fprintf(out, "Patient %s (%s), plan '%s' (%s, %s), %d fractions\n", plan->mrn, plan->patient_name,
-            plan->plan, plan->site, plan->technique, plan->fractions);
-    if (!a->fraction) {
-        for (;;) {
-            if (ask(env, line, sizeof line, "Fraction number [%d]: ", plan->next_fraction) != 0)
-                return ended();
-            if (!line[0]) {
-                *fraction = plan->next_fraction;
-                break;
-            }
-            if (cli_int(fraction, line, "fraction number", 1, plan->fractions) == 0)
-                break;
-        }
-    }
-    if (a->def_detector)
-        snprintf(last, sizeof last, "%s", a->def_detector);
-    fprintf(out, "Enter accepts the value in brackets; a blank reading skips the field.\n");
-    for (i = 0; i < plan->n_fields && *n < FXL_RECORD_READINGS_MAX; i++) {
-        const fxl_record_field_info *f = &plan->fields[i];
-        const char *def = f->last_detector[0] ? f->last_detector
-                          : plan->last_detector[0] ? plan->last_detector
-                                                   : last;
-        char unit[8] = "", exp[32];
-        fxl_reading_entry *cur = &e[*n];
-
-        if (isfinite(f->expected_dose_cgy))
-            snprintf(exp, sizeof exp, "expected %.1f cGy", f->expected_dose_cgy);
-        else
-            snprintf(exp, sizeof exp, "no expected dose");
-        fprintf(out, "\nField %s (%s, beam %s, %.0f MU, %s)\n", f->name, f->point, f->beam, f->mu, exp);
-        fxl_reading_entry_init(cur);
-        for (;;) {
-            if (def[0]) {
-                if (ask(env, line, sizeof line, "  detector [%s]: ", def) != 0)
-                    return ended();
-            } else if (ask(env, line, sizeof line, "  detector (blank skips the field): ") != 0) {
-                return ended();
-            }
-            if (!line[0] && !def[0])
-                break;
-            if (strlen(line) > 64) {
-                cli_error("detector serial '%.20s...' must be 1 to 64 characters", line);
-                continue;
-            }
-            snprintf(detectors[*n], 65, "%.64s", line[0] ? line : def);
-            if (fxl_record_detector_unit(env->ctx, unit, detectors[*n]) == 0)
-                break;
-            cli_error("%s", fxl_errmsg(env->ctx));
-        }
-        if (!line[0] && !def[0]) {
-            fprintf(out, "  skipped\n");
-            continue;
-        }
-        for (;;) {
-            char *end = NULL;
-            if (ask(env, line, sizeof line, "  reading %s (blank skips): ", unit) != 0)
-                return ended();
-            if (!line[0])
-                break;
-            errno = 0;
-            cur->reading = strtod(line, &end);
-            if (errno == 0 && end != line && *end == '\0' && isfinite(cur->reading) && cur->reading > 0)
-                break;
-            cli_error("reading '%s' for field '%s' must be a number > 0 %s", line, f->name, unit);
-        }
-        if (!line[0]) {
-            fprintf(out, "  skipped\n");
-            continue;
-        }
-        for (;;) {
-            double t;
-            if (ask(env, line, sizeof line, "  temperature degC [%g]: ", plan->skin_temp_c) != 0)
-                return ended();
-            if (!line[0])
-                break;  /* not entered: the skin-temperature setting applies */
-            if (cli_double(&t, line, "temperature", FXL_RECORD_TEMP_MIN_C, FXL_RECORD_TEMP_MAX_C,
-                           "degC") == 0) {
-                cur->temp_c = t;
-                break;
-            }
-        }
-        cur->field = f->name;
-        cur->point = f->point;
-        cur->detector = detectors[*n];
-        snprintf(last, sizeof last, "%s", detectors[*n]);
-        (*n)++;
-    }
-    if (*n == 0) {
-        cli_error("no readings entered; nothing recorded");
-        return CLI_EXIT_USAGE;
-    }
-    if (ask(env, line, sizeof line, "\nRecord %zu reading%s as fraction %ld of plan '%s'? [Y/n]: ", *n,
-            *n == 1 ? "" : "s", *fraction, plan->plan) != 0)
-        return ended();
-    if (line[0] && line[0] != 'y' && line[0] != 'Y') {
-        cli_error("not confirmed; nothing recorded");
-        return CLI_EXIT_USAGE;
-    }
-    fputc('\n', out);
-    return 0;
-}
-
 /* ---- the command ------------------------------------------------------------------- */
 
 /* A value given both in the file and on the command line must agree. */
@@ -441,13 +278,13 @@ int cmd_record(cli_env *env, int argc, char **argv)
     char (*detectors)[65] = calloc(FXL_RECORD_READINGS_MAX, sizeof *detectors);
     fxl_readings_file file = FXL_READINGS_FILE_INIT;
     fxl_record_result result = FXL_RECORD_RESULT_INIT;
-    fxl_record_plan plan;
     fxl_record_request req;
-    char fraction_text[16], mrn[65];
+    char fraction_text[16], at_utc[FXL_TIME_LEN];
+    fxl_worklist_item *before = NULL;
+    size_t n_before = 0;
     long fraction = 0;
     int rc, code = CLI_EXIT_OK, use_prompt;
 
-    memset(&plan, 0, sizeof plan);
     memset(&req, 0, sizeof req);
     if (!a || !entries || !detectors) {
         cli_error("out of memory");
@@ -496,8 +333,7 @@ int cmd_record(cli_env *env, int argc, char **argv)
                 goto cleanup;
             }
         }
-        if (merge(&a->patient, file.patient, "patient") != 0 || merge(&a->plan, file.plan, "plan") != 0 ||
-            merge(&a->at, file.treated_at, "at") != 0) {
+        if (merge(&a->patient, file.patient, "patient") != 0 || merge(&a->plan, file.plan, "plan") != 0) {
             code = CLI_EXIT_DATA;
             goto cleanup;
         }
@@ -506,19 +342,37 @@ int cmd_record(cli_env *env, int argc, char **argv)
         code = CLI_EXIT_DATA;
         goto cleanup;
     }
-    if (!a->patient && use_prompt) {
-        char line[80];
-        if (ask(env, line, sizeof line, "Patient MRN: ") != 0 || !line[0]) {
-            code = ended();
+    if (a->at) {
+        /* typed by a person: local time in the department's zone or an offset */
+        char typed[FXL_TIME_LEN];
+        if ((rc = fxl_time_parse_local(env->ctx, typed, a->at)) != 0) {
+            cli_error("treatment %s", fxl_errmsg(env->ctx));
+            code = cli_exit_code(rc);
             goto cleanup;
         }
-        if (strlen(line) > 64) {
-            cli_error("patient MRN '%.20s...' must be 1 to 64 characters", line);
-            code = CLI_EXIT_DATA;
-            goto cleanup;
+        if (file.treated_at[0]) {
+            char given[FXL_TIME_LEN];
+            if (fxl_time_normalize(given, file.treated_at, 0) != 0 || strcmp(given, typed) != 0) {
+                cli_error("--at '%s' differs from the readings file's '%s'", a->at, file.treated_at);
+                code = CLI_EXIT_DATA;
+                goto cleanup;
+            }
         }
-        snprintf(mrn, sizeof mrn, "%.64s", line);
-        a->patient = mrn;
+        snprintf(at_utc, sizeof at_utc, "%s", typed);
+        a->at = at_utc;
+    } else if (file.treated_at[0]) {
+        a->at = file.treated_at;
+    }
+    if (use_prompt) {
+        cli_flow_args fa;
+        memset(&fa, 0, sizeof fa);
+        fa.patient = a->patient;
+        fa.plan = a->plan;
+        fa.fraction = (int)fraction;
+        fa.treated_at = a->at;
+        fa.def_detector = a->def_detector;
+        code = cli_record_flow(env, &fa);
+        goto cleanup;
     }
     if (!a->patient) {
         cli_error("--patient MRN is required");
@@ -532,17 +386,6 @@ int cmd_record(cli_env *env, int argc, char **argv)
     if (a->file) {
         req.readings = file.entries;
         req.n_readings = file.n;
-    } else if (use_prompt) {
-        size_t n = 0;
-        if ((rc = fxl_record_plan_load(env->ctx, &plan, a->patient, a->plan)) != 0) {
-            code = cli_fail(env, rc);
-            goto cleanup;
-        }
-        req.plan = plan.plan;  /* the plan shown is the plan logged */
-        if ((code = interactive(env, &plan, &fraction, entries, detectors, &n, a)) != 0)
-            goto cleanup;
-        req.readings = entries;
-        req.n_readings = n;
     } else {
         if ((code = build_entries(entries, a)) != 0)
             goto cleanup;
@@ -551,14 +394,29 @@ int cmd_record(cli_env *env, int argc, char **argv)
     }
     req.fraction = (int)fraction;
 
+    /* What was open before the readings were written is shown first, the
+     * items as they stand after them beside the verdicts. */
+    if (!env->json) {
+        const char *dets[FXL_RECORD_READINGS_MAX];
+        size_t i;
+        for (i = 0; i < req.n_readings; i++)
+            dets[i] = req.readings[i].detector;
+        if (fxl_holds_for_patient(env->ctx, &before, &n_before, req.mrn, dets, req.n_readings) != 0)
+            n_before = 0;
+    }
     if ((rc = fxl_record_fraction(env->ctx, &result, &req)) != 0) {
         code = cli_fail(env, rc);
         goto cleanup;
     }
+    if (n_before) {
+        printf("Open before this fraction was logged:\n");
+        cli_items_print(env, stdout, before, n_before, 2);
+        printf("\n");
+    }
     code = cli_record_finish(env, &result);
 cleanup:
+    free(before);
     fxl_record_result_release(&result);
-    fxl_record_plan_release(&plan);
     fxl_readings_file_release(&file);
     free(a);
     free(entries);

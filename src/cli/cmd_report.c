@@ -3,6 +3,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "fxl/outfile.h"
 #include "fxl/report.h"
 
 static const char *const generated_help =
@@ -57,7 +58,8 @@ static int print_result(cli_env *env, const char *kind, const char *subject, con
 static int sub_patient(cli_env *env, int argc, char **argv)
 {
     cli_opt opts[] = {
-        {"out", "FILE", "PDF file to write (replaced if it exists)", NULL},
+        {"out", "FILE", "PDF file to write (must not exist; see --force)", NULL},
+        {"force", NULL, "replace an existing regular file (never a database, directory or device)", NULL},
         {"plan", "LABEL", "report only this plan of the patient (default: every plan)", NULL},
         {"generated-at", "DATETIME", generated_help, NULL},
         {NULL, NULL, NULL, NULL}};
@@ -67,7 +69,7 @@ static int sub_patient(cli_env *env, int argc, char **argv)
     const char *pos[1];
     int npos, rc;
 
-    rc = cli_parse(env, "report patient MRN --out FILE.pdf [--plan LABEL] [--generated-at DATETIME]",
+    rc = cli_parse(env, "report patient MRN --out FILE.pdf [--force] [--plan LABEL] [--generated-at DATETIME]",
                    "Writes the in vivo dosimetry record of one patient: plans, every measurement\n"
                    "(superseded readings struck through), summary statistics, a chart of\n"
                    "deviation against fraction per field with the tolerance and action bands,\n"
@@ -88,6 +90,9 @@ static int sub_patient(cli_env *env, int argc, char **argv)
         opt.generated_at = when;
     if ((rc = fxl_require_role(env->ctx, FXL_ROLES_ANY, "writing a report")) != 0)
         return cli_fail(env, rc);
+    opt.force = cli_get(opts, "force") != NULL;
+    if ((rc = fxl_outfile_check(env->ctx, cli_get(opts, "out"), opt.force ? FXL_OUT_FORCE : 0)) != 0)
+        return cli_fail(env, rc);
     rc = fxl_report_patient(env->ctx, &res, cli_get(opts, "out"), pos[0], cli_get(opts, "plan"), &opt);
     if (rc != 0)
         return cli_fail(env, rc);
@@ -97,7 +102,8 @@ static int sub_patient(cli_env *env, int argc, char **argv)
 static int sub_month(cli_env *env, int argc, char **argv)
 {
     cli_opt opts[] = {
-        {"out", "FILE", "PDF file to write (replaced if it exists)", NULL},
+        {"out", "FILE", "PDF file to write (must not exist; see --force)", NULL},
+        {"force", NULL, "replace an existing regular file (never a database, directory or device)", NULL},
         {"generated-at", "DATETIME", generated_help, NULL},
         {NULL, NULL, NULL, NULL}};
     fxl_report_options opt = FXL_REPORT_OPTIONS_INIT;
@@ -106,7 +112,7 @@ static int sub_month(cli_env *env, int argc, char **argv)
     const char *pos[1];
     int npos, rc;
 
-    rc = cli_parse(env, "report month YYYY-MM --out FILE.pdf [--generated-at DATETIME]",
+    rc = cli_parse(env, "report month YYYY-MM --out FILE.pdf [--force] [--generated-at DATETIME]",
                    "Writes the departmental summary of one calendar month in the department's\n"
                    "time zone (setting 'timezone'): counts and rates per verdict overall, by\n"
                    "site and technique, by energy and by detector; a histogram of deviations\n"
@@ -127,6 +133,9 @@ static int sub_month(cli_env *env, int argc, char **argv)
     if (rc > 0)
         opt.generated_at = when;
     if ((rc = fxl_require_role(env->ctx, FXL_ROLES_ANY, "writing a report")) != 0)
+        return cli_fail(env, rc);
+    opt.force = cli_get(opts, "force") != NULL;
+    if ((rc = fxl_outfile_check(env->ctx, cli_get(opts, "out"), opt.force ? FXL_OUT_FORCE : 0)) != 0)
         return cli_fail(env, rc);
     rc = fxl_report_month(env->ctx, &res, cli_get(opts, "out"), pos[0], &opt);
     if (rc != 0)

@@ -73,7 +73,7 @@ static void print_help(void)
 /* Removes the global options from argv wherever they stand (before "--"). */
 static int take_global_options(cli_env *env, int *argc, char **argv, int *want_help, int *want_version)
 {
-    int i, j = 0;
+    int i, j = 0, seen_db = 0, seen_user = 0, seen_json = 0;
 
     for (i = 0; i < *argc; i++) {
         const char *a = argv[i];
@@ -81,6 +81,21 @@ static int take_global_options(cli_env *env, int *argc, char **argv, int *want_h
             while (i < *argc)
                 argv[j++] = argv[i++];
             break;
+        }
+        /* A global option given twice is refused like a repeated command
+         * option: which of two users or databases was meant is a guess. */
+        if (strcmp(a, "--db") == 0 || strncmp(a, "--db=", 5) == 0 || strcmp(a, "--user") == 0 ||
+            strncmp(a, "--user=", 7) == 0 || strcmp(a, "--json") == 0) {
+            int *seen = a[2] == 'd' ? &seen_db : a[2] == 'u' ? &seen_user : &seen_json;
+            if ((strcmp(a, "--db") == 0 || strcmp(a, "--user") == 0) && i + 1 >= *argc) {
+                cli_error("option '%s' needs a value", a);
+                return -1;
+            }
+            if (*seen) {
+                cli_error("option '%.*s' is given more than once", a[2] == 'd' ? 4 : a[2] == 'u' ? 6 : 6, a);
+                return -1;
+            }
+            *seen = 1;
         }
         if (strcmp(a, "--password-fd") == 0 || strncmp(a, "--password-fd=", 14) == 0) {
             const char *v = a[13] == '=' ? a + 14 : (i + 1 < *argc ? argv[++i] : NULL);
@@ -93,6 +108,10 @@ static int take_global_options(cli_env *env, int *argc, char **argv, int *want_h
             fd = strtol(v, &end, 10);
             if (end == v || *end || fd < 0 || fd > 1024 || fcntl((int)fd, F_GETFD) < 0) {
                 cli_error("--password-fd '%s' is not an open file descriptor", v);
+                return -1;
+            }
+            if (env->password_fd >= 0) {
+                cli_error("option '--password-fd' is given more than once");
                 return -1;
             }
             env->password_fd = (int)fd;

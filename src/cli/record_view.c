@@ -9,6 +9,9 @@
 #include "cli/alert.h"
 #include "cli/midline_view.h"
 #include "cli/record_view.h"
+#include "cli/table.h"
+#include "cli/worklist_view.h"
+#include "fxl/fraction.h"
 #include "fxl/readings_json.h"
 
 /* Bounds of setting alert_timeout_s (docs/settings.md default 10 s). */
@@ -55,81 +58,181 @@ static void num(char *buf, size_t size, double v, const char *fmt, const char *u
     }
 }
 
-/* "2026-11-02 09:00 UTC" from the stored form. */
-static void when(char *buf, size_t size, const char *stored)
+/* The short verdict of the table; the full label and guidance follow it. */
+static const char *short_verdict(fxl_verdict v)
 {
-    if (strlen(stored) >= 16)
-        snprintf(buf, size, "%.10s %.5s UTC", stored, stored + 11);
-    else
-        snprintf(buf, size, "%s", stored);
+    switch (v) {
+    case FXL_VERDICT_WITHIN: return "within tol.";
+    case FXL_VERDICT_OUTSIDE_TOLERANCE: return "OUTSIDE TOL.";
+    case FXL_VERDICT_OUTSIDE_ACTION: return "ACTION LEVEL";
+    case FXL_VERDICT_NOT_EVALUABLE: return "not evaluable";
+    case FXL_VERDICT_IMPLAUSIBLE: return "implausible";
+    }
+    return "unknown";
 }
 
-void cli_record_print(const cli_env *env, const fxl_record_result *r)
+void cli_record_field_verdict(const cli_env *env, const fxl_measurement_result *m,
+                              const fxl_worklist_item *items, size_t n_items)
 {
-    char t[40], reading[32], dose[24], expected[24], dev[16], id[16];
+    char dev[32], line[1200], hold[600];
+    int j;
+
+    num(dev, sizeof dev, m->verdict == FXL_VERDICT_IMPLAUSIBLE ? NAN : m->deviation_pct, "%+.2f", "%");
+    snprintf(line, sizeof line, "%s%s%s%s (measurement #%lld)",
+             cli_color(env, verdict_color(m->verdict)), fxl_verdict_label(m->verdict),
+             m->escalated ? ", escalated" : "", cli_color(env, CLI_RESET),
+             (long long)m->measurement_id);
+    printf("  -> ");
+    if (strcmp(dev, "-") != 0)
+        printf("deviation %s, ", dev);
+    printf("%s\n", line);
+    for (j = 0; j < m->reasons.n && j < FXL_REASONS_MAX; j++)
+        cli_wrap(stdout, "     - ", m->reasons.text[j], CLI_WIDTH);
+    fxl_holds_guidance(hold, sizeof hold, items, n_items);
+    if (m->verdict == FXL_VERDICT_WITHIN && hold[0])
+        cli_wrap(stdout, "     ", hold, CLI_WIDTH);
+    else
+        cli_wrap(stdout, "     What to do: ", fxl_verdict_guidance(m->verdict), CLI_WIDTH);
+    if (m->review_item_id)
+        printf("     Review item #%lld opened for a physicist.\n", (long long)m->review_item_id);
+}
+
+void cli_record_print_with(const cli_env *env, const fxl_record_result *r,
+                           const fxl_worklist_item *items, size_t n_items)
+{
+    static const char *const head[] = {"#", "field", "pt", "detector", "reading", "cGy", "exp.",
+                                       "dev.", "verdict", NULL};
+    char t[48], reading[32], dose[24], expected[24], dev[16], id[16], verdict[40], title[900];
+    char hold[600];
     fxl_midline_pair *pairs = NULL;
     size_t i, n_pairs = 0;
     int j, flagged = 0, implausible;
     double assumed_c = NAN;
+    cli_table tab;
 
-    when(t, sizeof t, r->treated_at);
-    printf("%sFraction %d of %d%s - patient %s (%s), plan '%s' (%s, %s), treated %s\n\n",
-           cli_color(env, CLI_BOLD), r->fraction_number, r->plan_fractions, cli_color(env, CLI_RESET),
-           r->mrn, r->patient_name, r->plan, r->site, r->technique, t);
-    printf("%-6s %-12s %-9s %-12s %-14s %-12s %-12s %-10s %s\n", "id", "field", "point", "detector",
-           "reading", "corrected", "expected", "deviation", "verdict");
+    fxl_time_show_local(env->ctx, t, sizeof t, r->treated_at);
+    snprintf(title, sizeof title, "Fraction %d of %d - patient %s (%s), plan '%s' (%s, %s), treated %s",
+             r->fraction_number, r->plan_fractions, r->mrn, r->patient_name, r->plan, r->site,
+             r->technique, t);
+    printf("%s", cli_color(env, CLI_BOLD));
+    cli_wrap(stdout, "", title, CLI_WIDTH);
+    printf("%s\n", cli_color(env, CLI_RESET));
+    cli_table_init(&tab, head);
+    tab.right[0] = tab.right[4] = tab.right[5] = tab.right[6] = tab.right[7] = 1;
     for (i = 0; i < r->n; i++) {
         const fxl_measurement_result *m = &r->items[i];
+        const char *cells[9];
 
         snprintf(id, sizeof id, "#%lld", (long long)m->measurement_id);
         num(reading, sizeof reading, m->reading, "%.3f", m->reading_unit);
         /* An implausible entry is a probable typing or unit error, never a
          * dose result: its arithmetic stays in the record, not on screen. */
         implausible = m->verdict == FXL_VERDICT_IMPLAUSIBLE;
-        num(dose, sizeof dose, implausible ? NAN : m->corrected_dose_cgy, "%.1f", "cGy");
-        num(expected, sizeof expected, m->expected_dose_cgy, "%.1f", "cGy");
+        num(dose, sizeof dose, implausible ? NAN : m->corrected_dose_cgy, "%.1f", NULL);
+        num(expected, sizeof expected, m->expected_dose_cgy, "%.1f", NULL);
         num(dev, sizeof dev, implausible ? NAN : m->deviation_pct, "%+.2f", "%");
-        printf("%-6s %-12s %-9s %-12s %-14s %-12s %-12s %-10s %s%s%s%s\n", id, m->field, m->point,
-               m->detector, reading, dose, expected, dev, cli_color(env, verdict_color(m->verdict)),
-               fxl_verdict_label(m->verdict), m->escalated ? " (escalated)" : "",
-               cli_color(env, CLI_RESET));
+        snprintf(verdict, sizeof verdict, "%s%s", short_verdict(m->verdict), m->escalated ? " esc." : "");
+        cells[0] = id;
+        cells[1] = m->field;
+        cells[2] = strcmp(m->point, "entrance") == 0 ? "ent" : m->point;
+        cells[3] = m->detector;
+        cells[4] = reading;
+        cells[5] = dose;
+        cells[6] = expected;
+        cells[7] = dev;
+        cells[8] = verdict;
+        cli_table_add(&tab, cells);
         if (m->verdict != FXL_VERDICT_WITHIN)
             flagged = 1;
     }
+    cli_table_print(stdout, &tab, CLI_WIDTH, 0);
+    cli_table_release(&tab);
     /* A temperature nobody measured is an assumption behind CF_T: say so
      * where the verdict is read (docs/hazards.md). */
-    for (i = 0, j = 0; i < r->n; i++) {
-        const fxl_measurement_result *m = &r->items[i];
-
-        if (m->temp_entered || !isfinite(m->temp_c))
-            continue;
-        printf("%s%s %s", j++ ? ", " : "No temperature entered for ", m->field, m->point);
-        assumed_c = m->temp_c;
+    {
+        char names[600] = "";
+        for (i = 0, j = 0; i < r->n; i++) {
+            const fxl_measurement_result *m = &r->items[i];
+            size_t used = strlen(names);
+            if (m->temp_entered || !isfinite(m->temp_c))
+                continue;
+            snprintf(names + used, sizeof names - used, "%s%s %s", j++ ? ", " : "", m->field, m->point);
+            assumed_c = m->temp_c;
+        }
+        if (j) {
+            char text[900];
+            snprintf(text, sizeof text, "No temperature entered for %s: %.1f degC assumed (setting "
+                     "skin_temp_c); give --temp with the measured value.", names, assumed_c);
+            cli_wrap(stdout, "", text, CLI_WIDTH);
+        }
     }
-    if (j)
-        printf(": %.1f degC assumed (setting skin_temp_c); give --temp with the measured value.\n",
-               assumed_c);
     for (i = 0; i < r->n; i++) {
         const fxl_measurement_result *m = &r->items[i];
+        char line[200];
 
         if (m->verdict == FXL_VERDICT_WITHIN)
             continue;
-        printf("\n%s%s %s: %s%s\n", cli_color(env, verdict_color(m->verdict)), m->field, m->point,
-               fxl_verdict_label(m->verdict), cli_color(env, CLI_RESET));
+        snprintf(line, sizeof line, "%s %s: %s", m->field, m->point, fxl_verdict_label(m->verdict));
+        printf("\n%s", cli_color(env, verdict_color(m->verdict)));
+        cli_wrap(stdout, "", line, CLI_WIDTH);
+        printf("%s", cli_color(env, CLI_RESET));
         for (j = 0; j < m->reasons.n && j < FXL_REASONS_MAX; j++)
-            printf("  - %s\n", m->reasons.text[j]);
-        printf("  What to do: %s\n", fxl_verdict_guidance(m->verdict));
+            cli_wrap(stdout, "  - ", m->reasons.text[j], CLI_WIDTH);
+        cli_wrap(stdout, "  What to do: ", fxl_verdict_guidance(m->verdict), CLI_WIDTH);
         if (m->review_item_id)
             printf("  Review item #%lld opened for a physicist.\n", (long long)m->review_item_id);
     }
-    if (!flagged)
-        printf("\nAll results within tolerance: %s\n", fxl_verdict_guidance(FXL_VERDICT_WITHIN));
+    /* Beside the verdicts: what is open on this patient and the detectors
+     * used; never "continue as planned" while a hold is open. */
+    if (n_items) {
+        printf("\nOpen on this patient and its detectors:\n");
+        cli_items_print(env, stdout, items, n_items, 2);
+    }
+    fxl_holds_guidance(hold, sizeof hold, items, n_items);
+    if (!flagged && hold[0]) {
+        printf("\n");
+        cli_wrap(stdout, "All results within tolerance, but: ", hold, CLI_WIDTH);
+    } else if (!flagged) {
+        printf("\n");
+        cli_wrap(stdout, "All results within tolerance: ", fxl_verdict_guidance(FXL_VERDICT_WITHIN),
+                 CLI_WIDTH);
+    } else if (hold[0]) {
+        printf("\n");
+        cli_wrap(stdout, "", hold, CLI_WIDTH);
+    }
     if (fxl_record_midlines(&pairs, &n_pairs, r) == 0) {
         cli_midline_print(pairs, n_pairs, 0);
         free(pairs);
     }
     printf("\n");
     cli_print_caveat(stdout);
+}
+
+/* The open items of the result's patient and detectors; none on error (the
+ * record is written: the listing is a courtesy, printed as a warning). */
+static void load_items(cli_env *env, const fxl_record_result *r, fxl_worklist_item **items,
+                       size_t *n)
+{
+    const char *dets[FXL_RECORD_READINGS_MAX];
+    size_t i, k = 0;
+
+    *items = NULL;
+    *n = 0;
+    for (i = 0; i < r->n && k < FXL_RECORD_READINGS_MAX; i++)
+        dets[k++] = r->items[i].detector;
+    if (fxl_holds_for_patient(env->ctx, items, n, r->mrn, dets, k) != 0)
+        fprintf(stderr, "fxledger: warning: open items could not be listed: %s\n",
+                fxl_errmsg(env->ctx));
+}
+
+void cli_record_print(const cli_env *env, const fxl_record_result *r)
+{
+    fxl_worklist_item *items = NULL;
+    size_t n = 0;
+
+    load_items((cli_env *)env, r, &items, &n);
+    cli_record_print_with(env, r, items, n);
+    free(items);
 }
 
 /* Reads alert_timeout_s; an unusable value falls back to the default (the
@@ -147,7 +250,7 @@ static int alert_timeout(cli_env *env)
     return (int)v;
 }
 
-static void run_alert(cli_env *env, const fxl_record_result *r)
+void cli_record_alert(cli_env *env, const fxl_record_result *r)
 {
     char command[2048];
     fxl_alert_outcome outcome;
@@ -209,6 +312,6 @@ int cli_record_finish(cli_env *env, const fxl_record_result *r)
         cli_record_print(env, r);
     }
     fflush(stdout);
-    run_alert(env, r);
+    cli_record_alert(env, r);
     return code;
 }

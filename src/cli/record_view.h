@@ -7,13 +7,27 @@
 
 #include "cli/cli.h"
 #include "fxl/record.h"
+#include "fxl/worklist.h"
 
 /* CLI_EXIT_ACTION / TOLERANCE / NOT_EVALUABLE for the worst result, else 0. */
 int cli_record_exit_code(const fxl_record_result *r);
 
-/* The verdict table, then per result not within tolerance its reasons and
- * guidance, then the caveat. */
+/* The verdict table (80 columns), then per result not within tolerance its
+ * reasons and guidance, the patient's open items and holds beside them, the
+ * overall guidance (never "continue as planned" while a hold is open), then
+ * the caveat. cli_record_print loads the open items itself. */
 void cli_record_print(const cli_env *env, const fxl_record_result *r);
+void cli_record_print_with(const cli_env *env, const fxl_record_result *r,
+                           const fxl_worklist_item *items, size_t n_items);
+
+/* The verdict of one field as soon as it is logged: deviation, label,
+ * reasons, what to do (or the hold that stays open), review item. */
+void cli_record_field_verdict(const cli_env *env, const fxl_measurement_result *m,
+                              const fxl_worklist_item *items, size_t n_items);
+
+/* Runs the alert hook when a result is outside the action level and
+ * setting alert_command is set; audits its outcome. */
+void cli_record_alert(cli_env *env, const fxl_record_result *r);
 
 /* Prints the result (table or --json), then runs the alert hook when a
  * result is outside the action level and setting alert_command is set, and

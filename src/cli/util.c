@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "fxl/number.h"
 #include "fxl/text.h"
 
 /* One readable line: text echoed from the input (a name, a file's content)
@@ -137,47 +138,31 @@ const char *cli_get(const cli_opt *opts, const char *name)
 int cli_double(double *out, const char *text, const char *field, double lo, double hi,
                const char *unit)
 {
-    char *end = NULL;
-    double v;
+    char msg[256];
+    int rc = fxl_number_in_range(out, text, 0, lo, hi);
 
-    if (!text || !*text) {
-        cli_error("%s is required (%g to %g %s)", field, lo, hi, unit);
+    if (rc != FXL_NUM_OK) {
+        fxl_number_message(msg, sizeof msg, rc, field, text, lo, hi, unit);
+        cli_error("%s", msg);
         return -1;
     }
-    errno = 0;
-    v = strtod(text, &end);
-    if (errno != 0 || end == text || *end != '\0' || !isfinite(v)) {
-        cli_error("%s '%s' is not a number (%g to %g %s)", field, text, lo, hi, unit);
-        return -1;
-    }
-    if (v < lo || v > hi) {
-        cli_error("%s '%s' is out of range: must be %g to %g %s", field, text, lo, hi, unit);
-        return -1;
-    }
-    *out = v;
     return 0;
 }
 
 int cli_int(long *out, const char *text, const char *field, long lo, long hi)
 {
-    char *end = NULL;
-    long v;
+    char msg[256];
+    double v = 0;
+    int rc = fxl_number_in_range(&v, text, FXL_NUM_WHOLE, (double)lo, (double)hi);
 
-    if (!text || !*text) {
-        cli_error("%s is required (%ld to %ld)", field, lo, hi);
+    if (rc != FXL_NUM_OK) {
+        fxl_number_message(msg, sizeof msg, rc, field, text, (double)lo, (double)hi, "");
+        if (rc == FXL_NUM_SYNTAX)
+            snprintf(msg, sizeof msg, "%s '%.60s' is not a whole number (%ld to %ld)", field, text, lo, hi);
+        cli_error("%s", msg);
         return -1;
     }
-    errno = 0;
-    v = strtol(text, &end, 10);
-    if (errno != 0 || end == text || *end != '\0') {
-        cli_error("%s '%s' is not a whole number (%ld to %ld)", field, text, lo, hi);
-        return -1;
-    }
-    if (v < lo || v > hi) {
-        cli_error("%s '%s' is out of range: must be %ld to %ld", field, text, lo, hi);
-        return -1;
-    }
-    *out = v;
+    *out = (long)v;
     return 0;
 }
 

@@ -116,3 +116,106 @@ void fxl_text_printable(char *out, size_t out_size, const char *s)
     }
     out[o] = '\0';
 }
+
+/* Code point at s (valid UTF-8 assumed) and its length in *n. */
+static unsigned long decode(const unsigned char *s, size_t *n)
+{
+    if (s[0] < 0x80) {
+        *n = 1;
+        return s[0];
+    }
+    if ((s[0] & 0xe0) == 0xc0 && s[1]) {
+        *n = 2;
+        return ((unsigned long)(s[0] & 0x1f) << 6) | (s[1] & 0x3f);
+    }
+    if ((s[0] & 0xf0) == 0xe0 && s[1] && s[2]) {
+        *n = 3;
+        return ((unsigned long)(s[0] & 0x0f) << 12) | ((unsigned long)(s[1] & 0x3f) << 6) | (s[2] & 0x3f);
+    }
+    if ((s[0] & 0xf8) == 0xf0 && s[1] && s[2] && s[3]) {
+        *n = 4;
+        return ((unsigned long)(s[0] & 0x07) << 18) | ((unsigned long)(s[1] & 0x3f) << 12) |
+               ((unsigned long)(s[2] & 0x3f) << 6) | (s[3] & 0x3f);
+    }
+    *n = 1;
+    return 0xfffd;
+}
+
+static int is_bidi(unsigned long cp)
+{
+    return cp == 0x061c || cp == 0x200e || cp == 0x200f || (cp >= 0x202a && cp <= 0x202e) ||
+           (cp >= 0x2066 && cp <= 0x2069);
+}
+
+static int is_zero_width(unsigned long cp)
+{
+    return cp == 0x200b || cp == 0x200c || cp == 0x200d || cp == 0x2060 || cp == 0xfeff ||
+           cp == 0x180e || cp == 0x00ad;
+}
+
+static long find_cp(const char *s, int (*pred)(unsigned long))
+{
+    const unsigned char *u = (const unsigned char *)s;
+    size_t i = 0, n;
+
+    while (u && u[i]) {
+        if (pred(decode(u + i, &n)))
+            return (long)i;
+        i += n;
+    }
+    return -1;
+}
+
+long fxl_text_bidi_at(const char *s)
+{
+    return find_cp(s, is_bidi);
+}
+
+long fxl_text_zero_width_at(const char *s)
+{
+    return find_cp(s, is_zero_width);
+}
+
+static int fail(const char **why, long *at, const char *reason, long where)
+{
+    if (why)
+        *why = reason;
+    if (at)
+        *at = where;
+    return -1;
+}
+
+int fxl_text_name_check(const char *s, const char **why, long *at)
+{
+    long b;
+
+    if (!s)
+        return 0;
+    if ((b = fxl_utf8_invalid_at(s, strlen(s))) >= 0)
+        return fail(why, at, "is not valid UTF-8 text", b);
+    if ((b = fxl_text_control_at(s)) >= 0)
+        return fail(why, at, "contains a control character", b);
+    if ((b = fxl_text_bidi_at(s)) >= 0)
+        return fail(why, at, "contains a bidirectional control character", b);
+    return 0;
+}
+
+int fxl_text_identifier_check(const char *s, const char **why, long *at)
+{
+    size_t len;
+    long b;
+
+    if (!s)
+        return 0;
+    if (fxl_text_name_check(s, why, at) != 0)
+        return -1;
+    if ((b = fxl_text_zero_width_at(s)) >= 0)
+        return fail(why, at, "contains a zero-width character", b);
+    len = strlen(s);
+    if (len && (s[0] == ' ' || (len >= 2 && (unsigned char)s[0] == 0xc2 && (unsigned char)s[1] == 0xa0)))
+        return fail(why, at, "starts with a space", 0);
+    if (len && (s[len - 1] == ' ' ||
+                (len >= 2 && (unsigned char)s[len - 2] == 0xc2 && (unsigned char)s[len - 1] == 0xa0)))
+        return fail(why, at, "ends with a space", (long)len - 1);
+    return 0;
+}

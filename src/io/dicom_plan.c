@@ -12,6 +12,7 @@
 
 #include "fxl/core.h"
 #include "fxl/dicom_plan.h"
+#include "fxl/number.h"
 #include "fxl/fxl.h"
 #include "fxl/text.h"
 #include "io/json_doc.h"
@@ -238,7 +239,6 @@ static int get_text(const parser *p, const char *where, const cJSON *ds, const t
  * either way). 0 on success. */
 static int as_number(const cJSON *v, double *out)
 {
-    char *end;
     const char *s;
 
     if (cJSON_IsNumber(v) && isfinite(v->valuedouble)) {
@@ -248,14 +248,9 @@ static int as_number(const cJSON *v, double *out)
     if (!cJSON_IsString(v))
         return -1;
     s = v->valuestring;
-    while (*s == ' ')
-        s++;
-    if (!*s)
-        return -1;
-    *out = strtod(s, &end);
-    while (*end == ' ')
-        end++;
-    return *end == '\0' && isfinite(*out) ? 0 : -1;
+    /* DS and IS: decimal text, leading and trailing spaces allowed (DICOM
+     * PS3.5 section 6.2); never hexadecimal, inf or nan. */
+    return fxl_number_parse(out, s, FXL_NUM_SPACES) == FXL_NUM_OK ? 0 : -1;
 }
 
 /* Value `index` of a numeric attribute. Returns 1 if read, 0 if absent (an

@@ -3,6 +3,7 @@
  * wrapping and cutting, boxes and lines, number formatting. */
 #include "report/layout.h"
 
+#include <errno.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -10,6 +11,7 @@
 #include <unistd.h>
 
 #include "fxl/core.h"
+#include "fxl/outfile.h"
 
 #define MARGIN_SIDE 36.0
 #define MARGIN_TOP 28.0
@@ -122,12 +124,17 @@ static void draw_footer(rpt_doc *d, int index)
     rpt_text_center(d, d->font, 7, SOFT_GRAY, (d->left + d->right) / 2 + 40, y - 27, buf);
     snprintf(buf, sizeof buf, "Page %d of %d", index + 1, d->npages);
     rpt_text_right(d, d->bold, 8, TEXT_GRAY, d->right, y - 27, buf);
+    /* The record as read, for checking later with 'fxledger verify --anchor'. */
+    if (d->anchor[0])
+        rpt_text(d, d->font, 6, SOFT_GRAY, d->left, y - 35, d->anchor);
 }
 
 int rpt_doc_save(rpt_doc *d, fxl_ctx *ctx, const char *path)
 {
-    char tmp[4096];
-    int i;
+    fxl_outfile o = FXL_OUTFILE_INIT;
+    HPDF_BYTE chunk[8192];
+    HPDF_UINT32 n;
+    int i, rc;
 
     for (i = 0; i < d->npages; i++)
         draw_footer(d, i);
@@ -136,18 +143,32 @@ int rpt_doc_save(rpt_doc *d, fxl_ctx *ctx, const char *path)
     if (d->hpdf_error)
         return fxl_fail(ctx, FXL_EIO, "PDF library error 0x%04lX (detail %lu) while drawing the report",
                         d->hpdf_error, d->hpdf_detail);
-    if (snprintf(tmp, sizeof tmp, "%s.part", path) >= (int)sizeof tmp)
-        return fxl_fail(ctx, FXL_EINVAL, "output path '%s' is too long", path);
-    if (HPDF_SaveToFile(d->pdf, tmp) != HPDF_OK || d->hpdf_error) {
-        unlink(tmp);
-        return fxl_fail(ctx, FXL_EIO, "cannot write report '%s' (check the directory exists and is writable)",
-                        path);
+    /* Into memory, then through the safe output file: libharu's own
+     * SaveToFile would follow a symlink and replace any file. */
+    if (HPDF_SaveToStream(d->pdf) != HPDF_OK || d->hpdf_error)
+        return fxl_fail(ctx, FXL_EIO, "PDF library error 0x%04lX while writing the report", d->hpdf_error);
+    if ((rc = fxl_outfile_open(&o, ctx, path, d->force ? FXL_OUT_FORCE : 0)) != 0)
+        return rc;
+    HPDF_ResetStream(d->pdf);
+    for (;;) {
+        HPDF_STATUS st;
+        n = sizeof chunk;
+        st = HPDF_ReadFromStream(d->pdf, chunk, &n);
+        if (n > 0 && fwrite(chunk, 1, n, o.fp) != n) {
+            rc = fxl_fail(ctx, FXL_EIO, "cannot write report '%s': %s", path, strerror(errno));
+            goto cleanup;
+        }
+        if (st == HPDF_STREAM_EOF)
+            break;
+        if (st != HPDF_OK) {
+            rc = fxl_fail(ctx, FXL_EIO, "PDF library error 0x%04lX while writing the report", (unsigned long)st);
+            goto cleanup;
+        }
     }
-    if (rename(tmp, path) != 0) {
-        unlink(tmp);
-        return fxl_fail(ctx, FXL_EIO, "cannot write report '%s'", path);
-    }
-    return 0;
+    rc = fxl_outfile_commit(&o, ctx);
+cleanup:
+    fxl_outfile_abort(&o);
+    return rc;
 }
 
 void rpt_page_new(rpt_doc *d)

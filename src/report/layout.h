@@ -44,6 +44,8 @@ struct rpt_doc {
     char title[128];         /* right of the running header */
     char subtitle[512];      /* second line of the running header */
     char generated[160];     /* generation time as printed */
+    char anchor[192];        /* audit anchor line (fxl_audit_anchor), printed in every footer */
+    int force;               /* replace an existing regular output file (--force) */
     rpt_page_hook hook;
     void *hook_arg;
     unsigned long hpdf_error;   /* first libharu error, 0 if none */

@@ -5,6 +5,7 @@
 #include <stdio.h>
 #include <string.h>
 
+#include "fxl/audit.h"
 #include "store/report_query.h"
 
 int rpt_session_open(rpt_session *s, fxl_ctx *ctx, const fxl_report_options *opt, int landscape)
@@ -40,6 +41,9 @@ int rpt_session_open(rpt_session *s, fxl_ctx *ctx, const fxl_report_options *opt
         return rc;
     snprintf(s->doc.department, sizeof s->doc.department, "%s",
              dept[0] ? dept : "(department name not set)");
+    s->doc.force = opt ? opt->force : 0;
+    if ((rc = fxl_audit_anchor(ctx, s->doc.anchor, sizeof s->doc.anchor)) != 0)
+        return rc;
     rpt_local(when, sizeof when, s->generated_utc, "%Y-%m-%d %H:%M");
     rpt_local(zone, sizeof zone, s->generated_utc, "%Z");
     if (strcmp(zone, s->tz_name) == 0 || strcmp(s->tz_name, "UTC") == 0)

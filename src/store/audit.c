@@ -151,3 +151,21 @@ cleanup:
     fxl_stmt_finalize(&s);
     return rc < 0 ? rc : 0;
 }
+
+int fxl_audit_anchor(fxl_ctx *ctx, char *buf, size_t size)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT id, at, hash FROM audit_log ORDER BY id DESC LIMIT 1")) != 0)
+        goto cleanup;
+    rc = fxl_stmt_step(&s);
+    if (rc == 1)
+        snprintf(buf, size, "fxledger-anchor rows=%lld at=%s head=%s", (long long)fxl_stmt_int(&s, 0),
+                 fxl_stmt_text(&s, 1), fxl_stmt_text(&s, 2));
+    else if (rc == 0)
+        snprintf(buf, size, "fxledger-anchor rows=0 at=- head=%s", GENESIS);
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc < 0 ? rc : 0;
+}

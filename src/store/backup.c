@@ -9,7 +9,9 @@
 
 #include <cjson/cJSON.h>
 
+#include "fxl/audit.h"
 #include "fxl/backup.h"
+#include "fxl/outfile.h"
 #include "store/audit.h"
 #include "store/stmt.h"
 
@@ -29,6 +31,29 @@ static void remove_copy(const char *path)
     unlink(side);
     snprintf(side, sizeof side, "%s-journal", path);
     unlink(side);
+}
+
+/* The whole of verify on the copy, under its temporary name, before the
+ * copy takes the name asked for. */
+static int verify_copy(fxl_ctx *ctx, const char *tmp, const char *dest)
+{
+    fxl_ctx *c = NULL;
+    fxl_verify_report r;
+    char side[FXL_OUTFILE_PATH_MAX + 8];
+    int rc = fxl_open(&c, tmp, FXL_OPEN_READONLY);
+
+    if (rc == 0)
+        rc = fxl_audit_verify(c, &r);
+    if (rc != 0)
+        rc = fxl_fail(ctx, FXL_EIO, "backup '%s' failed verification, not kept: %s", dest,
+                      c ? fxl_errmsg(c) : "out of memory");
+    fxl_close(c);
+    /* A read-only WAL connection may leave an empty -shm/-wal beside it. */
+    snprintf(side, sizeof side, "%s-wal", tmp);
+    unlink(side);
+    snprintf(side, sizeof side, "%s-shm", tmp);
+    unlink(side);
+    return rc;
 }
 
 /* quick_check and the audit-row count of the copy. */
@@ -61,26 +86,21 @@ int fxl_backup(fxl_ctx *ctx, fxl_backup_report *out, const char *dest_path)
     sqlite3 *dst = NULL;
     sqlite3_backup *b = NULL;
     cJSON *audit = NULL;
-    struct stat st;
-    int rc, src_rc, fd, created = 0, reading = 0, busy_run = 0;
+    fxl_outfile o = FXL_OUTFILE_INIT;
+    int rc, src_rc, reading = 0, busy_run = 0, committed = 0;
 
     memset(out, 0, sizeof *out);
     if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "backing up the database")) != 0)
         return rc;
     if (!dest_path || !*dest_path)
         return fxl_fail(ctx, FXL_EINVAL, "a file name for the backup is required");
-    if (lstat(dest_path, &st) == 0)
-        return fxl_fail(ctx, FXL_ECONFLICT, "backup file '%s' already exists; choose a new name",
-                        dest_path);
-    /* Reserve the name atomically: a file appearing meanwhile is not overwritten. */
-    fd = open(dest_path, O_WRONLY | O_CREAT | O_EXCL, 0600);
-    if (fd < 0)
-        return fxl_fail(ctx, errno == EEXIST ? FXL_ECONFLICT : FXL_EIO,
-                        "cannot create backup file '%s': %s", dest_path, strerror(errno));
-    close(fd);
-    created = 1;
+    /* Into a temporary file beside the target (O_EXCL|O_NOFOLLOW, 0600),
+     * renamed onto the name only once the copy has been checked: a killed
+     * or failed backup leaves no file under the name asked for. */
+    if ((rc = fxl_outfile_open(&o, ctx, dest_path, FXL_OUT_NO_STDIO)) != 0)
+        return rc;
 
-    if (sqlite3_open_v2(dest_path, &dst, SQLITE_OPEN_READWRITE, NULL) != SQLITE_OK) {
+    if (sqlite3_open_v2(o.tmp, &dst, SQLITE_OPEN_READWRITE, NULL) != SQLITE_OK) {
         rc = fxl_fail(ctx, FXL_EIO, "cannot open backup file '%s': %s", dest_path,
                       dst ? sqlite3_errmsg(dst) : "out of memory");
         goto cleanup;
@@ -134,6 +154,11 @@ int fxl_backup(fxl_ctx *ctx, fxl_backup_report *out, const char *dest_path)
         goto cleanup;
     }
     dst = NULL;
+    if ((rc = verify_copy(ctx, o.tmp, dest_path)) != 0)
+        goto cleanup;
+    if ((rc = fxl_outfile_commit(&o, ctx)) != 0)
+        goto cleanup;
+    committed = 1;
 
     /* Who copied the record where: audited in the source. */
     if ((rc = fxl_begin(ctx)) != 0)
@@ -152,8 +177,11 @@ cleanup:
         fxl_exec(ctx, "ROLLBACK");
     if (dst)
         sqlite3_close(dst);
-    if (rc != 0 && created)
-        remove_copy(dest_path);
+    if (o.created)
+        remove_copy(o.tmp);
+    if (rc != 0 && committed)
+        remove_copy(dest_path);   /* no copy without its audit row in the source */
+    fxl_outfile_abort(&o);
     cJSON_Delete(audit);
     return rc;
 }

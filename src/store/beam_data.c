@@ -11,6 +11,7 @@
 
 #include <sodium.h>
 
+#include "fxl/number.h"
 #include "fxl/audit.h"
 #include "fxl/beam_data.h"
 #include "fxl/beam_json.h"
@@ -359,9 +360,8 @@ int fxl_model_crosscheck_level(fxl_ctx *ctx, double *out_pct)
         return 0;
     if (rc != 0)
         return rc;
-    errno = 0;
-    v = strtod(buf, &end);
-    if (end == buf || *end != '\0' || errno != 0 || !isfinite(v) || !(v > 0) || v > 50)
+    (void)end;
+    if (fxl_number_parse(&v, buf, 0) != FXL_NUM_OK || !(v > 0) || v > 50)
         return fxl_fail(ctx, FXL_EINVAL,
                         "stored setting 'model_crosscheck_pct' value '%s' must be a number > 0 and <= 50 %%",
                         buf);

@@ -1,12 +1,14 @@
 /* Opening an fxledger database: connection settings, identity and version
  * checks, migrations; plus the acting user, transactions, clock and settings. */
 #include <errno.h>
+#include <fcntl.h>
 #include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
 #include <time.h>
+#include <unistd.h>
 
 #include "fxl/auth.h"
 #include "store/audit.h"
@@ -138,19 +140,29 @@ int fxl_open(fxl_ctx **out, const char *path, int flags)
 {
     fxl_ctx *ctx;
     struct stat st;
-    int sqlflags, rc, app_id = 0, version = 0, empty = 0;
+    int sqlflags, rc, fd, app_id = 0, version = 0, empty = 0;
 
     *out = ctx = calloc(1, sizeof *ctx);
     if (!ctx)
         return FXL_EIO;
     ctx->readonly = (flags & FXL_OPEN_READONLY) != 0;
 
-    if (stat(path, &st) != 0) {
-        if (!(flags & FXL_OPEN_CREATE))
-            return fxl_fail(ctx, FXL_EIO,
-                            "database '%s' does not exist (create it with 'fxledger init')", path);
-    } else if (flags & FXL_OPEN_CREATE) {
-        return fxl_fail(ctx, FXL_ECONFLICT, "database '%s' already exists", path);
+    if ((flags & FXL_OPEN_CREATE) && strcmp(path, ":memory:") != 0 && path[0]) {
+        /* lstat: a dangling symlink is a path that exists, never followed to
+         * create a file elsewhere. The new file is ours and 0600 before
+         * SQLite opens it (its -wal and -shm take the same mode). */
+        if (lstat(path, &st) == 0)
+            return fxl_fail(ctx, FXL_ECONFLICT, "database '%s' already exists%s", path,
+                            S_ISLNK(st.st_mode) ? " (as a symbolic link; name a new file)" : "");
+        fd = open(path, O_RDWR | O_CREAT | O_EXCL | O_NOFOLLOW | O_CLOEXEC, 0600);
+        if (fd < 0)
+            return fxl_fail(ctx, errno == EEXIST ? FXL_ECONFLICT : FXL_EIO,
+                            "cannot create database '%s': %s", path, strerror(errno));
+        fchmod(fd, 0600);
+        close(fd);
+    } else if (!(flags & FXL_OPEN_CREATE) && stat(path, &st) != 0) {
+        return fxl_fail(ctx, FXL_EIO,
+                        "database '%s' does not exist (create it with 'fxledger init')", path);
     }
 
     sqlflags = ctx->readonly ? SQLITE_OPEN_READONLY

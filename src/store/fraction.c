@@ -482,6 +482,9 @@ int fxl_fraction_log_field(fxl_ctx *ctx, fxl_record_result *out, int64_t fractio
     if (rc != 0)
         return rc;
 
+    /* A plan change imported while the reading was typed is seen here. */
+    if ((rc = rec_check_plan_and_time(ctx, &plan, row.number, row.treated_at)) != 0)
+        return rc;
     temp_entered = !isnan(e->temp_c);
     temp_c = temp_entered ? e->temp_c : settings.skin_temp_c;
     if ((rc = rec_load_inputs(ctx, &in, &plan, field_id, detector_id, row.treated_at, row.number)) != 0)
@@ -492,7 +495,8 @@ int fxl_fraction_log_field(fxl_ctx *ctx, fxl_record_result *out, int64_t fractio
     fxl_now(ctx, now);
     if ((rc = fxl_begin(ctx)) != 0)
         goto cleanup;
-    if ((rc = rec_insert_measurement(ctx, &in, row.id, now)) != 0 ||
+    if ((rc = rec_check_plan_and_time(ctx, &plan, row.number, row.treated_at)) != 0 ||
+        (rc = rec_insert_measurement(ctx, &in, row.id, now)) != 0 ||
         (rc = rec_open_review_item(ctx, &in, &plan, row.number, now)) != 0 ||
         (rc = fxl_rules_after_record(ctx, row.id)) != 0 || (rc = fxl_commit(ctx)) != 0) {
         fxl_rollback(ctx);

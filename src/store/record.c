@@ -12,6 +12,7 @@
 #include "store/record_int.h"
 #include "store/rules_hook.h"
 #include "store/stmt.h"
+#include "store/worklist_int.h"
 
 void fxl_reading_entry_init(fxl_reading_entry *e)
 {
@@ -483,6 +484,20 @@ int fxl_record_fraction(fxl_ctx *ctx, fxl_record_result *out, const fxl_record_r
         (rc = rec_load_plan(ctx, &plan, req->mrn, req->plan)) != 0)
         return rc;
 
+    /* A fraction begun field by field is finished field by field (fxl/fraction.h):
+     * never a second fraction beside it, never readings written around it. */
+    {
+        int64_t open_id = 0;
+        int open_number = 0;
+        char open_at[FXL_TIME_LEN];
+        if ((rc = wl_open_fraction(ctx, &open_id, &open_number, open_at, plan.plan_id)) != 0)
+            return rc;
+        if (open_id && (req->fraction == 0 || req->fraction == open_number))
+            return fxl_fail(ctx, FXL_ECONFLICT,
+                            "fraction %d of plan '%s' was begun field by field (treated %s) and is "
+                            "still open: go on with 'fxledger record --patient %s --interactive'",
+                            open_number, plan.label, open_at, plan.mrn);
+    }
     number = req->fraction;
     if (number == 0) {
         number = plan.highest_logged + 1;

@@ -8,6 +8,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "fxl/number.h"
 #include "fxl/thresholds.h"
 #include "store/grow.h"
 #include "store/record_int.h"
@@ -229,9 +230,8 @@ static int setting_double(fxl_ctx *ctx, double *out, const char *key, double fal
     }
     if (rc != 0)
         return rc;
-    errno = 0;
-    v = strtod(buf, &end);
-    if (errno != 0 || end == buf || *end != '\0' || !isfinite(v) || v < lo || v > hi)
+    (void)end;
+    if (fxl_number_parse(&v, buf, 0) != FXL_NUM_OK || v < lo || v > hi)
         return fxl_fail(ctx, FXL_EINVAL,
                         "setting '%s' value '%s' is not usable: must be %g to %g %s (ask a physicist "
                         "to fix it with 'fxledger setting set')",

@@ -8,6 +8,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "fxl/number.h"
 #include "fxl/rules.h"
 #include "store/grow.h"
 #include "store/review_store.h"
@@ -29,9 +30,8 @@ static int setting_number(fxl_ctx *ctx, double *out, const char *key, double fal
     }
     if (rc != 0)
         return rc;
-    errno = 0;
-    v = strtod(text, &end);
-    if (errno != 0 || end == text || *end != '\0' || !isfinite(v) || (whole && v != floor(v)) ||
+    (void)end;
+    if (fxl_number_parse(&v, text, 0) != FXL_NUM_OK || (whole && v != floor(v)) ||
         v < lo || v > hi)
         return fxl_fail(ctx, FXL_EINVAL,
                         "setting '%s' value '%s' must be a %s %g to %g %s (see docs/rules.md)", key,

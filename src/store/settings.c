@@ -11,6 +11,7 @@
 #include "fxl/review.h"
 #include "fxl/rules.h"
 #include "fxl/settings.h"
+#include "fxl/number.h"
 #include "store/grow.h"
 #include "store/stmt.h"
 
@@ -157,9 +158,8 @@ int fxl_setting_validate(fxl_ctx *ctx, const char *key, const char *value)
         break;
     case KIND_NUMBER:
     case KIND_INT:
-        errno = 0;
-        v = strtod(value, &end);
-        if (len == 0 || errno != 0 || *end != '\0' || !isfinite(v) ||
+        (void)end;
+        if (len == 0 || fxl_number_parse(&v, value, 0) != FXL_NUM_OK ||
             (r->kind == KIND_INT && v != floor(v)))
             return fxl_fail(ctx, FXL_EINVAL, "setting '%s' value '%s' is not a %s (%s)", key, value,
                             r->kind == KIND_INT ? "whole number" : "number", r->def.accepts);

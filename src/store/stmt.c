@@ -52,6 +52,41 @@ static void check_bind(fxl_stmt *s, int rc)
         s->err = fxl_db_fail(s->ctx, "binding a value");
 }
 
+/* Parameters that hold identifiers: they must be unambiguous on screen and
+ * on paper (fxl_text_identifier_check). Every other text is a name or a note
+ * (fxl_text_name_check), except stored documents and JSON. */
+static const char *const identifier_params[] = {
+    ":mrn", ":serial", ":login", ":label", ":name", ":machine", ":beam", NULL};
+static const char *const document_params[] = {
+    ":content", ":data", ":readings", ":reasons", ":model_factors", ":value", ":summary", NULL};
+
+static int in_list(const char *const *list, const char *name)
+{
+    for (; *list; list++)
+        if (strcmp(*list, name) == 0)
+            return 1;
+    return 0;
+}
+
+static int check_text(fxl_stmt *s, const char *name, const char *value)
+{
+    const char *why = NULL;
+    long at = 0;
+    const char *field = name[0] == ':' ? name + 1 : name;
+
+    if (in_list(document_params, name))
+        return 0;
+    if (!in_list(identifier_params, name) && (at = fxl_text_bidi_at(value)) >= 0)
+        why = "contains a bidirectional control character";
+    if (why || (in_list(identifier_params, name) && fxl_text_identifier_check(value, &why, &at) != 0)) {
+        s->err = fxl_fail(s->ctx, FXL_EINVAL, "%s %s (at byte %ld); text must show as it is stored: "
+                          "no invisible, bidirectional or edge-space characters in identifiers; nothing written",
+                          field, why, at + 1);
+        return -1;
+    }
+    return 0;
+}
+
 void fxl_stmt_bind_text(fxl_stmt *s, const char *name, const char *value)
 {
     int i = param_index(s, name);
@@ -64,6 +99,8 @@ void fxl_stmt_bind_text(fxl_stmt *s, const char *name, const char *value)
                           "nothing written", name[0] == ':' ? name + 1 : name, bad + 1);
         return;
     }
+    if (i && value && !s->err && check_text(s, name, value) != 0)
+        return;
     if (i)
         check_bind(s, value ? sqlite3_bind_text(s->st, i, value, -1, SQLITE_TRANSIENT)
                             : sqlite3_bind_null(s->st, i));

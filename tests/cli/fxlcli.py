@@ -104,10 +104,14 @@ class Fxl:
 
     def argv(self, *args, user=None, password_fd=None):
         """The command line of a call as `user` (global options first)."""
-        a = [self.bin, "--db", self.db, "--user", user or self.user]
+        args = [str(x) for x in args]
+        # A test that names another database ("--db", COPY) runs on that one:
+        # fxledger refuses a global option given twice.
+        lead = [] if "--db" in args or any(x.startswith("--db=") for x in args) else ["--db", self.db]
+        a = [self.bin] + lead + ["--user", user or self.user]
         if password_fd is not None:
             a += ["--password-fd", str(password_fd)]
-        return a + [str(x) for x in args]
+        return a + args
 
     def exec(self, args, user, now, stdin=None, env=None, password_lines=None):
         """One call with the password pipe holding password_lines (a list of

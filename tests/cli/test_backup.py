@@ -58,7 +58,7 @@ class BackupTest(ReviewCase):
                                   expect_in="backing up the database needs the role physicist or admin")
         self.assertFalse(os.path.exists(target))
         self.assertFailsUnchanged("backup", self.fx.path("no/such/dir/x.db"), user="phys", expect_code=3,
-                                  expect_in="cannot create backup file")
+                                  expect_in="directory '%s' does not exist" % self.fx.path("no/such/dir"))
         r = self.fx.run("backup", user="phys")
         self.assertEqual(r.returncode, 1)
 

@@ -270,14 +270,14 @@ class PatientReportTest(ReportTestCase):
         other = self.fx.path("again.pdf")
         self.report("patient", "MRN-1001", "--out", other)
         self.assertEqual(sha(other), first)
-        # FXLEDGER_NOW fixes the clock the same way
-        r = self.fx.run("report", "patient", "MRN-1001", "--out", other, now=self.GEN)
+        # FXLEDGER_NOW fixes the clock the same way (--force: the file exists)
+        r = self.fx.run("report", "patient", "MRN-1001", "--out", other, "--force", now=self.GEN)
         self.assertEqual(r.returncode, 0, r.stderr)
         self.assertQpdfOk(other)
         self.assertEqual(sha(other), first)
-        self.report("month", "2026-10", "--out", self.out)
+        self.report("month", "2026-10", "--out", self.out, "--force")
         first = sha(self.out)
-        self.report("month", "2026-10", "--out", other)
+        self.report("month", "2026-10", "--out", other, "--force")
         self.assertEqual(sha(other), first)
 
     def test_plan_option_and_unknown_subjects(self):
