@@ -82,7 +82,9 @@ int cmd_login(cli_env *env, int argc, char **argv)
     rc = fxl_auth_login(env->ctx, login, pw, npw[0] ? npw : NULL, cli_client(), token, &si);
     if (rc == FXL_EEXPIRED && !npw[0]) {
         fprintf(stderr, "fxledger: %s\n", fxl_errmsg(env->ctx));
-        if (read_new_password(env, login, npw) != 0) {
+        if (read_new_password(env, login, npw) != 0 || !npw[0]) {
+            if (!npw[0])
+                cli_error("no new password given: not logged in");
             code = CLI_EXIT_PERM;
             goto cleanup;
         }

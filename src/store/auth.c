@@ -748,6 +748,49 @@ static int material_for_change(fxl_ctx *ctx, pw_material *m, const account *a,
     return make_material(ctx, m, new_password, NULL, 0);
 }
 
+/* A database made before identities has users but no password at all:
+ * nobody could log in. Its first admin to log in chooses a password then
+ * (new_password), which makes their key pair. Whoever can run this can
+ * write the file anyway (docs/security.md, the honest limit). Returns 1
+ * when this does not apply, else 0 or an error code. */
+static int first_admin_password(fxl_ctx *ctx, const char *login, const char *new_password,
+                                const fxl_client *client, int open_session, char *token_out,
+                                fxl_session_info *out, fxl_identity *ident)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    pw_material *m = NULL;
+    account a;
+    int64_t passwords = -1;
+    int rc;
+
+    if ((rc = load_account_where(ctx, login && *login ? login : "", -1, &a)) != 0)
+        return rc;
+    if (!a.found || a.has_password || !a.active || !(a.role & FXL_ROLE_ADMIN))
+        return 1;
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT count(*) FROM auth_passwords")) != 0)
+        return rc;
+    if ((rc = fxl_stmt_step(&s)) == 1)
+        passwords = fxl_stmt_int(&s, 0);
+    fxl_stmt_finalize(&s);
+    if (rc < 0)
+        return rc;
+    if (passwords != 0)
+        return 1;
+    if (!new_password)
+        return fxl_fail(ctx, FXL_EEXPIRED,
+                        "this database was made before logins and has no password yet: admin '%s' "
+                        "chooses the first one now ('fxledger login --new-password')", a.login);
+    if ((rc = fxl_password_policy_check(ctx, a.login, new_password)) != 0)
+        return rc;
+    if (!(m = sodium_malloc(sizeof *m)))
+        return fxl_fail(ctx, FXL_EIO, "out of memory");
+    if ((rc = make_material(ctx, m, new_password, NULL, 0)) == 0 &&
+        (rc = authenticated(ctx, &a, m, open_session, client, token_out, out)) == 0)
+        fill_identity(ident, &a);
+    sodium_free(m);
+    return rc;
+}
+
 static int do_login(fxl_ctx *ctx, const char *login, const char *password, const char *new_password,
                     const fxl_client *client, int open_session, char *token_out,
                     fxl_session_info *out, fxl_identity *ident)
@@ -758,6 +801,9 @@ static int do_login(fxl_ctx *ctx, const char *login, const char *password, const
 
     if (ctx->readonly)
         return fxl_fail(ctx, FXL_EDB, "internal: logging in needs a read-write database");
+    if ((rc = first_admin_password(ctx, login, new_password, client, open_session, token_out, out,
+                                   ident)) != 1)
+        return rc;
     if ((rc = check_password(ctx, login, password, &a, open_session ? "login" : "command", client)) != 0)
         return rc;
     if (a.must_change && !new_password)

@@ -51,7 +51,12 @@ def invented_password(login):
 
 
 def epoch(iso):
-    return calendar.timegm(time.strptime(iso, "%Y-%m-%dT%H:%M:%SZ"))
+    """Seconds of a fixed-clock time; the real clock for a value the program
+    itself refuses as a fixed clock (it then uses the real time)."""
+    try:
+        return calendar.timegm(time.strptime(iso, "%Y-%m-%dT%H:%M:%SZ"))
+    except (ValueError, TypeError):
+        return int(time.time())
 
 
 class Fxl:
@@ -260,6 +265,7 @@ class Fxl:
                                    "session": dict(self.sessions["admin"])}
             return self
         shutil.copyfile(t["db"], self.db)
+        os.chmod(self.db, 0o600)          # as init made it
         self.passwords["admin"] = t["password"]
         self._write_session("admin", t["token"])
         self.sessions["admin"] = dict(t["session"])
