@@ -413,6 +413,9 @@ def reports():
     month_pdf = os.path.join(OUT, "month-2026-11.pdf")
     run("report", "patient", "DEMO-1002", "--out", patient_pdf, "--generated-at", gen,
         user="qaudit", now=gen, show=True)
+    for mrn in ("DEMO-1001", "DEMO-1003"):   # midline pairs; an amendment and a closed review
+        run("report", "patient", mrn, "--out", os.path.join(OUT, "patient-%s.pdf" % mrn),
+            "--generated-at", gen, user="qaudit", now=gen, show=True)
     run("report", "month", "2026-11", "--out", month_pdf, "--generated-at", gen,
         user="qaudit", now=gen, show=True)
     stats_pdf = os.path.join(OUT, "stats-2026-11.pdf")

@@ -6,8 +6,11 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/table.h"
+#include "fxl/fraction.h"
 #include "cli/json_put.h"
 #include "cli/midline_view.h"
+#include "cli/record_view.h"
 #include "fxl/record.h"
 
 static void num(char *buf, size_t size, double v, const char *fmt, const char *unit)
@@ -137,29 +140,66 @@ int cmd_history(cli_env *env, int argc, char **argv)
         free(rows);
         return CLI_EXIT_OK;
     }
-    printf("%-6s %-16s %-12s %-4s %-10s %-9s %-10s %-13s %-11s %-11s %-9s %-20s %s\n", "id",
-           "treated (UTC)", "plan", "fx", "field", "point", "detector", "reading", "corrected",
-           "expected", "deviation", "verdict", "note");
-    for (i = 0; i < n; i++) {
-        const fxl_history_row *r = &rows[i];
-        char id[16], when[20], reading[32], dose[20], expected[20], dev[16], note[96] = "";
+    {
+        static const char *const head[] = {"#", "date", "plan", "fx", "field", "pt", "detector",
+                                           "reading", "cGy", "exp.", "dev %", "verdict", NULL};
+        cli_table t;
 
-        snprintf(id, sizeof id, "#%lld", (long long)r->measurement_id);
-        snprintf(when, sizeof when, "%.10s %.5s", r->treated_at, r->treated_at + 11);
-        num(reading, sizeof reading, r->reading, "%.3f", r->reading_unit);
-        num(dose, sizeof dose, r->corrected_dose_cgy, "%.1f", "cGy");
-        num(expected, sizeof expected, r->expected_dose_cgy, "%.1f", "cGy");
-        num(dev, sizeof dev, r->deviation_pct, "%+.2f", "%");
-        if (r->superseded_by)
-            snprintf(note, sizeof note, "superseded by #%lld", (long long)r->superseded_by);
-        if (r->supersedes_id) {
-            size_t used = strlen(note);
-            snprintf(note + used, sizeof note - used, "%samends #%lld: %.40s", used ? "; " : "",
-                     (long long)r->supersedes_id, r->amend_reason);
+        int one_plan = 1;
+        for (i = 1; i < n; i++)
+            if (strcmp(rows[i].plan, rows[0].plan) != 0)
+                one_plan = 0;
+        if (one_plan)
+            printf("Plan '%s':\n", rows[0].plan);
+        cli_table_init(&t, head);
+        t.right[0] = t.right[3] = t.right[7] = t.right[8] = t.right[9] = t.right[10] = 1;
+        t.gap = 1;
+        for (i = 0; i < n; i++) {
+            const fxl_history_row *r = &rows[i];
+            char id[16], when[48], reading[32], dose[20], expected[20], dev[16], fx[12];
+            const char *cells[12];
+
+            snprintf(id, sizeof id, "#%lld", (long long)r->measurement_id);
+            fxl_time_show_local(env->ctx, when, sizeof when, r->treated_at);
+            when[10] = '\0';   /* the local date; times with their offset: --json, queue show */
+            num(reading, sizeof reading, r->reading, "%.3f", r->reading_unit);
+            num(dose, sizeof dose, r->corrected_dose_cgy, "%.1f", NULL);
+            num(expected, sizeof expected, r->expected_dose_cgy, "%.1f", NULL);
+            num(dev, sizeof dev, r->deviation_pct, "%+.2f", NULL);
+            snprintf(fx, sizeof fx, "%d", r->fraction_number);
+            cells[0] = id;
+            cells[1] = when;
+            cells[2] = one_plan ? "" : r->plan;   /* an empty column is left out */
+            cells[3] = fx;
+            cells[4] = r->field;
+            cells[5] = strcmp(r->point, "entrance") == 0 ? "ent" : r->point;
+            cells[6] = r->detector;
+            cells[7] = reading;
+            cells[8] = dose;
+            cells[9] = expected;
+            cells[10] = dev;
+            cells[11] = cli_verdict_short(r->verdict);
+            cli_table_add(&t, cells);
         }
-        printf("%-6s %-16s %-12s %-4d %-10s %-9s %-10s %-13s %-11s %-11s %-9s %-20s %s\n", id, when,
-               r->plan, r->fraction_number, r->field, r->point, r->detector, reading, dose, expected, dev,
-               fxl_verdict_label(r->verdict), note);
+        cli_table_print(stdout, &t, CLI_WIDTH, 0);
+        cli_table_release(&t);
+        /* Amendments under the table, wrapped: a reason can be long. */
+        for (i = 0; i < n; i++) {
+            const fxl_history_row *r = &rows[i];
+            char note[700] = "", lead[24];
+            if (r->superseded_by)
+                snprintf(note, sizeof note, "superseded by #%lld", (long long)r->superseded_by);
+            if (r->supersedes_id) {
+                size_t used = strlen(note);
+                snprintf(note + used, sizeof note - used, "%samends #%lld: %s", used ? "; " : "",
+                         (long long)r->supersedes_id, r->amend_reason);
+            }
+            if (!note[0])
+                continue;
+            snprintf(lead, sizeof lead, "#%lld: ", (long long)r->measurement_id);
+            cli_wrap_hang(stdout, lead, 4, note, CLI_WIDTH);
+        }
+
     }
     printf("\n%zu measurement%s.\n", n, n == 1 ? "" : "s");
     cli_midline_print(pairs, n_pairs, 1);

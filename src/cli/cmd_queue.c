@@ -11,6 +11,8 @@
 #include "cli/cli.h"
 #include "cli/session.h"
 #include "cli/signature_view.h"
+#include "cli/table.h"
+#include "fxl/fraction.h"
 #include "cli/json_put.h"
 #include "fxl/review.h"
 #include "fxl/rules.h"
@@ -189,19 +191,30 @@ static int queue_list(cli_env *env, int argc, char **argv)
         else
             snprintf(state, sizeof state, "%s", it->status);
         subject_line(subject, sizeof subject, it);
-        printf("%s#%-5lld %-8s%s  %-12s  %-20s opened %.10s (%ld day%s)\n",
-               severity_color(env, it->severity), (long long)it->id,
-               fxl_severity_name(it->severity), cli_color(env, CLI_RESET), state, it->rule,
-               it->opened_at, it->age_days, it->age_days == 1 ? "" : "s");
-        if (subject[0])
-            printf("        %s\n", subject);
-        printf("        %s\n", it->summary);
-        if (it->last_event[0] && strcmp(it->last_event, "open") != 0)
-            printf("        last: %s by %s at %s\n", it->last_event, it->last_event_by,
-                   it->last_event_at);
-        if (it->superseded_by)
-            printf("        reading superseded by measurement #%lld (see 'fxledger queue show %lld')\n",
-                   (long long)it->superseded_by, (long long)it->id);
+        {
+            /* 80 columns: the first line is short, the rest wrapped under it */
+            char line[1400], when[48];
+            fxl_time_show_local(env->ctx, when, sizeof when, it->opened_at);
+            printf("%s#%-5lld %-8s%s ", severity_color(env, it->severity), (long long)it->id,
+                   fxl_severity_name(it->severity), cli_color(env, CLI_RESET));
+            snprintf(line, sizeof line, "%s, %s, opened %.10s (%ld day%s)", state, it->rule, when,
+                     it->age_days, it->age_days == 1 ? "" : "s");
+            cli_wrap_hang(stdout, "", 16, line, CLI_WIDTH - 16);
+            if (subject[0])
+                cli_wrap(stdout, "        ", subject, CLI_WIDTH);
+            cli_wrap(stdout, "        ", it->summary, CLI_WIDTH);
+            if (it->last_event[0] && strcmp(it->last_event, "open") != 0) {
+                fxl_time_show_local(env->ctx, when, sizeof when, it->last_event_at);
+                snprintf(line, sizeof line, "last: %s by %s at %s", it->last_event, it->last_event_by,
+                         when);
+                cli_wrap(stdout, "        ", line, CLI_WIDTH);
+            }
+            if (it->superseded_by) {
+                snprintf(line, sizeof line, "reading superseded by measurement #%lld (see 'fxledger "
+                         "queue show %lld')", (long long)it->superseded_by, (long long)it->id);
+                cli_wrap(stdout, "        ", line, CLI_WIDTH);
+            }
+        }
         if (i + 1 < n)
             printf("\n");
     }

@@ -59,7 +59,7 @@ static void num(char *buf, size_t size, double v, const char *fmt, const char *u
 }
 
 /* The short verdict of the table; the full label and guidance follow it. */
-static const char *short_verdict(fxl_verdict v)
+const char *cli_verdict_short(fxl_verdict v)
 {
     switch (v) {
     case FXL_VERDICT_WITHIN: return "within tol.";
@@ -131,7 +131,7 @@ void cli_record_print_with(const cli_env *env, const fxl_record_result *r,
         num(dose, sizeof dose, implausible ? NAN : m->corrected_dose_cgy, "%.1f", NULL);
         num(expected, sizeof expected, m->expected_dose_cgy, "%.1f", NULL);
         num(dev, sizeof dev, implausible ? NAN : m->deviation_pct, "%+.2f", "%");
-        snprintf(verdict, sizeof verdict, "%s%s", short_verdict(m->verdict), m->escalated ? " esc." : "");
+        snprintf(verdict, sizeof verdict, "%s%s", cli_verdict_short(m->verdict), m->escalated ? " esc." : "");
         cells[0] = id;
         cells[1] = m->field;
         cells[2] = strcmp(m->point, "entrance") == 0 ? "ent" : m->point;

@@ -9,6 +9,9 @@
 #include "fxl/record.h"
 #include "fxl/worklist.h"
 
+/* The verdict in at most 13 characters for tables ("within tol.", "ACTION LEVEL"). */
+const char *cli_verdict_short(fxl_verdict v);
+
 /* CLI_EXIT_ACTION / TOLERANCE / NOT_EVALUABLE for the worst result, else 0. */
 int cli_record_exit_code(const fxl_record_result *r);
 

@@ -87,6 +87,7 @@ void cli_wrap_hang(FILE *out, const char *first, int hang, const char *text, int
 void cli_table_init(cli_table *t, const char *const *head)
 {
     memset(t, 0, sizeof *t);
+    t->gap = 2;
     while (head[t->ncol] && t->ncol < CLI_TABLE_COLS) {
         t->head[t->ncol] = head[t->ncol];
         t->ncol++;
@@ -140,33 +141,51 @@ static void pad(FILE *out, const char *s, size_t w, int right, int last)
 
 void cli_table_print(FILE *out, const cli_table *t, int width, int indent)
 {
-    size_t w[CLI_TABLE_COLS], total = 0, i, r, headw = 0;
+    size_t w[CLI_TABLE_COLS], total = 0, i, r, headw = 0, shown = 0;
+    int used[CLI_TABLE_COLS], gap = t->gap > 0 ? t->gap : 1, first;
 
     for (i = 0; i < t->ncol; i++) {
+        used[i] = 0;
         w[i] = cli_text_width(t->head[i]);
         for (r = 0; r < t->nrow; r++) {
-            size_t n = cli_text_width(t->cells[r * t->ncol + i]);
+            const char *v = t->cells[r * t->ncol + i];
+            size_t n = cli_text_width(v);
+            if (*v)
+                used[i] = 1;
             if (n > w[i])
                 w[i] = n;
         }
-        total += w[i] + (i ? 2 : 0);
+        if (!used[i])
+            continue;
+        total += w[i] + (shown ? (size_t)gap : 0);
+        shown++;
         if (cli_text_width(t->head[i]) > headw)
             headw = cli_text_width(t->head[i]);
     }
     if (total + (size_t)indent <= (size_t)width) {
+        size_t last = 0;
+        for (i = 0; i < t->ncol; i++)
+            if (used[i])
+                last = i;
         fprintf(out, "%*s", indent, "");
-        for (i = 0; i < t->ncol; i++) {
-            if (i)
-                fputs("  ", out);
-            pad(out, t->head[i], w[i], t->right[i], i + 1 == t->ncol);
+        for (i = 0, first = 1; i < t->ncol; i++) {
+            if (!used[i])
+                continue;
+            if (!first)
+                fprintf(out, "%*s", gap, "");
+            first = 0;
+            pad(out, t->head[i], w[i], t->right[i], i == last);
         }
         fputc('\n', out);
         for (r = 0; r < t->nrow; r++) {
             fprintf(out, "%*s", indent, "");
-            for (i = 0; i < t->ncol; i++) {
-                if (i)
-                    fputs("  ", out);
-                pad(out, t->cells[r * t->ncol + i], w[i], t->right[i], i + 1 == t->ncol);
+            for (i = 0, first = 1; i < t->ncol; i++) {
+                if (!used[i])
+                    continue;
+                if (!first)
+                    fprintf(out, "%*s", gap, "");
+                first = 0;
+                pad(out, t->cells[r * t->ncol + i], w[i], t->right[i], i == last);
             }
             fputc('\n', out);
         }
@@ -177,13 +196,13 @@ void cli_table_print(FILE *out, const cli_table *t, int width, int indent)
         if (r)
             fputc('\n', out);
         for (i = 0; i < t->ncol; i++) {
-            char first[64];
+            char lead[96];
             const char *v = t->cells[r * t->ncol + i];
             if (!*v)
                 continue;
-            snprintf(first, sizeof first, "%*s%s%s:%*s ", indent, "", i == 0 ? "" : "  ",
+            snprintf(lead, sizeof lead, "%*s%s%s:%*s ", indent, "", i == 0 ? "" : "  ",
                      t->head[i], (int)(headw - cli_text_width(t->head[i])), "");
-            cli_wrap(out, first, v, width);
+            cli_wrap(out, lead, v, width);
         }
     }
 }

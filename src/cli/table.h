@@ -16,6 +16,7 @@ typedef struct cli_table {
     size_t ncol;
     const char *head[CLI_TABLE_COLS];
     int right[CLI_TABLE_COLS];      /* 1: right-aligned (numbers) */
+    int gap;                        /* spaces between columns (init: 2) */
     size_t nrow, cap;
     char **cells;                   /* nrow * ncol strings, heap */
 } cli_table;
@@ -25,7 +26,8 @@ void cli_table_init(cli_table *t, const char *const *head);
 /* Appends a row of ncol strings (copied). Returns -1 when out of memory. */
 int cli_table_add(cli_table *t, const char *const *cells);
 /* Prints the table: columns as wide as their widest cell, two spaces apart;
- * when that is wider than `width`, each row becomes a block of
+ * a column empty in every row is left out; when that is wider than
+ * `width`, each row becomes a block of
  * "heading: value" lines instead (values wrapped at words). Every line
  * starts with `indent` spaces. */
 void cli_table_print(FILE *out, const cli_table *t, int width, int indent);

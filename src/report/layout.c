@@ -2,6 +2,7 @@
  * TrueType fonts and UTF-8 text, running header and footer, text measuring,
  * wrapping and cutting, boxes and lines, number formatting. */
 #include "report/layout.h"
+#include "report/tounicode.h"
 
 #include <errno.h>
 #include <math.h>
@@ -66,6 +67,9 @@ int rpt_doc_init(rpt_doc *d, fxl_ctx *ctx, const char *font_dir, int landscape)
     if (!d->font || !d->bold || d->hpdf_error)
         return fxl_fail(ctx, FXL_EIO, "cannot load the report fonts from '%s' (PDF library error 0x%04lX)",
                         font_dir, d->hpdf_error);
+    /* libharu's own ToUnicode stream is an encoding CMap (report/tounicode.h) */
+    if (rpt_tounicode_fix(d->font) != 0 || rpt_tounicode_fix(d->bold) != 0)
+        return fxl_fail(ctx, FXL_EIO, "cannot write the text map of the report fonts");
     d->page_w = landscape ? RPT_A4_LONG : RPT_A4_SHORT;
     d->page_h = landscape ? RPT_A4_SHORT : RPT_A4_LONG;
     d->left = MARGIN_SIDE;
@@ -368,7 +372,7 @@ static int unit_follows(const char *s)
 const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text, double width,
                           char *out, size_t outsz)
 {
-    const char *p = text, *q, *brk = NULL, *brk_next = NULL, *end, *rest;
+    const char *p = text, *q, *brk = NULL, *brk_next = NULL, *hbrk = NULL, *end, *rest;
     double w = 0;
     size_t len;
 
@@ -394,6 +398,11 @@ const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text
             } else if (brk) {
                 end = brk;
                 rest = brk_next;
+            } else if (hbrk) {
+                /* no space on the line: a word too long alone, cut after
+                 * its last hyphen or slash rather than inside a letter run */
+                end = hbrk;
+                rest = hbrk;
             } else {
                 end = q;
                 rest = q;
@@ -406,9 +415,10 @@ const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text
             brk = q;
             brk_next = q + 1;
         } else if ((*q == '-' || *q == '/') && !(q[1] >= '0' && q[1] <= '9')) {
-            /* after a hyphen or slash, but never inside a number or a date */
-            brk = q + 1;
-            brk_next = q + 1;
+            /* after a hyphen or slash only when no space is left to break
+             * at (an identifier such as BR-R-1 is one word), never inside a
+             * number or a date */
+            hbrk = q + 1;
         }
         q += n;
     }
@@ -593,13 +603,23 @@ void rpt_fmt_cgy(char *out, size_t n, double v)
 
 void rpt_fmt_reading(char *out, size_t n, double v, const char *unit)
 {
-    double a = fabs(v);
-    int dec = a >= 1000 ? 0 : a >= 100 ? 1 : a >= 10 ? 2 : 3;
+    char num[40];
+    int p;
 
-    if (!isfinite(v))
+    if (!isfinite(v)) {
         snprintf(out, n, DASH);
-    else
-        snprintf(out, n, "%.*f %s", dec, v, unit && *unit ? unit : "");
+        return;
+    }
+    /* As entered: the fewest decimals that read back to the stored value,
+     * so 12.774 stays 12.774 and 20.1 is not padded to 20.100 (a typed
+     * decimal has far fewer than 15 significant digits; past 12 decimals
+     * the value was computed, not typed, and 12 are shown). */
+    for (p = 0; p <= 12; p++) {
+        snprintf(num, sizeof num, "%.*f", p, v);
+        if (strtod(num, NULL) == v)
+            break;
+    }
+    snprintf(out, n, "%s %s", num, unit && *unit ? unit : "");
 }
 
 const char *rpt_verdict_label(const char *verdict)

@@ -97,9 +97,10 @@ void rpt_text_rgb(rpt_doc *d, HPDF_Font f, double size, double r, double g, doub
 void rpt_fit(rpt_doc *d, HPDF_Font f, double size, const char *text, double width, char *out,
              size_t outsz);
 
-/* Takes the next line of at most `width` points from text: breaks at spaces,
- * after hyphens and slashes, inside a word only when the word alone is too
- * long, and at '\n'. Writes the line to out and returns the rest, or NULL
+/* Takes the next line of at most `width` points from text: breaks at spaces
+ * (never between a number and its unit), and at '\n'; a word too long for
+ * the line alone is broken after a hyphen or slash, else inside it. Writes
+ * the line to out and returns the rest, or NULL
  * when text holds nothing more to print. */
 const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text, double width,
                           char *out, size_t outsz);
@@ -151,7 +152,8 @@ void rpt_dash_line(rpt_doc *d, double x1, double y1, double x2, double y2, doubl
 void rpt_fmt_pct(char *out, size_t n, double v, int decimals, int sign);
 /* "201.3 cGy", an en dash for NaN. */
 void rpt_fmt_cgy(char *out, size_t n, double v);
-/* A reading with its unit and 4 to 5 significant figures, an en dash for NaN. */
+/* A reading with its unit, as entered (every digit: the shortest form that
+ * reads back to the stored value), an en dash for NaN. */
 void rpt_fmt_reading(char *out, size_t n, double v, const char *unit);
 /* People's words for a schema verdict name; the name itself if unknown. */
 const char *rpt_verdict_label(const char *verdict);

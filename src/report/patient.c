@@ -9,6 +9,7 @@
 #include "fxl/core.h"
 #include "fxl/report.h"
 #include "report/chart.h"
+#include "report/record_sections.h"
 #include "report/session.h"
 #include "report/table.h"
 #include "store/report_query.h"
@@ -42,6 +43,7 @@ typedef struct preport {
     int chart_col;
     double chart_top;
     char unmeasured[1024];
+    long temp_assumed;            /* rows of the plan whose temperature was not entered */
 } preport;
 
 static int is_level_verdict(int i)
@@ -166,7 +168,8 @@ static int on_measurement(void *arg, const fxl_rq_measurement *m)
 {
     preport *r = arg;
     pstats *st = &r->st;
-    char id[24], date[32], fx[16], reading[48], corr[32], exp[32], dev[32], amend[600];
+    char id[24], date[32], fx[16], reading[80], corr[32], exp[32], dev[32], amend[600];
+    char verdict[120];
     const char *cells[NMEAS_COLS], *disp;
     rpt_row_style style = {0, 0, 0};
     int vi = rpt_verdict_index(m->verdict);
@@ -175,6 +178,11 @@ static int on_measurement(void *arg, const fxl_rq_measurement *m)
     rpt_session_date(date, sizeof date, m->treated_at);
     snprintf(fx, sizeof fx, "%d", m->fraction);
     rpt_fmt_reading(reading, sizeof reading, m->reading, m->reading_unit);
+    if (m->temp_assumed) {
+        size_t l = strlen(reading);
+        snprintf(reading + l, sizeof reading - l, "\nT assumed");
+        r->temp_assumed++;
+    }
     /* An implausible entry is a probable typing or unit error, never shown
      * as a dose result (its arithmetic stays in the database). */
     int dose_result = strcmp(m->verdict, "implausible") != 0;
@@ -190,8 +198,8 @@ static int on_measurement(void *arg, const fxl_rq_measurement *m)
     if (m->superseded_by)
         snprintf(amend, sizeof amend, "superseded by %lld", (long long)m->superseded_by);
     else if (m->supersedes_id)
-        snprintf(amend, sizeof amend, "replaces %lld: %.500s", (long long)m->supersedes_id,
-                 m->amend_reason);
+        snprintf(amend, sizeof amend, "replaces %lld (reason under Amendments)",
+                 (long long)m->supersedes_id);
     cells[0] = id;
     cells[1] = date;
     cells[2] = fx;
@@ -202,7 +210,9 @@ static int on_measurement(void *arg, const fxl_rq_measurement *m)
     cells[7] = corr;
     cells[8] = exp;
     cells[9] = dev;
-    cells[10] = rpt_verdict_label(m->verdict);
+    snprintf(verdict, sizeof verdict, "%s%s", rpt_verdict_label(m->verdict),
+             rpt_is_escalated(m->reasons_json) ? " (escalated)" : "");
+    cells[10] = verdict;
     cells[11] = disp;
     cells[12] = amend;
     if (vi != 0)
@@ -406,15 +416,32 @@ static int on_plan_section(void *arg, const fxl_rq_plan *p)
         return 0;
     }
     snprintf(cap, sizeof cap, "Measurements, plan %s", p->label);
-    rpt_table_begin(&r->table, d, meas_cols, NMEAS_COLS, 7, 2, cap);
+    r->temp_assumed = 0;
+    rpt_table_begin(&r->table, d, meas_cols, NMEAS_COLS, 7, 3, cap);
     rc = fxl_rq_measurements_each(r->s->ctx, p->id, on_measurement, r);
     rpt_table_end(&r->table);
     if (rc != 0)
         return rc;
-    rpt_text(d, d->font, 7, 0.3, d->left, d->y - 7,
-             "Dates are local to the department. Fx: fraction number. Deviation = (corrected - "
-             "expected) / expected x 100 %. A dash marks a value that could not be computed.");
-    d->y -= 14;
+    rpt_paragraph(d, d->font, 7, d->left, d->right - d->left,
+                  "Dates are local to the department. Fx: fraction number. Readings are shown "
+                  "as entered. Deviation = (corrected - expected) / expected x 100 %. A dash "
+                  "marks a value that could not be computed. \"T assumed\": no temperature was "
+                  "entered, so the default skin temperature (setting skin_temp_c) was used for "
+                  "the temperature correction. \"(escalated)\": raised to the action level by "
+                  "the rule over two consecutive fractions.");
+    if (r->temp_assumed > 0) {
+        char line[200];
+        snprintf(line, sizeof line, "%ld reading%s of this plan %s an assumed temperature.",
+                 r->temp_assumed, r->temp_assumed == 1 ? "" : "s",
+                 r->temp_assumed == 1 ? "uses" : "use");
+        rpt_paragraph(d, d->font, 7, d->left, d->right - d->left, line);
+    }
+    d->y -= 6;
+    if ((rc = rpt_section_amendments(r->s, p->id)) != 0 ||
+        (rc = rpt_section_reasons(r->s, p->id)) != 0 ||
+        (rc = rpt_section_review(r->s, p->id)) != 0 ||
+        (rc = rpt_section_midline(r->s, r->mrn, p->label)) != 0)
+        return rc;
     summary(r);
     return charts(r);
 }

@@ -155,7 +155,7 @@ int fxl_rq_measurements_each(fxl_ctx *ctx, int64_t plan_id, fxl_rq_measurement_c
         "         ORDER BY e.created_at DESC, e.id DESC LIMIT 1), ''), "
         "       coalesce(m.supersedes_id, 0), "
         "       coalesce((SELECT s.id FROM measurements s WHERE s.supersedes_id = m.id), 0), "
-        "       coalesce(m.amend_reason, '') "
+        "       coalesce(m.amend_reason, ''), m.temp_c, m.temp_entered, m.reasons "
         "FROM measurements m "
         "JOIN fractions f ON f.id = m.fraction_id "
         "JOIN fields fl ON fl.id = m.field_id "
@@ -189,6 +189,9 @@ int fxl_rq_measurements_each(fxl_ctx *ctx, int64_t plan_id, fxl_rq_measurement_c
         m.supersedes_id = fxl_stmt_int(&s, 19);
         m.superseded_by = fxl_stmt_int(&s, 20);
         m.amend_reason = fxl_stmt_text(&s, 21);
+        m.temp_c = fxl_stmt_double_opt(&s, 22);
+        m.temp_assumed = fxl_stmt_int(&s, 23) == 0;
+        m.reasons_json = fxl_stmt_text(&s, 24);
         if ((rc = cb(arg, &m)) != 0)
             goto cleanup;
     }
@@ -652,6 +655,49 @@ int fxl_rq_detectors_near_limit_each(fxl_ctx *ctx, const char *as_of, double war
         d.accumulated_cgy = fxl_stmt_double(&s, 5);
         d.limit_cgy = fxl_stmt_double(&s, 6);
         if ((rc = cb(arg, &d)) != 0)
+            goto cleanup;
+    }
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
+int fxl_rq_review_events_each(fxl_ctx *ctx, int64_t plan_id, fxl_rq_event_cb cb, void *arg)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    fxl_rq_event e;
+    int rc;
+
+    /* Items about a measurement of the plan, or about one of its fields
+     * (rules over history such as a missed measurement). */
+    rc = fxl_stmt_prepare(&s, ctx,
+        "SELECT e.id, i.id, coalesce(i.measurement_id, 0), i.rule, i.summary, e.kind, "
+        "       coalesce(e.disposition, ''), coalesce(e.comment, ''), e.created_at, u.login, "
+        "       u.full_name, u.role "
+        "FROM review_events e JOIN review_items i ON i.id = e.item_id "
+        "JOIN users u ON u.id = e.user_id "
+        "WHERE i.measurement_id IN (SELECT m.id FROM measurements m "
+        "                           JOIN fractions f ON f.id = m.fraction_id "
+        "                           WHERE f.plan_id = :plan) "
+        "   OR i.field_id IN (SELECT id FROM fields WHERE plan_id = :plan) "
+        "ORDER BY i.id, e.id");
+    if (rc != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":plan", plan_id);
+    while ((rc = fxl_stmt_step(&s)) == 1) {
+        e.event_id = fxl_stmt_int(&s, 0);
+        e.item_id = fxl_stmt_int(&s, 1);
+        e.measurement_id = fxl_stmt_int(&s, 2);
+        e.rule = fxl_stmt_text(&s, 3);
+        e.summary = fxl_stmt_text(&s, 4);
+        e.kind = fxl_stmt_text(&s, 5);
+        e.disposition = fxl_stmt_text(&s, 6);
+        e.comment = fxl_stmt_text(&s, 7);
+        e.at = fxl_stmt_text(&s, 8);
+        e.login = fxl_stmt_text(&s, 9);
+        e.full_name = fxl_stmt_text(&s, 10);
+        e.role = fxl_stmt_text(&s, 11);
+        if ((rc = cb(arg, &e)) != 0)
             goto cleanup;
     }
 cleanup:

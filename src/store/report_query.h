@@ -102,6 +102,9 @@ typedef struct fxl_rq_measurement {
     int64_t supersedes_id;           /* 0 unless it amends an earlier row */
     int64_t superseded_by;           /* 0 unless a later row amends it */
     const char *amend_reason;        /* "" unless it amends */
+    double temp_c;                   /* temperature used for the correction */
+    int temp_assumed;                /* 1: not entered, the default skin temperature used */
+    const char *reasons_json;        /* JSON array of the verdict's reasons */
 } fxl_rq_measurement;
 
 typedef int (*fxl_rq_measurement_cb)(void *arg, const fxl_rq_measurement *m);
@@ -109,6 +112,29 @@ typedef int (*fxl_rq_measurement_cb)(void *arg, const fxl_rq_measurement *m);
 /* Every measurement of a plan, superseded ones included, ordered by fraction
  * number, treatment time, field name, point and id. */
 int fxl_rq_measurements_each(fxl_ctx *ctx, int64_t plan_id, fxl_rq_measurement_cb cb, void *arg);
+
+/* One review event on a queue item about a plan's measurements or fields:
+ * who made it (login, printed name, role), when, what it means, the comment. */
+typedef struct fxl_rq_event {
+    int64_t event_id;
+    int64_t item_id;
+    int64_t measurement_id;          /* 0 for items about a field, not one result */
+    const char *rule;
+    const char *summary;             /* the item's summary */
+    const char *kind;                /* open, acknowledge, comment, close, reopen */
+    const char *disposition;         /* "" unless close */
+    const char *comment;             /* "" when none */
+    const char *at;
+    const char *login;
+    const char *full_name;
+    const char *role;
+} fxl_rq_event;
+
+typedef int (*fxl_rq_event_cb)(void *arg, const fxl_rq_event *e);
+
+/* Every event of the queue items about the plan's measurements or fields,
+ * by item and then in time order. */
+int fxl_rq_review_events_each(fxl_ctx *ctx, int64_t plan_id, fxl_rq_event_cb cb, void *arg);
 
 typedef struct fxl_rq_field {
     int64_t id;

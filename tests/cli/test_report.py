@@ -10,6 +10,7 @@ import re
 import shutil
 import sqlite3
 import subprocess
+import tempfile
 import unittest
 
 import record_fixture
@@ -141,6 +142,20 @@ def pdftext(path, first=None, last=None, layout=True):
     return r.stdout
 
 
+def assertPopplerClean(test, path):
+    """No warning or error from poppler-utils on the file (stderr empty), and
+    text extraction gives text."""
+    t = subprocess.run(["pdftotext", path, "-"], capture_output=True, text=True)
+    test.assertEqual(t.returncode, 0, t.stderr)
+    test.assertEqual(t.stderr, "", "pdftotext warns on %s" % path)
+    test.assertIn("Page 1 of", t.stdout)
+    with tempfile.TemporaryDirectory() as d:
+        r = subprocess.run(["pdftoppm", "-r", "20", "-png", path, os.path.join(d, "p")],
+                           capture_output=True, text=True)
+        test.assertEqual(r.returncode, 0, r.stderr)
+        test.assertEqual(r.stderr, "", "pdftoppm warns on %s" % path)
+
+
 def pdfpages(path):
     out = subprocess.run(["pdfinfo", path], capture_output=True, text=True, check=True).stdout
     return int(re.search(r"^Pages:\s+(\d+)", out, re.M).group(1))
@@ -164,11 +179,17 @@ class ReportTestCase(FxlTestCase):
         if r.returncode == 0:
             out = args[list(args).index("--out") + 1]
             self.assertQpdfOk(out)      # every report the tests produce
+            self.assertPopplerClean(out)
         keep = os.environ.get("FXL_TEST_KEEP_PDF")  # a directory to look at the files in
         if keep and r.returncode == 0:
             shutil.copy(out, os.path.join(keep, "%s-%s" % (self.id().split(".")[-1],
                                                            os.path.basename(out))))
         return r
+
+    def assertPopplerClean(self, path):
+        """poppler (pdftotext, pdftoppm) reads the file without a warning: no
+        "Invalid 'begincidrange' operator in ToUnicode CMap" or any other."""
+        assertPopplerClean(self, path)
 
     def assertQpdfOk(self, path):
         r = subprocess.run(["qpdf", "--check", path], capture_output=True, text=True)
@@ -242,7 +263,13 @@ class PatientReportTest(ReportTestCase):
             self.assertIn("%+.2f %%" % dev, line[0])
             self.assertIn("%.1f cGy" % (EXPECTED * (1 + dev / 100)), line[0])
         self.assertRegex(t, r"%d\s.*superseded by %d" % (self.bad, self.good))
-        self.assertRegex(t, r"replaces %d: reading" % self.bad)
+        self.assertRegex(t, r"replaces %d \(reason" % self.bad)
+        flat = " ".join(pdftext(self.out, layout=False).split())
+        # the amendment reason in full, and who closed the review with the comment
+        self.assertIn("No. %d replaces No. %d (fraction 9, field AP, entrance;" % (self.good, self.bad), flat)
+        self.assertIn("Reason: reading typed in the wrong unit", flat)
+        self.assertIn("Dr Invented Physicist (phys, physicist)", flat)
+        self.assertIn("closed with disposition 'set-up error' checked", flat)
         self.assertRegex(t, r"outside action level\s+set-up error")
         self.assertRegex(t, r"outside tolerance\s+review pending")
         # counts: 8 rows + the correction + the not-evaluable one; the superseded
@@ -526,8 +553,11 @@ class EndToEndTest(record_fixture.RecordTestCase, ReportTestCase):
         self.report("patient", mrn, "--out", pdf)
         t = pdftext(pdf)
         self.assertIn("Example, Invented", t)
-        self.assertRegex(t, r"2026-10-05\s+1\s+REF\s+entrance\s+D-1001\s+20\.20 nC\s+202\.0 cGy\s+200\.0 cGy\s+\+1\.00 %\s+within tolerance")
+        self.assertRegex(t, r"2026-10-05\s+1\s+REF\s+entrance\s+D-1001\s+20\.2 nC\s+202\.0 cGy\s+200\.0 cGy\s+\+1\.00 %\s+within tolerance")
         self.assertRegex(t, r"2026-10-06\s+2\s+REF.*\+9\.00 %\s+outside action level\s+detector placement")
+        flat = " ".join(pdftext(pdf, layout=False).split())
+        self.assertIn("Phil Physicist (phil, physicist)", flat)
+        self.assertIn("diode off axis", flat)
         month = fx.path("month.pdf")
         self.report("month", "2026-10", "--out", month)
         t = pdftext(month)

@@ -9,7 +9,7 @@ import statistics
 import subprocess
 
 from fxlcli import FxlTestCase, main
-from test_report import ACT, TOL, Clinic, pdftext, verdict_for
+from test_report import ACT, TOL, Clinic, assertPopplerClean, pdftext, verdict_for
 
 # Invented deviations (%) of one pelvis field measured with diode P1, in order
 # of treatment (fractions 1..14).
@@ -156,9 +156,13 @@ class StatsTest(FxlTestCase):
         self.assertEqual(out["file"], pdf)
         chk = subprocess.run(["qpdf", "--check", pdf], capture_output=True, text=True)
         self.assertEqual(chk.returncode, 0, chk.stdout)
+        assertPopplerClean(self, pdf)
         text = pdftext(pdf, layout=False)
         self.assertIn("Statistics of in vivo deviations", text)
         self.assertIn("Pawlicki", text)
+        # the text drawn comes back, symbols included (ToUnicode map of the fonts)
+        self.assertIn("individuals limits at mean \u00b1 2.66 \u00d7 the average moving range",
+                      pdftext(pdf, layout=False).replace("\n", " "))
         self.assertIn("%+.2f" % statistics.mean(self.pelvis), text)
         self.assertIn("%.2f" % statistics.stdev(self.pelvis), text)
         self.assertIn("UCL +5.055", text)     # check value on the Breast chart
