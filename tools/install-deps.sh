@@ -5,7 +5,8 @@ set -eu
 
 PKGS="cmake make gcc pkg-config libsqlite3-dev libcjson-dev libhpdf-dev \
 libcmocka-dev libsodium-dev sqlite3 qpdf poppler-utils fonts-dejavu-core \
-python3 python3-pydicom dcmtk tzdata tmux"
+python3 python3-pydicom dcmtk tzdata tmux libmicrohttpd-dev chromium chromium-driver \
+python3-selenium"
 
 missing=""
 for p in $PKGS; do

@@ -6,8 +6,8 @@
 #include <string.h>
 
 #include "cli/cli.h"
-#include "cli/outfile_tmp.h"
 #include "fxl/export.h"
+#include "fxl/outfile.h"
 #include "fxl/report.h"
 
 static int stop_at_header(void *arg, size_t ncols, const char *const *names)
@@ -22,7 +22,8 @@ static int sub_measurements(cli_env *env, int argc, char **argv)
 {
     cli_opt opts[] = {
         {"format", "csv|json", "output format (default csv; --json selects json)", NULL},
-        {"out", "FILE", "write to FILE (created 0600; never replaces a file) instead of stdout", NULL},
+        {"out", "FILE", "write to FILE (created 0600; must not exist, see --force) instead of stdout", NULL},
+        {"force", NULL, "replace an existing regular file (never a database, directory or device)", NULL},
         {"month", "YYYY-MM", "only fractions treated in this month (department time zone)", NULL},
         {"from", "YYYY-MM-DD", "only fractions treated from this local day (with --to)", NULL},
         {"to", "YYYY-MM-DD", "... to this local day, inclusive", NULL},
@@ -32,13 +33,14 @@ static int sub_measurements(cli_env *env, int argc, char **argv)
     fxl_export_filter f = {NULL, NULL, NULL, NULL};
     fxl_export_format format = env->json ? FXL_EXPORT_JSON : FXL_EXPORT_CSV;
     fxl_report_period per;
-    cli_outfile of;
+    fxl_outfile of = FXL_OUTFILE_INIT;
+    int oflags = 0;
     char now[FXL_TIME_LEN];
     const char *fmt, *out;
     size_t rows = 0;
     int npos, rc;
 
-    rc = cli_parse(env, "export measurements [--format csv|json] [--out FILE] [--month YYYY-MM | "
+    rc = cli_parse(env, "export measurements [--format csv|json] [--out FILE [--force]] [--month YYYY-MM | "
                         "--from DAY --to DAY] [--patient MRN] [--detector SERIAL]",
                    "Exports the measurement record: every column of every measurement, current\n"
                    "and superseded (with the row that supersedes it and the reason), the patient,\n"
@@ -63,6 +65,9 @@ static int sub_measurements(cli_env *env, int argc, char **argv)
     }
     if ((rc = fxl_require_role(env->ctx, FXL_ROLES_ANY, "exporting measurements")) != 0)
         return cli_fail(env, rc);
+    oflags = cli_get(opts, "force") ? FXL_OUT_FORCE : 0;
+    if (cli_get(opts, "out") && (rc = fxl_outfile_check(env->ctx, cli_get(opts, "out"), oflags)) != 0)
+        return cli_fail(env, rc);
     if (cli_get(opts, "month") || cli_get(opts, "from") || cli_get(opts, "to")) {
         if ((rc = fxl_report_period_resolve(env->ctx, &per, cli_get(opts, "month"),
                                             cli_get(opts, "from"), cli_get(opts, "to"))) != 0)
@@ -81,11 +86,10 @@ static int sub_measurements(cli_env *env, int argc, char **argv)
     /* an unknown patient or detector is refused before anything is created */
     if ((rc = fxl_export_measurements(env->ctx, &f, stop_at_header, NULL, NULL)) < 0)
         return cli_fail(env, rc);
-    if (cli_outfile_open(&of, out) != 0)
-        return CLI_EXIT_DATA;
-    rc = fxl_export_write(env->ctx, of.f, format, &f, now, &rows);
-    if (cli_outfile_close(&of, rc == 0) != 0 && rc == 0)
-        return CLI_EXIT_DATA;
+    if ((rc = fxl_outfile_open(&of, env->ctx, out, oflags)) == 0 &&
+        (rc = fxl_export_write(env->ctx, of.fp, format, &f, now, &rows)) == 0)
+        rc = fxl_outfile_commit(&of, env->ctx);
+    fxl_outfile_abort(&of);
     if (rc != 0)
         return cli_fail(env, rc);
     if (env->json) {

@@ -8,6 +8,7 @@
 
 #include "cli/cli.h"
 #include "cli/json_put.h"
+#include "fxl/outfile.h"
 #include "fxl/period_stats.h"
 #include "fxl/report.h"
 
@@ -201,7 +202,8 @@ int cmd_stats(cli_env *env, int argc, char **argv)
         {"to", "YYYY-MM-DD", "last local day of the period, inclusive", NULL},
         {"by", "KEYS", "grouping: comma-separated site, technique, energy, point, detector, "
                        "or all (default all)", NULL},
-        {"out", "FILE", "also write the statistics as a PDF report", NULL},
+        {"out", "FILE", "also write the statistics as a PDF report (must not exist; see --force)", NULL},
+        {"force", NULL, "replace an existing regular file (never a database, directory or device)", NULL},
         {"generated-at", "DATETIME", "fix the generation time printed on the PDF (UTC)", NULL},
         {NULL, NULL, NULL, NULL}};
     fxl_period_stats ps = FXL_PERIOD_STATS_INIT;
@@ -213,7 +215,7 @@ int cmd_stats(cli_env *env, int argc, char **argv)
     const char *out;
     int npos, rc;
 
-    rc = cli_parse(env, "stats (--month YYYY-MM | --from DAY --to DAY) [--by KEYS] [--out FILE.pdf]",
+    rc = cli_parse(env, "stats (--month YYYY-MM | --from DAY --to DAY) [--by KEYS] [--out FILE.pdf [--force]]",
                    "Statistics of the deviations of the results treated in a period, for the\n"
                    "periodic review of the levels: per group n, mean, SD, median, 5th and 95th\n"
                    "percentiles, the shares outside tolerance and action, the individuals and\n"
@@ -238,6 +240,10 @@ int cmd_stats(cli_env *env, int argc, char **argv)
         ropt.generated_at = when;
     }
     if ((rc = fxl_require_role(env->ctx, FXL_ROLES_ANY, "reading statistics")) != 0)
+        return cli_fail(env, rc);
+    ropt.force = cli_get(opts, "force") != NULL;
+    if (cli_get(opts, "out") && *cli_get(opts, "out") &&
+        (rc = fxl_outfile_check(env->ctx, cli_get(opts, "out"), ropt.force ? FXL_OUT_FORCE : 0)) != 0)
         return cli_fail(env, rc);
     if ((rc = fxl_report_period_resolve(env->ctx, &per, cli_get(opts, "month"),
                                         cli_get(opts, "from"), cli_get(opts, "to"))) != 0)

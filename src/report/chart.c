@@ -280,6 +280,38 @@ void rpt_hist_init(rpt_hist *h, double range)
     h->lo = -range;
 }
 
+static int divides(double level, double bin)
+{
+    double k = level / bin;
+
+    return fabs(k - floor(k + 0.5)) < 1e-9;
+}
+
+int rpt_hist_init_aligned(rpt_hist *h, double range, double tol, double act)
+{
+    static const double widths[] = {5, 2.5, 2, 1, 0.5, 0.25, 0.2, 0.1};
+    size_t i;
+
+    if (!isfinite(tol) || !isfinite(act) || !(tol > 0) || !(act >= tol) || !(range > 0))
+        return -1;
+    for (i = 0; i < sizeof widths / sizeof widths[0]; i++) {
+        double w = widths[i], r = ceil(range / w - 1e-9) * w;
+        if (!divides(tol, w) || !divides(act, w) || act / w < 3 - 1e-9)
+            continue;
+        if (2 * r / w > RPT_HIST_BINS + 1e-9)
+            r = RPT_HIST_BINS / 2 * w;
+        if (r <= act + 1e-9)
+            continue;        /* the action level must lie inside the axis */
+        memset(h, 0, sizeof *h);
+        h->bin = w;
+        h->nbins = (int)floor(2 * r / w + 0.5);
+        h->lo = -r;
+        h->aligned = 1;
+        return 0;
+    }
+    return -1;
+}
+
 void rpt_hist_add(rpt_hist *h, double v)
 {
     double k;
@@ -287,7 +319,9 @@ void rpt_hist_add(rpt_hist *h, double v)
     if (!isfinite(v))
         return;
     h->n++;
-    k = floor((v - h->lo) / h->bin);
+    /* Bins are closed on the side towards zero, so a deviation exactly at a
+     * level lands inside it, as the verdict counts it. */
+    k = v > 0 ? ceil((v - h->lo) / h->bin) - 1 : floor((v - h->lo) / h->bin);
     if (k < 0)
         h->under++;
     else if (k >= h->nbins)

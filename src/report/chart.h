@@ -50,10 +50,18 @@ typedef struct rpt_hist {
     long count[RPT_HIST_BINS];
     long under, over;            /* below lo, at or above lo + nbins * bin */
     long n;
+    int aligned;                 /* 1: tolerance and action levels fall on bin edges */
 } rpt_hist;
 
 /* Bins of width range/10 over [-range, +range). */
 void rpt_hist_init(rpt_hist *h, double range);
+/* Bins over [-range, +range) whose edges include +-tol and +-act: the
+ * widest of 5, 2.5, 2, 1, 0.5, 0.25, 0.2 and 0.1 % that divides both levels
+ * with at least three bins inside the action level and at most
+ * RPT_HIST_BINS bins (range is widened to a multiple of the bin, or
+ * narrowed to RPT_HIST_BINS bins when still beyond the action level).
+ * Returns -1 (h untouched) when no such width exists or a level is missing. */
+int rpt_hist_init_aligned(rpt_hist *h, double range, double tol, double act);
 void rpt_hist_add(rpt_hist *h, double v);
 /* Draws it in the box with top-left (x, top); bands when tol/act finite. */
 void rpt_hist_draw(rpt_doc *d, const rpt_hist *h, double x, double top, double w, double ht,

@@ -12,7 +12,9 @@
 #include "fxl/core.h"
 #include "fxl/report.h"
 #include "report/chart.h"
+#include "fxl/period_stats.h"
 #include "report/session.h"
+#include "report/stats_table.h"
 #include "report/table.h"
 #include "store/report_query.h"
 
@@ -202,6 +204,8 @@ static int group_table(mreport *r, fxl_rq_grouping by, const char *heading, cons
     rc = fxl_rq_month_counts_each(r->s->ctx, r->from, r->to, by, on_group, r);
     if (rc == 0)
         flush_group(r);
+    if (rc == 0 && r->rows == 0)
+        rpt_table_note(&r->table, "No results this month.");
     rpt_table_end(&r->table);
     return rc;
 }
@@ -254,7 +258,8 @@ static int histogram(mreport *r)
         range = ceil(2 * r->act / 5) * 5;   /* round bins: range / 10 */
     if (range > 50)
         range = 50;
-    rpt_hist_init(&r->hist, range);
+    if (rpt_hist_init_aligned(&r->hist, range, r->tol, r->act) != 0)
+        rpt_hist_init(&r->hist, range);
     r->mean = r->m2 = 0;
     if ((rc = fxl_rq_month_deviations_each(r->s->ctx, r->from, r->to, on_deviation, r)) != 0)
         return rc;
@@ -271,12 +276,66 @@ static int histogram(mreport *r)
     rpt_fmt_pct(sd, sizeof sd, r->hist.n > 1 ? sqrt(r->m2 / (double)(r->hist.n - 1)) : NAN, 2, 0);
     snprintf(line, sizeof line,
              "%ld results judged against levels; mean deviation %s, standard deviation %s. Bins "
-             "of %g %%. Bands: tolerance \xC2\xB1%g %%, action level \xC2\xB1%g %%, the levels of "
+             "of %g %%%s. Bands: tolerance \xC2\xB1%g %%, action level \xC2\xB1%g %%, the levels of "
              "%ld of these results%s%s.",
-             r->hist.n, mean, sd, r->hist.bin, r->tol, r->act, r->levels_count,
+             r->hist.n, mean, sd, r->hist.bin,
+             r->hist.aligned ? ", with bin edges at the tolerance and action levels" : "",
+             r->tol, r->act, r->levels_count,
              r->other_levels[0] ? "; other levels in use: " : "", r->other_levels);
     rpt_paragraph(d, d->font, 8.5, d->left, d->right - d->left, line);
     return 0;
+}
+
+/* ---- statistics by site -------------------------------------------------------------- */
+
+static int site_statistics(mreport *r)
+{
+    rpt_doc *d = &r->s->doc;
+    fxl_period_stats ps = FXL_PERIOD_STATS_INIT;
+    int rc;
+
+    section(r, "Statistics of deviations by site", 100);
+    if ((rc = fxl_period_stats_compute(r->s->ctx, &ps, r->from, r->to, FXL_PS_SITE)) == 0) {
+        rpt_ps_table(d, &ps, "");
+        rpt_paragraph(d, d->font, 7, d->left, d->right - d->left,
+                      "Per site over the month: n, mean, SD (n \xE2\x88\x92 1), median, 5th and 95th "
+                      "percentiles of the deviation (%), the shares outside the levels, the levels "
+                      "in force and levels suggested from the spread (2 and 3 SD rounded up to 0.5 %, "
+                      "from memory, never applied). Pooling a site over beams, points and detectors "
+                      "widens the spread; 'fxledger stats' gives the finer groups.");
+        d->y -= 4;
+    }
+    fxl_period_stats_release(&ps);
+    return rc;
+}
+
+static void signoff(mreport *r)
+{
+    rpt_doc *d = &r->s->doc;
+    static const char *const labels[3] = {"Name of the reviewing medical physicist", "Signature",
+                                          "Date"};
+    const double widths[3] = {220, 150, 90};
+    double x = d->left, y;
+    int i;
+
+    section(r, "Review and sign-off by the medical physicist", 150);
+    rpt_paragraph(d, d->font, 8.5, d->left, d->right - d->left,
+                  "I have reviewed this month's results, every result outside the action level "
+                  "and its disposition, the queue items still open, and the calibrations and "
+                  "detectors listed above.");
+    d->y -= 34;
+    y = d->y;
+    for (i = 0; i < 3; i++) {
+        rpt_line(d, x, y, x + widths[i], y, 0.7, 0.2);
+        rpt_text(d, d->font, 7.5, 0.3, x, y - 10, labels[i]);
+        x += widths[i] + 22;
+    }
+    d->y = y - 30;
+    rpt_text(d, d->font, 7.5, 0.3, d->left, d->y, "Comments and actions decided");
+    rpt_line(d, d->left + 110, d->y, d->right, d->y, 0.5, 0.5);
+    rpt_line(d, d->left, d->y - 20, d->right, d->y - 20, 0.5, 0.5);
+    rpt_line(d, d->left, d->y - 40, d->right, d->y - 40, 0.5, 0.5);
+    d->y -= 50;
 }
 
 /* ---- action-level events ------------------------------------------------------------ */
@@ -664,24 +723,31 @@ int fxl_report_month(fxl_ctx *ctx, fxl_report_result *out, const char *path, con
                  rpt_month_name(mon), year, s.tz_name);
         rpt_notice(d, "No measurements this month", text);
     }
-    rpt_method_limits(d);
-    if (r->total > 0) {
-        memset(&scope, 0, sizeof scope);
-        scope.from = r->from;
-        scope.to = r->to;
-        scope.as_of = r->as_of;
-        if ((rc = rpt_method_corrections(&s, &scope)) != 0)
-            goto cleanup;
-        overall_table(r);
-        if ((rc = group_table(r, FXL_RQ_BY_SITE_TECHNIQUE, "By treatment site and technique",
-                              "Site / technique")) != 0 ||
-            (rc = group_table(r, FXL_RQ_BY_ENERGY, "By beam modality and energy", "Beam")) != 0 ||
-            (rc = group_table(r, FXL_RQ_BY_DETECTOR, "By detector", "Detector")) != 0 ||
-            (rc = histogram(r)) != 0 || (rc = actions(r)) != 0)
-            goto cleanup;
-    }
+    /* Results first, the inventory of tables last; every section is drawn
+     * in every month (saying "none" when empty), so its number is stable. */
+    overall_table(r);
+    if ((rc = group_table(r, FXL_RQ_BY_SITE_TECHNIQUE, "By treatment site and technique",
+                          "Site / technique")) != 0 ||
+        (rc = group_table(r, FXL_RQ_BY_ENERGY, "By beam modality and energy", "Beam")) != 0 ||
+        (rc = group_table(r, FXL_RQ_BY_DETECTOR, "By detector", "Detector")) != 0 ||
+        (rc = site_statistics(r)) != 0 || (rc = histogram(r)) != 0 || (rc = actions(r)) != 0)
+        goto cleanup;
     if ((rc = queue(r)) != 0 || (rc = calibrations(r)) != 0 || (rc = detector_doses(r)) != 0)
         goto cleanup;
+    signoff(r);
+    section(r, "Limits of the method and correction tables in force", 120);
+    rpt_method_limits(d);
+    memset(&scope, 0, sizeof scope);
+    scope.from = r->from;
+    scope.to = r->to;
+    scope.as_of = r->as_of;
+    if (r->total > 0) {
+        if ((rc = rpt_method_corrections(&s, &scope)) != 0)
+            goto cleanup;
+    } else {
+        rpt_paragraph(d, d->font, 8.5, d->left, d->right - d->left,
+                      "No detector measured this month, so no correction table was in use.");
+    }
     if (out) {
         out->pages = d->npages;
         out->measurements = r->total;

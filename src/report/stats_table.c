@@ -55,15 +55,30 @@ static const rpt_col cols[] = {
     {"Levels in force %", 62, RPT_RIGHT}, {"Suggested % (not applied)", 70, RPT_RIGHT}};
 #define NCOLS ((int)(sizeof cols / sizeof cols[0]))
 
+/* Portrait pages: the same without the I-MR column (column 9), headers that
+ * fit their width without breaking a word. */
+static const rpt_col compact_cols[] = {
+    {"Group", 112, RPT_LEFT},         {"n", 24, RPT_RIGHT},
+    {"Mean %", 34, RPT_RIGHT},        {"SD %", 30, RPT_RIGHT},
+    {"Median %", 38, RPT_RIGHT},      {"P5 %", 32, RPT_RIGHT},
+    {"P95 %", 32, RPT_RIGHT},         {"Outside tolerance", 50, RPT_RIGHT},
+    {"Outside action", 50, RPT_RIGHT}, {"In force %", 52, RPT_RIGHT},
+    {"Suggested %", 58, RPT_RIGHT}};
+#define NCOMPACT ((int)(sizeof compact_cols / sizeof compact_cols[0]))
+
 void rpt_ps_table(rpt_doc *d, const fxl_period_stats *ps, const char *caption)
 {
     rpt_table t;
     char c[NCOLS][160];
     const char *cells[NCOLS];
+    int compact = rpt_table_width(cols, NCOLS) > d->right - d->left;
     size_t i;
-    int k;
+    int k, j;
 
-    rpt_table_begin(&t, d, cols, NCOLS, 7, 3, caption);
+    if (compact)
+        rpt_table_begin(&t, d, compact_cols, NCOMPACT, 7, 3, caption);
+    else
+        rpt_table_begin(&t, d, cols, NCOLS, 7, 3, caption);
     if (ps->ngroups == 0)
         rpt_table_note(&t, "no results in this period");
     for (i = 0; i < ps->ngroups; i++) {
@@ -104,8 +119,9 @@ void rpt_ps_table(rpt_doc *d, const fxl_period_stats *ps, const char *caption)
                      g->suggestion.action_pct);
         else
             snprintf(c[11], sizeof c[11], "too few results");
-        for (k = 0; k < NCOLS; k++)
-            cells[k] = c[k];
+        for (k = 0, j = 0; k < NCOLS; k++)
+            if (!compact || k != 9)
+                cells[j++] = c[k];
         rpt_table_row(&t, cells, NULL);
     }
     rpt_table_end(&t);

@@ -12,7 +12,8 @@
 void rpt_ps_group_name(char *out, size_t n, const fxl_ps_group *g);
 
 /* Draws the table of every group of ps under `caption`, breaking pages
- * with repeated headers; "no results" when there is no group. */
+ * with repeated headers; "no results" when there is no group. On a page
+ * too narrow for every column (portrait) the I-MR limits are left out. */
 void rpt_ps_table(rpt_doc *d, const fxl_period_stats *ps, const char *caption);
 
 /* The definitions under the table: percentile method, shares, I-MR

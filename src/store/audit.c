@@ -73,8 +73,8 @@ int fxl_audit_append(fxl_ctx *ctx, const char *action, const char *entity,
     row_hash(hash, prev, id, at, ctx->user_login, action, entity, idtext, text);
 
     if ((rc = fxl_stmt_prepare(&ins, ctx,
-                               "INSERT INTO audit_log (id, at, user, action, entity, entity_id, content, prev_hash, hash) "
-                               "VALUES (:id, :at, :user, :action, :entity, :entity_id, :content, :prev, :hash)")) != 0)
+                               "INSERT INTO audit_log (id, at, user, action, entity, entity_id, content, prev_hash, hash, client) "
+                               "VALUES (:id, :at, :user, :action, :entity, :entity_id, :content, :prev, :hash, :client)")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&ins, ":id", id);
     fxl_stmt_bind_text(&ins, ":at", at);
@@ -88,6 +88,10 @@ int fxl_audit_append(fxl_ctx *ctx, const char *action, const char *entity,
     fxl_stmt_bind_text(&ins, ":content", text);
     fxl_stmt_bind_text(&ins, ":prev", prev);
     fxl_stmt_bind_text(&ins, ":hash", hash);
+    if (ctx->origin[0])
+        fxl_stmt_bind_text(&ins, ":client", ctx->origin);
+    else
+        fxl_stmt_bind_null(&ins, ":client");
     rc = fxl_stmt_exec(&ins);
 cleanup:
     fxl_stmt_finalize(&last);

@@ -20,6 +20,7 @@ struct fxl_ctx {
     unsigned char *sign_sk;
     int64_t sign_key_id;
     int64_t sign_user_id;
+    char origin[64];       /* client address of a served request, "" if none */
 };
 
 /* Maps the connection's last SQLite error to FXL_EBUSY, FXL_ECONFLICT (a

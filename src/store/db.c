@@ -11,6 +11,7 @@
 #include <unistd.h>
 
 #include "fxl/auth.h"
+#include "fxl/server.h"
 #include "store/audit.h"
 #include "store/ctx.h"
 #include "store/migrations.h"
@@ -392,4 +393,29 @@ cleanup:
     cJSON_Delete(content);
     fxl_stmt_finalize(&s);
     return rc;
+}
+
+void fxl_clear_user(fxl_ctx *ctx)
+{
+    if (!ctx)
+        return;
+    ctx->user_id = 0;
+    ctx->user_login[0] = '\0';
+    ctx->user_role = 0;
+}
+
+void fxl_set_origin(fxl_ctx *ctx, const char *address)
+{
+    if (ctx)
+        snprintf(ctx->origin, sizeof ctx->origin, "%s", address ? address : "");
+}
+
+const char *fxl_origin(const fxl_ctx *ctx)
+{
+    return ctx ? ctx->origin : "";
+}
+
+int fxl_begin_read(fxl_ctx *ctx)
+{
+    return fxl_exec(ctx, "BEGIN DEFERRED");
 }

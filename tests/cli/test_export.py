@@ -134,6 +134,26 @@ class ExportTest(FxlTestCase):
         self.assertEqual(json.loads(self.fx.run("--json", "export", "measurements",
                                                 user="qa").stdout)["rows"], len(rows))
 
+    def test_output_file_refusals(self):
+        """The safe output-file rules: never the database, a symlink, a directory
+        or a device; an existing file only with --force."""
+        fx = self.fx
+        link = fx.path("link.csv")
+        os.symlink(fx.path("target.csv"), link)
+        os.mkdir(fx.path("adir"))
+        for target in (fx.db, fx.db + "-wal", link, fx.path("adir"), "/dev/null"):
+            self.assertFailsUnchanged("export", "measurements", "--out", target, "--force",
+                                      user="qa", expect_code=2)
+        self.assertFalse(os.path.exists(fx.path("target.csv")))
+        out = fx.path("again.csv")
+        fx.ok("export", "measurements", "--out", out, user="qa")
+        self.assertFailsUnchanged("export", "measurements", "--out", out, user="qa",
+                                  expect_code=2, expect_in="already exists")
+        fx.ok("export", "measurements", "--format", "json", "--out", out, "--force", user="qa")
+        with open(out, encoding="utf-8") as f:
+            self.assertEqual(json.load(f)["format"], "fxledger-measurements")
+        self.assertEqual(stat.S_IMODE(os.stat(out).st_mode), 0o600)
+
     def test_filters(self):
         def ids(*args):
             doc = json.loads(self.export(*args, fmt="json"))

@@ -481,6 +481,39 @@ class MonthlyReportTest(ReportTestCase):
         c.commit()
         self.out = self.fx.path("month.pdf")
 
+    def test_monthly_order_sections_bins_and_signoff(self):
+        out = self.fx.path("oct.pdf")
+        self.report("month", "2026-10", "--out", out)
+        flat = " ".join(pdftext(out, layout=False).split())
+        heads = re.findall(r"(\d+)\. ([A-Z][a-z][^.]*?)(?= [A-Z0-9]|$)", flat)
+        numbered = [int(n) for n, _ in heads]
+        # results first, the inventory of correction tables last
+        self.assertLess(flat.index("1. Results by verdict"), flat.index("Correction tables in force"))
+        self.assertLess(flat.index("Review and sign-off by the medical physicist"),
+                        flat.index("Limits of the method and correction tables in force"))
+        self.assertIn("Statistics of deviations by site", flat)
+        self.assertIn("Name of the reviewing medical physicist", flat)
+        # histogram bins: tolerance 3 %, action 5 % fall on bin edges (1 % bins)
+        self.assertIn("Bins of 1 %, with bin edges at the tolerance and action levels", flat)
+        # the site statistics: Pelvis has deviations 1, 2, -4, 7.5 in October
+        import statistics
+        pel = [1.0, 2.0, -4.0, 7.5]
+        site = flat[flat.index("5. Statistics of deviations by site"):]
+        for v in ("%+.2f" % statistics.mean(pel), "%.2f" % statistics.stdev(pel),
+                  "%+.2f" % statistics.median(pel)):
+            self.assertIn(v, site[:700])      # Python statistics module
+        # an empty month has the same numbered sections
+        empty = self.fx.path("feb.pdf")
+        self.report("month", "2026-02", "--out", empty)
+        eflat = " ".join(pdftext(empty, layout=False).split())
+        for title in ("1. Results by verdict", "5. Statistics of deviations by site",
+                      "6. Distribution of deviations", "7. Results outside the action level",
+                      "11. Review and sign-off by the medical physicist",
+                      "12. Limits of the method and correction tables in force"):
+            self.assertIn(title, flat)
+            self.assertIn(title, eflat)
+        self.assertTrue(numbered)
+
     def test_monthly_counts_rates_tz_and_sections(self):
         res = json.loads(self.report("--json", "month", "2026-10", "--out", self.out).stdout)
         self.assertEqual(res["from_utc"], "2026-09-30T22:00:00Z")  # tz rule above

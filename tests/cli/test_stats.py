@@ -146,6 +146,19 @@ class StatsTest(FxlTestCase):
                                   expect_code=2, expect_in="must not be before")
         self.assertFailsUnchanged("stats", expect_code=1, expect_in="period is required")
 
+    def test_pdf_output_refusals(self):
+        fx = self.fx
+        os.mkdir(fx.path("adir"))
+        for target in (fx.db, fx.path("adir"), "/dev/null"):
+            self.assertFailsUnchanged("stats", "--month", "2026-10", "--out", target, "--force",
+                                      user="qa", expect_code=2)
+        pdf = fx.path("s.pdf")
+        fx.ok("stats", "--month", "2026-10", "--out", pdf, user="qa")
+        self.assertFailsUnchanged("stats", "--month", "2026-10", "--out", pdf, user="qa",
+                                  expect_code=2, expect_in="already exists")
+        fx.ok("stats", "--month", "2026-10", "--out", pdf, "--force", user="qa")
+        self.assertEqual(os.stat(pdf).st_mode & 0o777, 0o600)
+
     def test_text_and_pdf(self):
         r = self.fx.ok("stats", "--month", "2026-10", user="qa")
         self.assertIn("Pelvis / 3D box / 6 MV / entrance / Diode P1 (PD-001)", r.stdout)

@@ -176,21 +176,67 @@ static void test_report_histogram_bins_edges(void **state)
     rpt_hist h;
 
     (void)state;
-    rpt_hist_init(&h, 10);      /* 20 bins of 1 % over [-10, +10) */
+    rpt_hist_init(&h, 10);      /* 20 bins of 1 % over [-10, +10] */
     assert_int_equal(h.nbins, 20);
-    rpt_hist_add(&h, 0.0);      /* [0, 1) is bin 10 */
+    /* bins are closed towards zero: [-1, 0) and [0, 1) below zero, (0, 1]
+     * above, so a deviation exactly at a level lands inside it */
+    rpt_hist_add(&h, 0.0);      /* [0, 1] is bin 10 */
     rpt_hist_add(&h, 0.999);
+    rpt_hist_add(&h, 1.0);      /* the edge at +1 belongs to (0, 1] */
     rpt_hist_add(&h, -0.001);   /* [-1, 0) is bin 9 */
-    rpt_hist_add(&h, 10.0);     /* the upper edge is off scale */
-    rpt_hist_add(&h, -10.0);    /* the lower edge is inside */
+    rpt_hist_add(&h, -1.0);     /* the edge at -1 belongs to [-1, 0) */
+    rpt_hist_add(&h, 10.0);     /* both outer edges are inside */
+    rpt_hist_add(&h, -10.0);
+    rpt_hist_add(&h, 10.5);     /* off scale */
     rpt_hist_add(&h, -12.0);
     rpt_hist_add(&h, NAN);      /* ignored */
-    assert_int_equal(h.count[10], 2);
-    assert_int_equal(h.count[9], 1);
+    assert_int_equal(h.count[10], 3);
+    assert_int_equal(h.count[9], 2);
+    assert_int_equal(h.count[19], 1);
     assert_int_equal(h.count[0], 1);
     assert_int_equal(h.over, 1);
     assert_int_equal(h.under, 1);
-    assert_int_equal(h.n, 6);
+    assert_int_equal(h.n, 9);
+}
+
+static void test_report_histogram_aligned_with_levels(void **state)
+{
+    rpt_hist h;
+
+    (void)state;
+    /* tolerance 5 %, action 8 %: 1 % bins, edges at +-5 and +-8 */
+    assert_int_equal(rpt_hist_init_aligned(&h, 20, 5, 8), 0);
+    assert_true(h.aligned);
+    assert_true(fabs(h.bin - 1.0) < 1e-12);
+    assert_true(fabs(fmod(5 - h.lo, h.bin)) < 1e-9 && fabs(fmod(8 - h.lo, h.bin)) < 1e-9);
+    assert_true(h.nbins <= RPT_HIST_BINS);
+    /* tolerance 2.5 %, action 4 %: 0.5 % bins */
+    assert_int_equal(rpt_hist_init_aligned(&h, 10, 2.5, 4), 0);
+    assert_true(fabs(h.bin - 0.5) < 1e-12);
+    assert_true(h.lo + h.nbins * h.bin > 4);
+    /* tolerance 6 %, action 9 %: 1 % bins (3 % would leave too few inside) */
+    assert_int_equal(rpt_hist_init_aligned(&h, 20, 6, 9), 0);
+    assert_true(fabs(h.bin - 1.0) < 1e-12);
+    /* a deviation exactly at the tolerance level counts inside it */
+    rpt_hist_add(&h, 6.0);
+    {
+        int k = (int)floor((6.0 - h.lo) / h.bin) - 1;   /* the bin (5, 6] */
+        assert_int_equal(h.count[k], 1);
+    }
+    /* no levels: refused, the caller falls back to plain bins */
+    assert_int_equal(rpt_hist_init_aligned(&h, 10, NAN, NAN), -1);
+}
+
+static void test_report_wrap_keeps_identifier_whole(void **state)
+{
+    rpt_doc *d = *state;
+    rpt_lines l;
+    double w = rpt_width(d, d->font, 9, "plan 'BR-") + 1;
+
+    /* a space is there to break at: the identifier is not cut at a hyphen */
+    rpt_wrap(d, d->font, 9, "plan 'BR-R-1' fraction", w, 4, &l);
+    assert_string_equal(l.line[0], "plan");
+    assert_string_equal(l.line[1], "'BR-R-1'");
 }
 
 static void test_report_nice_step(void **state)
@@ -210,6 +256,8 @@ int main(void)
         cmocka_unit_test(test_report_wrap_cuts_past_max_lines),
         cmocka_unit_test(test_report_wrap_splits_long_word_between_characters),
         cmocka_unit_test(test_report_wrap_keeps_dates_whole),
+        cmocka_unit_test(test_report_wrap_keeps_identifier_whole),
+        cmocka_unit_test(test_report_histogram_aligned_with_levels),
     };
     const struct CMUnitTest plain[] = {
         cmocka_unit_test(test_report_month_bounds_follow_summer_time),
