@@ -33,7 +33,9 @@ import time
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 DATA = os.path.join(HERE, "data")
-OUT = os.path.join(HERE, "out")
+# FXLEDGER_DEMO_OUT moves the output (tests/cli/test_demo_rows.py runs the demo in a
+# temporary directory).
+OUT = os.environ.get("FXLEDGER_DEMO_OUT") or os.path.join(HERE, "out")
 DB = os.path.join(OUT, "demo.db")
 
 BIN = os.path.abspath(sys.argv[1] if len(sys.argv) > 1 else os.path.join(HERE, "..", "build", "fxledger-testclock"))
@@ -183,6 +185,7 @@ def setup():
                 "--chamber-dose", 100, "--readings", ",".join(map(str, readings)),
                 "--temp", CAL_TEMP_C, "--valid-days", 90, "--at", "2026-10-26",
                 "--chamber", "Farmer-type chamber FC-7 (invented)", user=ph,
+                *(["--thickness", EXIT_PHANTOM_CM] if point == "exit" else []),
                 show=(serial == "PD-0101" and machine == "LINAC-A"))
     for f in sorted(os.listdir(DATA)):
         if f.startswith("corrections-"):
@@ -246,6 +249,7 @@ def load_tables():
 
 
 TABLES = load_tables()
+EXIT_PHANTOM_CM = 20  # phantom behind which the exit diode was calibrated (invented)
 
 
 def interp(points, x):
@@ -277,7 +281,14 @@ def reading_for(mrn, field_name, point, serial, deviation_pct, temp_c):
     expected = next(p["expected_dose_cgy"] for p in field["points"] if p["point"] == point)
     key = (serial, field["machine"], field["beam"])
     eq_sq = 2.0 * field["x_cm"] * field["y_cm"] / (field["x_cm"] + field["y_cm"])
-    cf = (interp(TABLES[key + ("field_size",)], eq_sq) * interp(TABLES[key + ("ssd",)], field["ssd_cm"])
+    if point == "exit":
+        # exit tables: thickness and source-to-detector distance (SSD + thickness)
+        thick = next(p["thickness_cm"] for p in field["points"] if p["point"] == point)
+        cf_dist = (interp(TABLES[key + ("thickness",)], thick)
+                   * interp(TABLES[key + ("sdd",)], field["ssd_cm"] + thick))
+    else:
+        cf_dist = interp(TABLES[key + ("ssd",)], field["ssd_cm"])
+    cf = (interp(TABLES[key + ("field_size",)], eq_sq) * cf_dist
           * interp(TABLES[key + ("wedge",)], field["wedge_deg"])
           * interp(TABLES[key + ("tray",)], 1 if field["tray"] else 0)
           * interp(TABLES[key + ("angle",)], field["incidence_deg"]))
@@ -365,7 +376,8 @@ def treat():
 def amend(at, correct_reading):
     hist = json.loads(run("--json", "history", "--patient", "DEMO-1003", user="lsands", now=at).stdout)
     rows = hist["measurements"] if isinstance(hist, dict) else hist
-    wrong = [m for m in rows if m.get("verdict") == "implausible"][-1]
+    # a slipped decimal point is a gross deviation (outside the action level)
+    wrong = [m for m in rows if m.get("gross") and not m.get("superseded_by")][-1]
     print("--- the therapist re-reads the electrometer: %s was typed for %s" % (wrong["reading"], correct_reading))
     run("amend", wrong["measurement_id"], "--reading", correct_reading, "--reason",
         "decimal point slipped: typed %s for %s" % (wrong["reading"], correct_reading),
@@ -406,6 +418,31 @@ def review():
         run("queue", "show", spine, user="mkeller", now=later, show=True)
 
 
+# ---- the console at the start of a day -------------------------------------------
+
+def console_day():
+    heading("Monday 16 November at the console: the worklist, then a patient on hold")
+    morning = "2026-11-16T07:45:00Z"
+    run("today", "--day-list", os.path.join(DATA, "daylist-2026-11-16.csv"), user="lsands",
+        now=morning, show=True)
+    # DEMO-1002 still has the escalated LAT result open (acknowledged, not
+    # closed): the hold is shown before the readings and beside the verdicts.
+    at = "2026-11-16T08:31:00Z"
+    answers = []
+    for field, point in (("MED", "entrance"), ("LAT", "entrance")):
+        answers += [str(reading_for("DEMO-1002", field, point, "PD-0101", 0.8, 32.0)), "32"]
+    stdin = "\n".join(["2"] + answers) + "\n"
+    env = dict(os.environ, FXLEDGER_DB=DB, FXLEDGER_USER="rpatel", FXLEDGER_NOW=at, NO_COLOR="1")
+    print("$ fxledger record        (line 2 of the worklist, then the readings as they come)")
+    r = subprocess.run([BIN, "record", "--interactive"], input=stdin, capture_output=True, text=True,
+                       env=env)
+    if r.returncode not in (0, 10, 11, 12):
+        sys.stderr.write("demo step failed (%d): record\n%s%s" % (r.returncode, r.stdout, r.stderr))
+        sys.exit(1)
+    sys.stdout.write(r.stdout)
+    print()
+
+
 def reports():
     heading("Reports for the auditor")
     gen = "2026-12-01T08:00:00Z"
@@ -436,6 +473,7 @@ def main():
     setup()
     treat()
     review()
+    console_day()
     reports()
 
 

@@ -16,6 +16,21 @@
 #define FXL_CALIB_FIELD_DEFAULT_CM 10.0
 #define FXL_CALIB_CHAMBER_DOSE_MAX_CGY 2000.0
 #define FXL_CALIB_VALID_DAYS_MAX 3650
+/* Acceptance limits used when the settings are not stored (docs/equipment.md):
+ * readings SD as % of their mean, change of N against the previous
+ * calibration of the same detector, beam and point, and difference of a
+ * first calibration from the detector's nominal sensitivity. */
+#define FXL_CALIB_SD_LIMIT_PCT_DEFAULT 1
+#define FXL_CALIB_CHANGE_LIMIT_PCT_DEFAULT 3
+#define FXL_CALIB_NOMINAL_LIMIT_PCT_DEFAULT 10
+
+/* The acceptance checks a physicist may confirm (fxl_calib_spec.confirm),
+ * by the names the CLI option takes: "sd", "n-change", "nominal". */
+#define FXL_CALIB_CONFIRM_SD 1
+#define FXL_CALIB_CONFIRM_N_CHANGE 2
+#define FXL_CALIB_CONFIRM_NOMINAL 4
+/* Parses "sd,n-change" into the bits above; FXL_EINVAL for an unknown name. */
+int fxl_calib_confirm_parse(int *out, const char *names);
 
 /* What fxl_calib_add writes. */
 typedef struct fxl_calib_spec {
@@ -29,6 +44,10 @@ typedef struct fxl_calib_spec {
     double temp_c;                 /* 10..45, NaN = FXL_CALIB_TEMP_DEFAULT_C */
     double ssd_cm;                 /* 50..200, NaN = 100 */
     double field_size_cm;          /* 1..50 (equivalent square), NaN = 10 */
+    double ref_thickness_cm;       /* exit only: phantom thickness of the set-up,
+                                      0 < t <= 60 cm, NaN or 0 = not given */
+    int confirm;                   /* FXL_CALIB_CONFIRM_* bits: the physicist
+                                      confirms these failed acceptance checks */
     int valid_days;                /* 1..FXL_CALIB_VALID_DAYS_MAX; 0 = default */
     const char *valid_until;       /* stored form, or NULL; exclusive with valid_days */
     const char *calibrated_at;     /* stored form, or NULL = now; not in the future */
@@ -52,6 +71,8 @@ typedef struct fxl_calibration {
     double sd;                     /* sample SD (n - 1), detector unit; 0 for n == 1 */
     double factor_cgy_per_unit;
     double temp_c, ssd_cm, field_size_cm;
+    double ref_thickness_cm;       /* exit reference phantom thickness, NaN if none */
+    char confirmed_change[400];    /* the acceptance checks confirmed, "" if none */
     char chamber[201];
     char notes[501];
     char user[65];
@@ -65,6 +86,14 @@ typedef struct fxl_calibration {
 
 /* Validates everything before writing, computes mean, SD and N, writes the
  * calibration and its audit row in one transaction (physicist or admin).
+ * Acceptance checks (settings calibration_sd_limit_pct,
+ * calibration_change_limit_pct, calibration_nominal_limit_pct): a readings
+ * SD above its limit, a change of N against the previous calibration of the
+ * same detector, beam and point above its limit, or (first calibration) an N
+ * off the nominal 1 / sensitivity by more than its limit is refused with
+ * FXL_EINVAL naming the values, unless the failed check is named in
+ * spec->confirm and the acting user is a physicist; the confirmation is then
+ * stored with the row (confirmed_change) and its audit row.
  * Validity: valid_until when given (end of that day if a bare date), else
  * valid_days, else setting 'calibration_interval_days', else
  * FXL_CALIBRATION_INTERVAL_DAYS_DEFAULT (fxl/settings.h). On success *out

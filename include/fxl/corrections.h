@@ -24,7 +24,9 @@ typedef struct fxl_corr_point {
 typedef struct fxl_corr_table_spec {
     char machine[65];
     char beam[33];
-    char parameter[12];            /* field_size, ssd, wedge, tray, angle */
+    char point[16];                /* "entrance" (default) or "exit" */
+    char parameter[12];            /* entrance: field_size, ssd, wedge, tray, angle;
+                                      exit: field_size, thickness, sdd, wedge, tray, angle */
     char effective_from[FXL_TIME_LEN];  /* stored form */
     char source[201];              /* "" when not given */
     fxl_corr_point *points;        /* strictly increasing x */
@@ -57,10 +59,17 @@ void fxl_corr_file_release(fxl_corr_file *file);
 /* Range of x a parameter accepts and its unit ("cm", "deg", "0/1"). */
 int fxl_corr_param_range(const char *parameter, double *lo, double *hi, const char **unit);
 
+/* Largest departure from 1 a table may have at the reference condition of
+ * the detector's calibration (docs/format-corrections.md): 0.5 %. */
+#define FXL_CORR_REFERENCE_TOL 0.005
+
 /* Stores every table of the file in ONE transaction with one audit row per
  * table (physicist or admin). Checks first that the detector and every
- * machine/beam exist and that no table with the same detector, beam,
- * parameter and effective date exists already (FXL_ECONFLICT). *out_ids (may
+ * machine/beam exist, that no table with the same detector, beam, point,
+ * parameter and effective date exists already (FXL_ECONFLICT), and that each
+ * table is 1 within FXL_CORR_REFERENCE_TOL at the reference condition of the
+ * detector's latest calibration for that beam and point (when the table
+ * covers that condition; FXL_EINVAL naming the value found). *out_ids (may
  * be NULL) receives a heap array of the new correction_tables ids in file
  * order (free()). */
 int fxl_corr_store(fxl_ctx *ctx, int64_t **out_ids, const fxl_corr_file *file);
@@ -71,6 +80,7 @@ typedef struct fxl_corr_table {
     char serial[65];
     char machine[65];
     char beam[33];
+    char point[16];
     char parameter[12];
     char effective_from[FXL_TIME_LEN];
     char source[201];

@@ -23,7 +23,8 @@ typedef struct fxl_detector_spec {
                                       mosfet, osl, tld, other */
     const char *reading_unit;      /* nC (NULL = nC), pC, mV, count, cGy */
     double sensitivity;            /* reading unit per cGy, > 0, or NaN */
-    double temp_coeff_per_c;       /* -FXL_TEMP_COEFF_MAX..FXL_TEMP_COEFF_MAX */
+    double temp_coeff_per_c;       /* -FXL_TEMP_COEFF_MAX..FXL_TEMP_COEFF_MAX; NaN = not
+                                      given: refused for a diode kind, 0 otherwise */
     const char *buildup;           /* free text, up to 200 characters, or NULL */
     double dose_limit_cgy;         /* accumulated-dose limit for recalibration, or NaN */
 } fxl_detector_spec;
@@ -88,6 +89,8 @@ int fxl_detector_set_status(fxl_ctx *ctx, const char *serial, const char *status
 
 /* 1 if `kind` / `status` / `unit` is one the schema accepts. */
 int fxl_detector_kind_valid(const char *kind);
+/* 1 for photon_diode, electron_diode and small_field_diode. */
+int fxl_detector_kind_is_diode(const char *kind);
 int fxl_detector_status_valid(const char *status);
 int fxl_detector_unit_valid(const char *unit);
 

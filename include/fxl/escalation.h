@@ -1,6 +1,6 @@
 /* The rule over history that changes a verdict: the same field outside
- * tolerance with the same sign of deviation on two consecutive measured
- * fractions escalates to the action level (DESIGN.md section 4; the
+ * tolerance with the same sign of deviation on its last two evaluated
+ * results escalates to the action level (docs/physics.md; the
  * re-measure-then-escalate practice of ESTRO Booklet 5 and AAPM TG-62, from
  * memory). Pure functions, no I/O. docs/record.md. */
 #ifndef FXL_ESCALATION_H
@@ -8,9 +8,11 @@
 
 #include "fxl/core.h"
 
-/* The current (not superseded) result of the same field at the previous
- * measured fraction of the same plan: the highest fraction number below the
- * one being judged that has a measurement of the field. */
+/* The field's last evaluated result before the one being judged: the
+ * current (not superseded) result of the same field of the same plan at the
+ * highest fraction number below it whose verdict is within tolerance,
+ * outside tolerance or outside the action level with a deviation; a
+ * not-evaluable or implausible result between is skipped (docs/rules.md). */
 typedef struct fxl_prior_result {
     int present;              /* 0: no earlier fraction measured this field */
     int fraction_number;

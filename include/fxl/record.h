@@ -94,6 +94,8 @@ typedef struct fxl_measurement_result {
     fxl_levels levels;
     fxl_verdict verdict;
     int escalated;                  /* 1: raised to action by the history rule */
+    int gross;                      /* 1: beyond the plausibility bound (gross
+                                       deviation, outside the action level) */
     fxl_reasons reasons;
     char amend_reason[FXL_AMEND_REASON_MAX + 1];
 } fxl_measurement_result;
@@ -147,7 +149,7 @@ typedef struct fxl_amend_request {
     const char *reason;       /* why, 1..FXL_AMEND_REASON_MAX characters (required) */
     double reading;           /* the corrected reading, > 0, detector unit */
     const char *detector;     /* serial; NULL keeps the original row's detector */
-    double background;        /* NaN = none */
+    double background;        /* NaN keeps the original row's M_0 (0 if it had none) */
     double temp_c;            /* NaN keeps the original row's temperature and
                                  its entered flag; else 10..45 degC */
 } fxl_amend_request;
@@ -227,7 +229,9 @@ typedef struct fxl_history_row {
     char reading_unit[8];
     double reading;
     double temp_c;
-    int temp_entered;
+    int temp_entered;               /* 0: temperature assumed (skin setting) */
+    double background;              /* M_0; NaN in rows older than schema 5 */
+    int gross;                      /* 1: beyond the plausibility bound */
     int64_t calibration_id;         /* 0 = none */
     double factor_n;
     double cf[FXL_CF_COUNT];

@@ -101,7 +101,9 @@ typedef struct fxl_review_measurement {
     int temp_entered;
     int64_t calibration_id;     /* 0 = none */
     double factor_n;            /* cGy per reading unit */
-    double cf[FXL_CF_COUNT];    /* field size, SSD, wedge, tray, angle */
+    double cf[FXL_CF_COUNT];    /* field size, SSD, wedge, tray, angle, thickness, SDD */
+    double background;          /* M_0; NaN in rows older than schema 5 */
+    int gross;                  /* 1: beyond the plausibility bound */
     double cf_temp;
     double corrected_dose_cgy;
     double expected_dose_cgy;
@@ -133,7 +135,8 @@ typedef struct fxl_review_trend_point {
     char verdict[24];
     int superseded;             /* 1: an amendment replaced this reading */
     int is_item;                /* 1: the item's own measurement */
-    double cusum_high, cusum_low;   /* detector trends only, else NaN */
+    double cusum_high, cusum_low;   /* detector trends only, in spreads, else NaN */
+    double sigma_pct;           /* detector trends: spread used (NaN in the start-up) */
 } fxl_review_trend_point;
 
 typedef struct fxl_review_detail {
@@ -143,7 +146,10 @@ typedef struct fxl_review_detail {
     int trend_is_detector;      /* 0: field history; 1: detector deviations */
     double trend_tolerance_pct; /* levels to draw on the trend, NaN if unknown */
     double trend_action_pct;
-    double cusum_target_pct, cusum_k_pct, cusum_h_pct;   /* detector trends: parameters used */
+    double cusum_target_pct;    /* detector trends: target, percent */
+    double cusum_k_sd, cusum_h_sd;   /* ... allowance and decision interval, spreads */
+    int cusum_startup;          /* ... results before the chart starts */
+    char trend_series[120];     /* ... "LINAC-A 6X entrance", "" for every series */
     size_t n_trend;
     fxl_review_trend_point *trend;     /* heap, oldest first */
     size_t n_events;

@@ -1,8 +1,9 @@
 /* Rules over history: pure functions (src/core, no I/O, no SQLite) that look
  * beyond one measurement. A measurement required by a field's policy that was
  * not made, a calibration expired or due, the dose a detector has accumulated
- * since its calibration, and the drift of a detector's deviations across all
- * patients (tabular CUSUM), plus an individuals / moving-range chart helper.
+ * since its calibration, a plain tabular CUSUM helper (the drift rule's
+ * standardised per-series chart is fxl/drift.h), plus an individuals /
+ * moving-range chart helper.
  * Every rule, its configuration and its default: docs/rules.md.
  * Units: deviations and CUSUM parameters in percent, doses in cGy, times in
  * the stored form 'YYYY-MM-DDTHH:MM:SSZ' (UTC). */
@@ -37,11 +38,10 @@ const char *fxl_severity_name(int severity);
 #define FXL_RULE_DOSE_LIMIT_SEVERITY FXL_SEVERITY_MEDIUM
 #define FXL_RULE_DRIFT_SEVERITY FXL_SEVERITY_HIGH
 
-/* Defaults used when the setting is not stored. The CUSUM values are a
- * starting point, not a recommendation: local policy, to be tuned on the
- * department's own spread of deviations (docs/rules.md). With a spread of
- * about 2 % they are k = 0.5 sigma and h = 5 sigma, the usual tabular-CUSUM
- * choice for detecting a shift of one sigma (Montgomery). */
+/* Defaults used when the setting is not stored. The two CUSUM percentages
+ * are only the defaults of the plain fxl_cusum helper below; the drift rule
+ * runs the standardised chart of fxl/drift.h, whose k and h are in units of
+ * each series' own spread (docs/rules.md). */
 #define FXL_WEEKLY_INTERVAL_DAYS_DEFAULT 7
 #define FXL_CALIBRATION_DUE_DAYS_DEFAULT 14
 #define FXL_CUSUM_TARGET_PCT_DEFAULT 0.0

@@ -53,9 +53,10 @@ int fxl_thresholds_choose(fxl_ctx *ctx, fxl_threshold_choice *out, const fxl_sco
 
 /* ---- saving and listing sets ------------------------------------------ */
 
-/* Accepted ranges (percent and cGy), the same as the schema's checks. */
+/* Accepted ranges (percent and cGy). The schema allows floors up to 50 cGy
+ * (older sets); a new version is refused above FXL_FLOOR_MAX_CGY (core.h). */
 #define FXL_LEVEL_PCT_MAX 50.0
-#define FXL_FLOOR_CGY_MAX 50.0
+#define FXL_FLOOR_CGY_MAX FXL_FLOOR_MAX_CGY
 
 /* One stored version of a threshold set. String scope columns are "" when
  * open; energy is NaN when open. */

@@ -15,7 +15,7 @@ int cmd_amend(cli_env *env, int argc, char **argv)
         {"reason", "TEXT", "why the reading is amended, e.g. 'typed 2.04 for 20.4' (required)", NULL},
         {"temp", "C", "temperature at the detector, 10 to 45 degC (default: as in the original)", NULL},
         {"detector", "SERIAL", "the detector actually used (default: as in the original)", NULL},
-        {"background", "X", "background reading subtracted, >= 0, detector unit", NULL},
+        {"background", "X", "background reading subtracted, >= 0, detector unit (default: as in the original)", NULL},
         {NULL, NULL, NULL, NULL}};
     fxl_amend_request req;
     fxl_record_result res = FXL_RECORD_RESULT_INIT;

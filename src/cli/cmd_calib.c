@@ -88,6 +88,8 @@ static cJSON *calib_json(const fxl_calibration *c)
     cJSON_AddNumberToObject(o, "temp_c", c->temp_c);
     cJSON_AddNumberToObject(o, "ssd_cm", c->ssd_cm);
     cJSON_AddNumberToObject(o, "field_size_cm", c->field_size_cm);
+    cli_json_put_number(o, "ref_thickness_cm", c->ref_thickness_cm);
+    cli_json_put_text(o, "confirmed_change", c->confirmed_change);
     cli_json_put_text(o, "chamber", c->chamber);
     cli_json_put_text(o, "notes", c->notes);
     cJSON_AddStringToObject(o, "user", c->user);
@@ -114,6 +116,13 @@ static int calib_add(cli_env *env, int argc, char **argv)
         {"temp", "DEGC", "temperature during calibration (default 20 degC, stated as assumed)", NULL},
         {"ssd", "CM", "SSD of the reference set-up (default 100 cm)", NULL},
         {"field-size", "CM", "field size of the reference set-up (default 10 cm)", NULL},
+        {"thickness", "CM", "exit only: phantom thickness of the reference set-up (the reference "
+                            "source-to-detector distance is SSD + thickness)", NULL},
+        {"confirm-change", "CHECKS", "physicist only: put the calibration in force although it "
+                                     "fails the named acceptance checks, comma-separated: sd "
+                                     "(readings spread), n-change (N against the previous "
+                                     "calibration), nominal (first N against the nominal "
+                                     "sensitivity)", NULL},
         {"valid-days", "N", "valid for N days (default: setting calibration_interval_days, else 90)", NULL},
         {"valid-until", "DATE", "valid until the end of DATE (instead of --valid-days)", NULL},
         {"at", "DATE", "when it was measured (default now; not in the future)", NULL},
@@ -131,7 +140,8 @@ static int calib_add(cli_env *env, int argc, char **argv)
 
     rc = cli_parse(env,
                    "calib add SERIAL --machine M --beam B --point entrance|exit --chamber-dose CGY "
-                   "--readings R1,R2,... [--temp DEGC] [--ssd CM] [--field-size CM] "
+                   "--readings R1,R2,... [--temp DEGC] [--ssd CM] [--field-size CM] [--thickness CM] "
+                   "[--confirm-change sd,n-change,nominal] "
                    "[--valid-days N | --valid-until DATE] [--at DATE] [--chamber TEXT] [--notes TEXT]",
                    "Records a cross-calibration against an ion chamber (physicist or admin):\n"
                    "N = chamber dose / mean reading, in cGy per reading unit. Prints N, the mean,\n"
@@ -151,7 +161,17 @@ static int calib_add(cli_env *env, int argc, char **argv)
     c.point = cli_get(opts, "point");
     c.chamber = cli_get(opts, "chamber");
     c.notes = cli_get(opts, "notes");
-    c.temp_c = c.ssd_cm = c.field_size_cm = NAN;
+    c.temp_c = c.ssd_cm = c.field_size_cm = c.ref_thickness_cm = NAN;
+    if (cli_get(opts, "confirm-change") &&
+        fxl_calib_confirm_parse(&c.confirm, cli_get(opts, "confirm-change")) != 0) {
+        cli_error("--confirm-change '%s' must name the checks confirmed: sd, n-change, nominal "
+                  "(comma-separated)", cli_get(opts, "confirm-change"));
+        return CLI_EXIT_USAGE;
+    }
+    if (cli_get(opts, "thickness") &&
+        cli_double(&c.ref_thickness_cm, cli_get(opts, "thickness"), "phantom thickness", 0.1, 60,
+                   "cm") != 0)
+        return CLI_EXIT_DATA;
     if (!c.machine || !c.beam) {
         cli_error("--machine and --beam are required (see 'fxledger machine list')");
         return CLI_EXIT_USAGE;
@@ -221,7 +241,12 @@ static int calib_add(cli_env *env, int argc, char **argv)
     printf("  N              %.5f cGy/%s\n", out.factor_cgy_per_unit, out.reading_unit);
     printf("  conditions     SSD %g cm, field %g cm, %.1f degC%s\n", out.ssd_cm, out.field_size_cm,
            out.temp_c, isnan(c.temp_c) ? " (assumed: no --temp given)" : "");
+    if (isfinite(out.ref_thickness_cm))
+        printf("  exit reference phantom %g cm, source-to-detector distance %g cm\n",
+               out.ref_thickness_cm, out.ssd_cm + out.ref_thickness_cm);
     printf("  valid          %s to %s\n", out.calibrated_at, out.valid_until);
+    if (out.confirmed_change[0])
+        printf("  confirmed      %s\n", out.confirmed_change);
     if (!isnan(out.previous_factor))
         printf("  previous N     %.5f cGy/%s (change %+.2f %%)\n", out.previous_factor,
                out.reading_unit, (out.factor_cgy_per_unit - out.previous_factor) / out.previous_factor * 100);

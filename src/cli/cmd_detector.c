@@ -42,7 +42,7 @@ static int detector_add(cli_env *env, int argc, char **argv)
         {"kind", "KIND", "photon_diode, electron_diode, small_field_diode, mosfet, osl, tld or other (required)", NULL},
         {"unit", "UNIT", "reading unit: nC (default), pC, mV, count or cGy", NULL},
         {"sensitivity", "X", "nominal sensitivity, reading unit per cGy", NULL},
-        {"temp-coeff", "A", "temperature coefficient as a FRACTION per degC (0.003 = 0.3 %/degC; default 0)", NULL},
+        {"temp-coeff", "A", "temperature coefficient as a FRACTION per degC (0.003 = 0.3 %/degC); required for diodes, 0 allowed; default 0 for other kinds", NULL},
         {"buildup", "TEXT", "build-up cap, e.g. 'brass cap, 6-12 MV'", NULL},
         {"dose-limit", "CGY", "accumulated dose after which it is due for recalibration, cGy", NULL},
         {NULL, NULL, NULL, NULL}};
@@ -71,7 +71,7 @@ static int detector_add(cli_env *env, int argc, char **argv)
     d.reading_unit = cli_get(opts, "unit");
     d.buildup = cli_get(opts, "buildup");
     d.sensitivity = d.dose_limit_cgy = NAN;
-    d.temp_coeff_per_c = 0;
+    d.temp_coeff_per_c = NAN;  /* required for diodes (store/detectors.c) */
     if (!d.label || !*d.label) {
         cli_error("--label is required (1 to 64 characters)");
         return CLI_EXIT_USAGE;

@@ -46,6 +46,9 @@ static cJSON *row_json(const fxl_history_row *r)
     cJSON_AddStringToObject(o, "reading_unit", r->reading_unit);
     cli_json_put_number(o, "temp_c", r->temp_c);
     cJSON_AddBoolToObject(o, "temp_entered", r->temp_entered);
+    cJSON_AddBoolToObject(o, "temperature_assumed", !r->temp_entered);
+    cli_json_put_number(o, "background", r->background);
+    cJSON_AddBoolToObject(o, "gross", r->gross);
     cli_json_put_id(o, "calibration_id", r->calibration_id);
     cli_json_put_number(o, "factor_n_cgy_per_unit", r->factor_n);
     cf = cJSON_AddObjectToObject(o, "factors");
@@ -193,6 +196,14 @@ int cmd_history(cli_env *env, int argc, char **argv)
                 size_t used = strlen(note);
                 snprintf(note + used, sizeof note - used, "%samends #%lld: %s", used ? "; " : "",
                          (long long)r->supersedes_id, r->amend_reason);
+            }
+            if (r->gross) {
+                size_t used = strlen(note);
+                snprintf(note + used, sizeof note - used, "%sgross deviation", used ? "; " : "");
+            }
+            if (!r->temp_entered) {
+                size_t used = strlen(note);
+                snprintf(note + used, sizeof note - used, "%stemperature assumed", used ? "; " : "");
             }
             if (!note[0])
                 continue;

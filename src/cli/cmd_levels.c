@@ -84,7 +84,7 @@ static int levels_set(cli_env *env, int argc, char **argv)
     cli_opt opts[] = {
         {"tolerance", "PCT", "tolerance level, percent (> 0 and <= 50)", NULL},
         {"action", "PCT", "action level, percent (>= tolerance, <= 50)", NULL},
-        {"floor", "CGY", "absolute floor: |D - D_exp| at or below it is within tolerance (0 to 50 cGy)", NULL},
+        {"floor", "CGY", "absolute floor: |D - D_exp| at or below it is within tolerance (0 to 5 cGy)", NULL},
         {"site", "S", "scope: treatment site as in plans ('any' to open)", NULL},
         {"technique", "T", "scope: technique as in plans ('any' to open)", NULL},
         {"modality", "M", "scope: photon or electron ('any' to open)", NULL},
@@ -123,7 +123,7 @@ static int levels_set(cli_env *env, int argc, char **argv)
         return CLI_EXIT_DATA;
     if ((v = cli_get(opts, "action")) && cli_double(&chg.action_pct, v, "action level", 0.01, 50, "%") != 0)
         return CLI_EXIT_DATA;
-    if ((v = cli_get(opts, "floor")) && cli_double(&chg.floor_cgy, v, "floor", 0, 50, "cGy") != 0)
+    if ((v = cli_get(opts, "floor")) && cli_double(&chg.floor_cgy, v, "floor", 0, FXL_FLOOR_CGY_MAX, "cGy") != 0)
         return CLI_EXIT_DATA;
     if ((v = cli_get(opts, "energy"))) {
         if (strcmp(v, "any") == 0)

@@ -6,6 +6,8 @@
 
 #include "cli/cli.h"
 #include "cli/json_put.h"
+#include "cli/table.h"
+#include "fxl/fraction.h"
 #include "fxl/patients.h"
 #include "fxl/plans.h"
 
@@ -36,7 +38,8 @@ static int patient_add(cli_env *env, int argc, char **argv)
 
     rc = cli_parse(env, "patient add MRN --family NAME [--given NAME] [--birth-date YYYY-MM-DD]",
                    "Adds a patient by medical record number (MRN). Therapists, physicists and\n"
-                   "admins may add patients. A patient is never edited or deleted afterwards.",
+                   "admins may add patients. A patient is never deleted; a mistyped value is\n"
+                   "corrected with 'fxledger patient correct' and its history kept.",
                    opts, argc, argv, pos, 1, &npos);
     if (rc != 0)
         return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
@@ -188,13 +191,113 @@ static int patient_show(cli_env *env, int argc, char **argv)
     return CLI_EXIT_OK;
 }
 
+static int patient_correct(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {
+        {"mrn", "MRN", "the corrected MRN", NULL},
+        {"family", "NAME", "the corrected family name", NULL},
+        {"given", "NAME", "the corrected given name(s) ('' clears)", NULL},
+        {"birth-date", "DATE", "the corrected date of birth, YYYY-MM-DD ('' clears)", NULL},
+        {"reason", "TEXT", "why (required): kept with the old value", NULL},
+        {NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    fxl_patient_correction c;
+    fxl_patient p;
+    int npos, rc;
+
+    rc = cli_parse(env, "patient correct MRN [--mrn MRN] [--family NAME] [--given NAME] "
+                   "[--birth-date DATE] --reason TEXT",
+                   "Corrects a mistyped MRN, name or date of birth (physicist or admin). The old\n"
+                   "value is kept in the patient's history ('fxledger patient history MRN') and\n"
+                   "in the audit trail with the reason; nothing is edited without a trace.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("patient correct needs the MRN (see 'fxledger patient correct --help')");
+        return CLI_EXIT_USAGE;
+    }
+    if (!cli_get(opts, "reason")) {
+        cli_error("--reason is required (why the value is corrected, 1 to %d characters)",
+                  FXL_PATIENT_REASON_MAX);
+        return CLI_EXIT_USAGE;
+    }
+    memset(&c, 0, sizeof c);
+    c.mrn = cli_get(opts, "mrn");
+    c.family_name = cli_get(opts, "family");
+    c.given_name = cli_get(opts, "given");
+    c.birth_date = cli_get(opts, "birth-date");
+    c.reason = cli_get(opts, "reason");
+    if ((rc = fxl_patient_correct(env->ctx, pos[0], &c)) != 0 ||
+        (rc = fxl_patient_get(env->ctx, &p, c.mrn ? c.mrn : pos[0])) != 0)
+        return cli_fail(env, rc);
+    if (env->json)
+        return cli_print_json(patient_json(&p));
+    printf("corrected patient %s: %s%s%s%s%s (the old values stay in 'fxledger patient history %s')\n",
+           p.mrn, p.family_name, p.given_name[0] ? ", " : "", p.given_name,
+           p.birth_date[0] ? ", born " : "", p.birth_date, p.mrn);
+    return CLI_EXIT_OK;
+}
+
+static int patient_history(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    const char *pos[1];
+    fxl_patient_change *list = NULL;
+    size_t n = 0, i;
+    int npos, rc;
+
+    rc = cli_parse(env, "patient history MRN",
+                   "Lists the corrections of a patient's MRN, name and date of birth, oldest\n"
+                   "first, with the old and new value, the reason, who and when. An MRN the\n"
+                   "patient had before a correction finds the patient too.",
+                   opts, argc, argv, pos, 1, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 1) {
+        cli_error("patient history needs the MRN (see 'fxledger patient history --help')");
+        return CLI_EXIT_USAGE;
+    }
+    if ((rc = fxl_patient_history(env->ctx, &list, &n, pos[0])) != 0)
+        return cli_fail(env, rc);
+    if (env->json) {
+        cJSON *arr = cJSON_CreateArray();
+        for (i = 0; i < n; i++) {
+            cJSON *o = cJSON_CreateObject();
+            cJSON_AddNumberToObject(o, "id", (double)list[i].id);
+            cJSON_AddStringToObject(o, "item", list[i].item);
+            cli_json_put_text(o, "old_value", list[i].old_value);
+            cli_json_put_text(o, "new_value", list[i].new_value);
+            cJSON_AddStringToObject(o, "reason", list[i].reason);
+            cJSON_AddStringToObject(o, "user", list[i].user);
+            cJSON_AddStringToObject(o, "at", list[i].at);
+            cJSON_AddItemToArray(arr, o);
+        }
+        free(list);
+        return cli_print_json(arr);
+    }
+    if (n == 0)
+        printf("no corrections of patient %s\n", pos[0]);
+    for (i = 0; i < n; i++) {
+        char when[48], line[1200];
+        fxl_time_show_local(env->ctx, when, sizeof when, list[i].at);
+        snprintf(line, sizeof line, "%s: '%s' -> '%s' by %s on %s; reason: %s", list[i].item,
+                 list[i].old_value, list[i].new_value, list[i].user, when, list[i].reason);
+        cli_wrap_hang(stdout, "", 4, line, CLI_WIDTH);
+    }
+    free(list);
+    return CLI_EXIT_OK;
+}
+
 static const cli_sub subs[] = {
     {"add", patient_add, "add a patient by MRN (therapist, physicist or admin)"},
     {"list", patient_list, "list patients with their numbers of plans and fractions"},
     {"show", patient_show, "show a patient with plans, fields and fractions logged"},
+    {"correct", patient_correct, "correct a mistyped MRN, name or birth date (physicist or admin)"},
+    {"history", patient_history, "list the corrections of a patient's identity"},
     {NULL, NULL, NULL}};
 
 int cmd_patient(cli_env *env, int argc, char **argv)
 {
-    return cli_dispatch_sub(env, subs, "Patients: add, list and show.", argc, argv);
+    return cli_dispatch_sub(env, subs, "Patients: add, list, show, correct and their history.", argc, argv);
 }

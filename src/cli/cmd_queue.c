@@ -275,10 +275,12 @@ static void print_trend(const cli_env *env, const fxl_review_detail *d)
 
     (void)env;
     if (d->trend_is_detector) {
-        printf("\nDeviations measured with detector %s since its latest calibration or closed\n"
-               "drift review, all patients, with the CUSUM sums (target %.2f %%, k = %.2f %%,\n"
-               "h = %.2f %%):\n",
-               d->item.detector, d->cusum_target_pct, d->cusum_k_pct, d->cusum_h_pct);
+        printf("\nDeviations measured with detector %s%s%s since its latest calibration or\n"
+               "closed drift review, all patients, with the standardised CUSUM sums in spreads\n"
+               "(target %.2f %%, k = %.2f, h = %.2f spreads, start-up %d results; spread from\n"
+               "the series' moving ranges):\n",
+               d->item.detector, d->trend_series[0] ? ", " : "", d->trend_series,
+               d->cusum_target_pct, d->cusum_k_sd, d->cusum_h_sd, d->cusum_startup);
     } else {
         printf("\nHistory of field %s %s (patient %s), deviation per fraction:\n", d->item.field,
                d->item.point, d->item.mrn);
@@ -307,6 +309,8 @@ static void print_trend(const cli_env *env, const fxl_review_detail *d)
         if (d->trend_is_detector)
             printf("  %.10s  %-10.10s %-8.8s %s  C+ %5.2f  C- %5.2f  %s\n", t->treated_at, t->mrn,
                    t->field, dev, t->cusum_high, t->cusum_low, lane);
+    if (d->trend_is_detector && d->n_trend && isfinite(d->trend[d->n_trend - 1].sigma_pct))
+        printf("  spread used at the last result: %.2f %%\n", d->trend[d->n_trend - 1].sigma_pct);
         else
             printf("  fx %3d  %.10s  %s  %-18s %s%s\n", t->fraction_number, t->treated_at, dev,
                    t->verdict, lane, t->superseded ? "  (superseded)" : "");
@@ -326,7 +330,8 @@ static void print_factor(const char *name, double v, const char *fmt_unit)
 static void print_measurement(const fxl_review_measurement *m)
 {
     static const char *const cf_names[FXL_CF_COUNT] = {"CF field size", "CF SSD", "CF wedge",
-                                                       "CF tray", "CF angle"};
+                                                       "CF tray", "CF angle", "CF thickness",
+                                                       "CF SDD"};
     int i;
 
     printf("\nMeasurement #%lld: fraction %d, treated %s, recorded by %s at %s\n", (long long)m->id,
@@ -334,8 +339,13 @@ static void print_measurement(const fxl_review_measurement *m)
     printf("  %-16s %s %s, beam %s, detector %s\n", "field", m->field, m->point, m->beam,
            m->detector);
     printf("  %-16s %.4g %s\n", "reading", m->reading, m->reading_unit);
+    if (isfinite(m->background))
+        printf("  %-16s %.4g %s\n", "background M0", m->background, m->reading_unit);
     printf("  %-16s %.1f degC (%s)\n", "temperature", m->temp_c,
-           m->temp_entered ? "entered" : "skin-temperature setting");
+           m->temp_entered ? "entered" : "temperature assumed: skin-temperature setting");
+    if (m->gross)
+        printf("  %-16s beyond the plausibility bound: re-read and unit check first; a confirmed "
+               "reading stands\n", "gross deviation");
     if (m->calibration_id)
         printf("  %-16s #%lld, N = %.5g cGy/%s\n", "calibration", (long long)m->calibration_id,
                m->factor_n, m->reading_unit);
@@ -381,7 +391,8 @@ static void print_measurement(const fxl_review_measurement *m)
 static cJSON *measurement_json(const fxl_review_measurement *m)
 {
     static const char *const cf_keys[FXL_CF_COUNT] = {"cf_field_size", "cf_ssd", "cf_wedge",
-                                                      "cf_tray", "cf_angle"};
+                                                      "cf_tray", "cf_angle", "cf_thickness",
+                                                      "cf_sdd"};
     cJSON *o = cJSON_CreateObject(), *reasons = cJSON_CreateArray();
     int i;
 
@@ -398,6 +409,9 @@ static cJSON *measurement_json(const fxl_review_measurement *m)
     cJSON_AddStringToObject(o, "reading_unit", m->reading_unit);
     cli_json_put_number(o, "temp_c", m->temp_c);
     cJSON_AddBoolToObject(o, "temp_entered", m->temp_entered);
+    cJSON_AddBoolToObject(o, "temperature_assumed", !m->temp_entered);
+    cli_json_put_number(o, "background", m->background);
+    cJSON_AddBoolToObject(o, "gross", m->gross);
     cli_json_put_id(o, "calibration_id", m->calibration_id);
     cli_json_put_number(o, "factor_n_cgy_per_unit", m->factor_n);
     for (i = 0; i < FXL_CF_COUNT; i++)
@@ -460,8 +474,10 @@ static int queue_show(cli_env *env, int argc, char **argv)
         cli_json_put_number(o, "trend_action_pct", d.trend_action_pct);
         if (d.trend_is_detector) {
             cli_json_put_number(o, "cusum_target_pct", d.cusum_target_pct);
-            cli_json_put_number(o, "cusum_k_pct", d.cusum_k_pct);
-            cli_json_put_number(o, "cusum_h_pct", d.cusum_h_pct);
+            cli_json_put_number(o, "cusum_k_sd", d.cusum_k_sd);
+            cli_json_put_number(o, "cusum_h_sd", d.cusum_h_sd);
+            cJSON_AddNumberToObject(o, "cusum_startup", d.cusum_startup);
+            cJSON_AddStringToObject(o, "series", d.trend_series);
         }
         for (i = 0; i < d.n_trend; i++) {
             const fxl_review_trend_point *t = &d.trend[i];
@@ -476,8 +492,9 @@ static int queue_show(cli_env *env, int argc, char **argv)
             cJSON_AddBoolToObject(p, "superseded", t->superseded);
             cJSON_AddBoolToObject(p, "this_item", t->is_item);
             if (d.trend_is_detector) {
-                cli_json_put_number(p, "cusum_high_pct", t->cusum_high);
-                cli_json_put_number(p, "cusum_low_pct", t->cusum_low);
+                cli_json_put_number(p, "cusum_high_sd", t->cusum_high);
+                cli_json_put_number(p, "cusum_low_sd", t->cusum_low);
+                cli_json_put_number(p, "sigma_pct", t->sigma_pct);
             }
             cJSON_AddItemToArray(trend, p);
         }
@@ -590,23 +607,28 @@ static int queue_ack(cli_env *env, int argc, char **argv)
 
 static int queue_comment(cli_env *env, int argc, char **argv)
 {
-    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
-    const char *pos[2];
+    cli_opt opts[] = {{"comment", "TEXT", "the comment (required), as for the other events", NULL},
+                      {NULL, NULL, NULL, NULL}};
+    const char *pos[2], *text;
     int64_t id;
     int npos, rc;
 
-    rc = cli_parse(env, "queue comment ID TEXT",
-                   "Adds a signed comment to an item in any status (therapist, physicist, admin).",
+    rc = cli_parse(env, "queue comment ID --comment TEXT",
+                   "Adds a signed comment to an item in any status (therapist, physicist, admin).\n"
+                   "The text may also follow the id (queue comment ID TEXT), as before.",
                    opts, argc, argv, pos, 2, &npos);
     if (rc != 0)
         return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
-    if (npos != 2) {
-        cli_error("queue comment needs an item id and the comment text");
+    text = cli_get(opts, "comment");
+    if (npos < 1 || npos > 2 || (npos == 2 && text) || (npos == 1 && !text)) {
+        cli_error("queue comment needs an item id and --comment TEXT");
         return CLI_EXIT_USAGE;
     }
+    if (npos == 2)
+        text = pos[1];
     if (parse_item_id(&id, pos[0]) != 0)
         return CLI_EXIT_USAGE;
-    if ((rc = fxl_review_comment(env->ctx, id, pos[1])) != 0)
+    if ((rc = fxl_review_comment(env->ctx, id, text)) != 0)
         return cli_fail(env, rc);
     return print_event_done(env, id, "comment", "commented");
 }

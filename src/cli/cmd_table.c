@@ -20,6 +20,7 @@ static cJSON *table_json(const fxl_corr_table *t)
     cJSON_AddStringToObject(o, "serial", t->serial);
     cJSON_AddStringToObject(o, "machine", t->machine);
     cJSON_AddStringToObject(o, "beam", t->beam);
+    cJSON_AddStringToObject(o, "point", t->point);
     cJSON_AddStringToObject(o, "parameter", t->parameter);
     cJSON_AddStringToObject(o, "x_unit", unit);
     cJSON_AddStringToObject(o, "effective_from", t->effective_from);
@@ -85,6 +86,7 @@ static int table_load(cli_env *env, int argc, char **argv)
             cJSON_AddNumberToObject(t, "id", (double)ids[i]);
             cJSON_AddStringToObject(t, "machine", file.tables[i].machine);
             cJSON_AddStringToObject(t, "beam", file.tables[i].beam);
+            cJSON_AddStringToObject(t, "point", file.tables[i].point);
             cJSON_AddStringToObject(t, "parameter", file.tables[i].parameter);
             cJSON_AddStringToObject(t, "effective_from", file.tables[i].effective_from);
             cJSON_AddNumberToObject(t, "n_points", (double)file.tables[i].n_points);
@@ -99,8 +101,8 @@ static int table_load(cli_env *env, int argc, char **argv)
         const fxl_corr_table_spec *t = &file.tables[i];
         const char *unit = "";
         fxl_corr_param_range(t->parameter, NULL, NULL, &unit);
-        printf("  #%-4lld %s %s %-10s from %.10s  %zu points, x %g to %g %s\n", (long long)ids[i],
-               t->machine, t->beam, t->parameter, t->effective_from, t->n_points, t->points[0].x,
+        printf("  #%-4lld %s %s %-8s %-10s from %.10s  %zu points, x %g to %g %s\n", (long long)ids[i],
+               t->machine, t->beam, t->point, t->parameter, t->effective_from, t->n_points, t->points[0].x,
                t->points[t->n_points - 1].x, unit);
     }
     rc = CLI_EXIT_OK;
@@ -136,15 +138,15 @@ static int table_list(cli_env *env, int argc, char **argv)
     if (n == 0)
         printf("no correction tables\n");
     else
-        printf("%-5s %-14s %-10s %-8s %-10s %-10s %-6s %-18s %s\n", "ID", "SERIAL", "MACHINE", "BEAM",
-               "PARAMETER", "FROM", "POINTS", "RANGE", "IN FORCE");
+        printf("%-5s %-14s %-10s %-8s %-8s %-10s %-10s %-6s %-18s %s\n", "ID", "SERIAL", "MACHINE",
+               "BEAM", "POINT", "PARAMETER", "FROM", "POINTS", "RANGE", "IN FORCE");
     for (i = 0; i < n; i++) {
         const char *unit = "";
         char range[40];
         fxl_corr_param_range(list[i].parameter, NULL, NULL, &unit);
         snprintf(range, sizeof range, "%g to %g %s", list[i].x_min, list[i].x_max, unit);
-        printf("%-5lld %-14s %-10s %-8s %-10s %-10.10s %-6zu %-18s %s\n", (long long)list[i].id,
-               list[i].serial, list[i].machine, list[i].beam, list[i].parameter,
+        printf("%-5lld %-14s %-10s %-8s %-8s %-10s %-10.10s %-6zu %-18s %s\n", (long long)list[i].id,
+               list[i].serial, list[i].machine, list[i].beam, list[i].point, list[i].parameter,
                list[i].effective_from, list[i].n_points, range, list[i].in_force ? "yes" : "no");
     }
     fxl_corr_list_free(list, n);
@@ -182,6 +184,7 @@ static int table_show(cli_env *env, int argc, char **argv)
     printf("correction table #%lld\n", (long long)t.id);
     printf("  detector        %s\n", t.serial);
     printf("  beam            %s %s\n", t.machine, t.beam);
+    printf("  point           %s\n", t.point);
     printf("  parameter       %s (%s)\n", t.parameter, unit);
     printf("  effective from  %s%s\n", t.effective_from, t.in_force ? " (in force)" : " (not in force)");
     printf("  source          %s\n", t.source[0] ? t.source : "-");

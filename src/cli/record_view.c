@@ -131,7 +131,8 @@ void cli_record_print_with(const cli_env *env, const fxl_record_result *r,
         num(dose, sizeof dose, implausible ? NAN : m->corrected_dose_cgy, "%.1f", NULL);
         num(expected, sizeof expected, m->expected_dose_cgy, "%.1f", NULL);
         num(dev, sizeof dev, implausible ? NAN : m->deviation_pct, "%+.2f", "%");
-        snprintf(verdict, sizeof verdict, "%s%s", cli_verdict_short(m->verdict), m->escalated ? " esc." : "");
+        snprintf(verdict, sizeof verdict, "%s%s", cli_verdict_short(m->verdict),
+                 m->gross ? " gross" : m->escalated ? " esc." : "");
         cells[0] = id;
         cells[1] = m->field;
         cells[2] = strcmp(m->point, "entrance") == 0 ? "ent" : m->point;
@@ -161,7 +162,7 @@ void cli_record_print_with(const cli_env *env, const fxl_record_result *r,
         }
         if (j) {
             char text[900];
-            snprintf(text, sizeof text, "No temperature entered for %s: %.1f degC assumed (setting "
+            snprintf(text, sizeof text, "Temperature assumed (none entered) for %s: %.1f degC assumed (setting "
                      "skin_temp_c); give --temp with the measured value.", names, assumed_c);
             cli_wrap(stdout, "", text, CLI_WIDTH);
         }
@@ -178,7 +179,8 @@ void cli_record_print_with(const cli_env *env, const fxl_record_result *r,
         printf("%s", cli_color(env, CLI_RESET));
         for (j = 0; j < m->reasons.n && j < FXL_REASONS_MAX; j++)
             cli_wrap(stdout, "  - ", m->reasons.text[j], CLI_WIDTH);
-        cli_wrap(stdout, "  What to do: ", fxl_verdict_guidance(m->verdict), CLI_WIDTH);
+        cli_wrap(stdout, "  What to do: ",
+                 m->gross ? fxl_gross_guidance() : fxl_verdict_guidance(m->verdict), CLI_WIDTH);
         if (m->review_item_id)
             printf("  Review item #%lld opened for a physicist.\n", (long long)m->review_item_id);
     }

@@ -24,7 +24,23 @@ static const struct {
     [FXL_CF_WEDGE] = {"wedge", "wedge", "deg", 1},
     [FXL_CF_TRAY] = {"tray", "tray", "", 1},
     [FXL_CF_ANGLE] = {"angle", "beam angle", "deg", 0},
+    [FXL_CF_THICKNESS] = {"thickness", "patient thickness", "cm", 0},
+    [FXL_CF_SDD] = {"sdd", "source-to-detector distance", "cm", 0},
 };
+
+int fxl_cf_applies(fxl_cf_param p, int exit)
+{
+    switch (p) {
+    case FXL_CF_SSD: return !exit;
+    case FXL_CF_THICKNESS:
+    case FXL_CF_SDD: return exit;
+    case FXL_CF_FIELD_SIZE:
+    case FXL_CF_WEDGE:
+    case FXL_CF_TRAY:
+    case FXL_CF_ANGLE: return 1;
+    default: return 0;
+    }
+}
 
 const char *fxl_cf_name(fxl_cf_param p)
 {
@@ -116,10 +132,11 @@ static void discrete_list(char *buf, size_t size, fxl_cf_param p, const fxl_fact
 }
 
 /* One correction factor: 0 and *cf set, or -1 with a reason added. */
-static int correction_factor(double *cf, fxl_reasons *reasons, fxl_cf_param p,
+static int correction_factor(double *cf, fxl_reasons *reasons, fxl_cf_param p, int exit,
                              double value, double ref, const fxl_factor_table *t)
 {
     const char *words = cf_info[p].words;
+    const char *pt = exit ? "exit " : "";
     char val[64];
     int rc;
 
@@ -139,16 +156,16 @@ static int correction_factor(double *cf, fxl_reasons *reasons, fxl_cf_param p,
         }
         if (!isfinite(ref)) {
             fxl_reasons_add(reasons,
-                            "no %s correction table is commissioned for this detector and beam, "
+                            "no %s%s correction table is commissioned for this detector and beam, "
                             "and the calibration's reference %s is not known",
-                            words, words);
+                            pt, words, words);
             return -1;
         }
         value_words(refw, sizeof refw, p, ref);
         fxl_reasons_add(reasons,
-                        "no %s correction table is commissioned for this detector and beam; "
+                        "no %s%s correction table is commissioned for this detector and beam; "
                         "%s differs from the calibration reference (%s)",
-                        words, val, refw);
+                        pt, words, val, refw);
         return -1;
     }
     if (cf_info[p].discrete)
@@ -226,7 +243,9 @@ int fxl_dose_from_reading(fxl_dose_result *out, const fxl_dose_input *in)
     /* Every factor is evaluated even after a failure so that the reasons
      * list every problem at once, not one per attempt. */
     for (i = 0; i < FXL_CF_COUNT; i++) {
-        if (correction_factor(&out->cf[i], &out->reasons, (fxl_cf_param)i, in->param[i],
+        if (!fxl_cf_applies((fxl_cf_param)i, in->exit))
+            continue;  /* stays NaN: not a factor of this point */
+        if (correction_factor(&out->cf[i], &out->reasons, (fxl_cf_param)i, in->exit, in->param[i],
                               in->ref[i], &in->table[i]) != 0)
             ok = 0;
         else
@@ -243,8 +262,10 @@ int fxl_dose_from_reading(fxl_dose_result *out, const fxl_dose_input *in)
     }
     if (!ok)
         return 0;
-    /* D = (M - M_0) N CF_fs CF_ssd CF_wedge CF_tray CF_angle CF_T
-     * (AAPM Report 87 / TG-62; ESTRO Booklet 5). */
+    /* D = (M - M_0) N CF_fs CF_ssd CF_wedge CF_tray CF_angle CF_T at entrance
+     * (AAPM Report 87 / TG-62; ESTRO Booklet 5); at exit the thickness and
+     * source-to-detector distance factors replace the SSD factor (ESTRO
+     * Booklet 1, IAEA HHR 8, from memory). */
     out->dose_cgy = net * in->factor_n * product * out->cf_temp;
     if (!isfinite(out->dose_cgy)) {
         out->dose_cgy = NAN;

@@ -8,13 +8,31 @@
 #include "fxl/core.h"
 #include "fxl/fxl.h"
 
-/* Default bound on |deviation| past which a result is an entry or unit error
- * rather than a dose (DESIGN section 4; a reading off by half is not a set-up
- * error a diode can report). */
+/* Default plausibility bound on |deviation|: beyond it a result is a gross
+ * deviation (outside the action level, with a re-read asked for first). */
 #define IMPLAUSIBLE_DEFAULT_PCT 50.0
-/* measured/expected outside this is a unit slip (nC for pC, cGy for Gy). */
+/* measured/expected outside this is gross whatever the bound is set to. */
 #define RATIO_MIN 0.1
 #define RATIO_MAX 10.0
+/* A ratio within this fraction of 10, 100 or 1000 (or their inverses) is
+ * named as a probable unit slip: pC for nC is 1000, Gy for cGy is 100,
+ * a misplaced decimal point 10 (fxledger decision: +/- 25 %). */
+#define SLIP_WIDTH 0.25
+
+/* The power of ten (10, 100, 1000, or 0.1, 0.01, 0.001) that ratio is close
+ * to, or 0. */
+static double unit_slip_factor(double ratio)
+{
+    static const double f[] = {10, 100, 1000, 0.1, 0.01, 0.001};
+    size_t i;
+
+    if (!isfinite(ratio) || !(ratio > 0))
+        return 0;
+    for (i = 0; i < sizeof f / sizeof f[0]; i++)
+        if (fabs(ratio / f[i] - 1.0) <= SLIP_WIDTH)
+            return f[i];
+    return 0;
+}
 
 static const struct {
     const char *name;
@@ -62,6 +80,13 @@ const char *fxl_verdict_guidance(fxl_verdict v)
 {
     /* An unknown verdict is never a pass: send the therapist to the physicist. */
     return verdict_known(v) ? verdicts[v].guidance : verdicts[FXL_VERDICT_NOT_EVALUABLE].guidance;
+}
+
+const char *fxl_gross_guidance(void)
+{
+    return "Gross deviation: first re-read the electrometer and check the reading's unit, and "
+           "amend the reading if it was mistyped. A confirmed reading stands: do not continue "
+           "this patient's treatment until a physicist has investigated. Call the physicist now.";
 }
 
 int fxl_verdict_parse(fxl_verdict *out, const char *name)
@@ -140,7 +165,7 @@ static int not_evaluable_reasons(fxl_reasons *r, const fxl_judge_input *in)
 void fxl_judge(fxl_judgement *out, const fxl_judge_input *in)
 {
     const char *unit;
-    double dose, expected, dev, adev, ratio, bound, diff, floor_cgy;
+    double dose, expected, dev, adev, ratio, bound, diff, floor_cgy, slip;
     const fxl_levels *lv;
 
     memset(out, 0, sizeof *out);
@@ -179,26 +204,32 @@ void fxl_judge(fxl_judgement *out, const fxl_judge_input *in)
     out->deviation_pct = dev;
     adev = fabs(dev);
 
-    /* 3. A deviation no set-up error explains: an entry or unit error. */
+    /* 3. A gross deviation: far beyond what a set-up wobble gives, but just
+     * what the errors in vivo dosimetry is there to catch give (a 60 degree
+     * wedge left out, doubled MU, the wrong plan; docs/physics.md). It is an
+     * action-level result; the only doubt is a mistyped reading, so the
+     * guidance asks for a re-read first, and a confirmed reading stands. */
     bound = in->implausible_pct;
     if (!isfinite(bound) || !(bound > 0))
         bound = IMPLAUSIBLE_DEFAULT_PCT;
     ratio = dose / expected;
-    if (ratio < RATIO_MIN || ratio > RATIO_MAX) {
-        out->verdict = FXL_VERDICT_IMPLAUSIBLE;
-        fxl_reasons_add(&out->reasons,
-                        "measured %.2f cGy is %s the expected %.2f cGy; probable entry or unit "
-                        "error",
-                        dose, ratio < RATIO_MIN ? "less than a tenth of" : "more than ten times",
-                        expected);
-        return;
-    }
-    if (adev > bound) {
-        out->verdict = FXL_VERDICT_IMPLAUSIBLE;
+    slip = unit_slip_factor(ratio);
+    if (ratio < RATIO_MIN || ratio > RATIO_MAX || adev > bound) {
+        out->gross = 1;
+        out->verdict = FXL_VERDICT_OUTSIDE_ACTION;
         fxl_reasons_add(&out->reasons,
                         "measured %.2f cGy against expected %.2f cGy is a deviation of %+.2f %%, "
-                        "beyond the plausible limit of %g %%; probable entry or unit error",
+                        "beyond the plausibility bound of %g %%: a gross deviation, outside the "
+                        "action level",
                         dose, expected, dev, bound);
+        if (slip > 0)
+            fxl_reasons_add(&out->reasons,
+                            "measured/expected is %.4g, close to a factor %g: typical of a unit "
+                            "slip (pC for nC, Gy for cGy); check the reading's unit",
+                            ratio, slip);
+        fxl_reasons_add(&out->reasons,
+                        "re-read the electrometer and check the unit; if the reading is "
+                        "confirmed it stands: hold treatment and call the physicist");
         return;
     }
 
@@ -225,8 +256,11 @@ void fxl_judge(fxl_judgement *out, const fxl_judge_input *in)
      * absolute difference at or below the floor passes. Compared at 0.01 cGy,
      * like the deviation, so that 2.00 cGy counts as 2.00 cGy. */
     floor_cgy = isfinite(lv->floor_cgy) && lv->floor_cgy > 0 ? lv->floor_cgy : 0;
+    if (floor_cgy > FXL_FLOOR_MAX_CGY)
+        floor_cgy = FXL_FLOOR_MAX_CGY;
     diff = round_2dp(fabs(dose - expected));
-    if (floor_cgy > 0 && diff <= floor_cgy) {
+    /* The floor never turns a result beyond the action level into a pass. */
+    if (floor_cgy > 0 && diff <= floor_cgy && adev <= lv->action_pct) {
         out->verdict = FXL_VERDICT_WITHIN;
         fxl_reasons_add(&out->reasons,
                         "difference of %.2f cGy from the expected %.2f cGy is within the %.2f cGy "

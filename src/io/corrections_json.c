@@ -28,6 +28,8 @@ static const struct {
     {"wedge", 0, 60, "deg"},
     {"tray", 0, 1, "0/1"},
     {"angle", 0, 90, "deg"},
+    {"thickness", 1, 60, "cm"},   /* exit: patient (phantom) thickness */
+    {"sdd", 50, 260, "cm"},       /* exit: source-to-detector distance */
 };
 
 int fxl_corr_param_range(const char *parameter, double *lo, double *hi, const char **unit)
@@ -123,8 +125,8 @@ static int parse_points(fxl_ctx *ctx, const char *name, const char *where, const
 static int parse_table(fxl_ctx *ctx, const char *name, size_t index, const cJSON *obj,
                        const char *file_source, fxl_corr_table_spec *t)
 {
-    static const char *const table_keys[] = {"machine", "beam", "parameter", "effective_from",
-                                             "source", "points", NULL};
+    static const char *const table_keys[] = {"machine", "beam", "point", "parameter",
+                                             "effective_from", "source", "points", NULL};
     const fxl_jsondoc d = {ctx, "file", name};
     char where[32], date[64];
     int rc;
@@ -135,14 +137,33 @@ static int parse_table(fxl_ctx *ctx, const char *name, size_t index, const cJSON
     if ((rc = fxl_jsondoc_check_keys(&d, where, obj, table_keys)) != 0 ||
         (rc = fxl_jsondoc_get_string(&d, t->machine, sizeof t->machine, where, obj, "machine", REQ, 64)) != 0 ||
         (rc = fxl_jsondoc_get_string(&d, t->beam, sizeof t->beam, where, obj, "beam", REQ, 32)) != 0 ||
+        (rc = fxl_jsondoc_get_string(&d, t->point, sizeof t->point, where, obj, "point", 0, 15)) != 0 ||
         (rc = fxl_jsondoc_get_string(&d, t->parameter, sizeof t->parameter, where, obj, "parameter", REQ,
                                      11)) != 0 ||
         (rc = fxl_jsondoc_get_string(&d, date, sizeof date, where, obj, "effective_from", REQ, 32)) != 0 ||
         (rc = fxl_jsondoc_get_string(&d, t->source, sizeof t->source, where, obj, "source", 0, 200)) != 0)
         return rc;
+    if (!t->point[0])
+        snprintf(t->point, sizeof t->point, "entrance");
+    if (strcmp(t->point, "entrance") != 0 && strcmp(t->point, "exit") != 0)
+        return fxl_fail(ctx, FXL_EINVAL, "file '%s': %s: point '%s' must be 'entrance' or 'exit'",
+                        name, where, t->point);
     if (fxl_corr_param_range(t->parameter, NULL, NULL, NULL) != 0)
         return fxl_fail(ctx, FXL_EINVAL,
-                        "file '%s': %s: parameter '%s' must be one of field_size, ssd, wedge, tray, angle",
+                        "file '%s': %s: parameter '%s' must be one of field_size, ssd, wedge, tray, "
+                        "angle (entrance) or field_size, thickness, sdd, wedge, tray, angle (exit)",
+                        name, where, t->parameter);
+    /* An exit diode is corrected against the source-to-detector distance,
+     * not the SSD; thickness and distance mean nothing at entrance. */
+    if (strcmp(t->point, "exit") == 0 && strcmp(t->parameter, "ssd") == 0)
+        return fxl_fail(ctx, FXL_EINVAL,
+                        "file '%s': %s: an exit table has no 'ssd' parameter: use 'sdd' "
+                        "(source-to-detector distance) and 'thickness'",
+                        name, where);
+    if (strcmp(t->point, "entrance") == 0 &&
+        (strcmp(t->parameter, "thickness") == 0 || strcmp(t->parameter, "sdd") == 0))
+        return fxl_fail(ctx, FXL_EINVAL,
+                        "file '%s': %s: parameter '%s' is for exit tables: give \"point\": \"exit\"",
                         name, where, t->parameter);
     if (fxl_time_normalize(t->effective_from, date, 0) != 0)
         return fxl_fail(ctx, FXL_EINVAL,
@@ -201,11 +222,11 @@ int fxl_corr_file_parse(fxl_ctx *ctx, fxl_corr_file *out, const char *name, cons
         for (j = 0; j < i; j++) {
             const fxl_corr_table_spec *a = &out->tables[j], *b = &out->tables[i];
             if (strcmp(a->machine, b->machine) == 0 && strcmp(a->beam, b->beam) == 0 &&
-                strcmp(a->parameter, b->parameter) == 0 &&
+                strcmp(a->point, b->point) == 0 && strcmp(a->parameter, b->parameter) == 0 &&
                 strcmp(a->effective_from, b->effective_from) == 0) {
                 rc = fxl_fail(ctx, FXL_EINVAL,
-                              "file '%s': tables[%zu] repeats tables[%zu] (%s %s %s from %s)", name, i,
-                              j, b->machine, b->beam, b->parameter, b->effective_from);
+                              "file '%s': tables[%zu] repeats tables[%zu] (%s %s %s %s from %s)", name,
+                              i, j, b->machine, b->beam, b->point, b->parameter, b->effective_from);
                 goto cleanup;
             }
         }

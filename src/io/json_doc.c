@@ -24,7 +24,9 @@ int fxl_jsondoc_read_file(fxl_ctx *ctx, char **out, size_t *len, const char *pat
     *out = NULL;
     *len = 0;
     if (!(fp = is_stdin ? stdin : fopen(path, "rb"))) {
-        rc = fxl_fail(ctx, FXL_EIO, spec->open_fail, path, strerror(errno));
+        /* a missing input file is a data error (exit 2), like any wrong input */
+        rc = fxl_fail(ctx, errno == ENOENT || errno == ENOTDIR ? FXL_ENOTFOUND : FXL_EIO, spec->open_fail,
+                      path, strerror(errno));
         goto cleanup;
     }
     /* Read until the end or one byte past the limit; the buffer grows as the

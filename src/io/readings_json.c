@@ -200,7 +200,8 @@ static void add_id(cJSON *o, const char *key, int64_t id)
 
 static const char *const param_keys[FXL_CF_COUNT] = {
     [FXL_CF_FIELD_SIZE] = "field_size_cm", [FXL_CF_SSD] = "ssd_cm", [FXL_CF_WEDGE] = "wedge_deg",
-    [FXL_CF_TRAY] = "tray", [FXL_CF_ANGLE] = "angle_deg"};
+    [FXL_CF_TRAY] = "tray", [FXL_CF_ANGLE] = "angle_deg", [FXL_CF_THICKNESS] = "thickness_cm",
+    [FXL_CF_SDD] = "sdd_cm"};
 
 static cJSON *item_json(const fxl_measurement_result *m)
 {
@@ -224,6 +225,7 @@ static cJSON *item_json(const fxl_measurement_result *m)
     add_num(o, "background", m->background);
     add_num(o, "temp_c", m->temp_c);
     cJSON_AddBoolToObject(o, "temp_entered", m->temp_entered);
+    cJSON_AddBoolToObject(o, "temperature_assumed", !m->temp_entered);
 
     cal = cJSON_AddObjectToObject(o, "calibration");
     add_id(cal, "id", m->calibration_id);
@@ -266,10 +268,11 @@ static cJSON *item_json(const fxl_measurement_result *m)
     cJSON_AddStringToObject(o, "verdict", fxl_verdict_name(m->verdict));
     cJSON_AddStringToObject(o, "verdict_label", fxl_verdict_label(m->verdict));
     cJSON_AddBoolToObject(o, "escalated", m->escalated);
+    cJSON_AddBoolToObject(o, "gross", m->gross);
     reasons = cJSON_AddArrayToObject(o, "reasons");
     for (i = 0; reasons && i < m->reasons.n && i < FXL_REASONS_MAX; i++)
         cJSON_AddItemToArray(reasons, cJSON_CreateString(m->reasons.text[i]));
-    cJSON_AddStringToObject(o, "guidance", fxl_verdict_guidance(m->verdict));
+    cJSON_AddStringToObject(o, "guidance", m->gross ? fxl_gross_guidance() : fxl_verdict_guidance(m->verdict));
     add_id(o, "review_item_id", m->review_item_id);
     if (m->supersedes_id) {
         add_id(o, "supersedes_id", m->supersedes_id);

@@ -39,7 +39,7 @@ static int read_file(fxl_ctx *ctx, char **out, size_t *len, const char *path)
     *out = NULL;
     *len = 0;
     if (!(f = fopen(path, "rb")))
-        return fxl_fail(ctx, FXL_EIO, "cannot open beam data file '%s': %s", path, strerror(errno));
+        return fxl_fail(ctx, errno == ENOENT ? FXL_ENOTFOUND : FXL_EIO, "cannot open beam data file '%s': %s", path, strerror(errno));
     if (!(buf = malloc(BEAM_FILE_MAX_BYTES + 2))) {
         rc = fxl_fail(ctx, FXL_EIO, "out of memory reading '%s'", path);
         goto cleanup;

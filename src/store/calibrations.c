@@ -31,7 +31,7 @@
     "EXISTS (SELECT 1 FROM calibrations l WHERE l.detector_id = c.detector_id "                  \
     "  AND l.beam_id = c.beam_id AND l.point = c.point AND l.calibrated_at <= :at "              \
     "  AND (l.calibrated_at > c.calibrated_at OR (l.calibrated_at = c.calibrated_at "            \
-    "  AND l.id > c.id))) "                                                                      \
+    "  AND l.id > c.id))), c.ref_thickness_cm, coalesce(c.confirmed_change, '') "                \
     "FROM calibrations c JOIN detectors d ON d.id = c.detector_id "                              \
     "JOIN beams b ON b.id = c.beam_id JOIN machines m ON m.id = b.machine_id "                   \
     "JOIN users u ON u.id = c.user_id "
@@ -60,6 +60,8 @@ static void read_row(fxl_stmt *s, fxl_calibration *c, const char *at)
     snprintf(c->user, sizeof c->user, "%s", fxl_stmt_text(s, 18));
     snprintf(c->readings_json, sizeof c->readings_json, "%s", fxl_stmt_text(s, 19));
     c->previous_factor = fxl_stmt_double_opt(s, 20);
+    c->ref_thickness_cm = fxl_stmt_double_opt(s, 22);
+    snprintf(c->confirmed_change, sizeof c->confirmed_change, "%s", fxl_stmt_text(s, 23));
     if (fxl_stmt_int(s, 21))
         snprintf(c->state, sizeof c->state, "superseded");
     else if (strcmp(c->valid_until, at) < 0)
@@ -99,10 +101,141 @@ static int text_max(const char *s, size_t max)
 typedef struct calib_plan {
     int64_t detector_id, beam_id;
     char calibrated_at[FXL_TIME_LEN], valid_until[FXL_TIME_LEN];
-    double temp_c, ssd_cm, field_size_cm;
+    double temp_c, ssd_cm, field_size_cm, ref_thickness_cm;
     double mean, sd, factor;
+    double sensitivity;            /* the detector's nominal, unit per cGy, NaN if none */
     char unit[8];
+    char confirmed[400];           /* acceptance checks confirmed, "" if none */
 } calib_plan;
+
+int fxl_calib_confirm_parse(int *out, const char *names)
+{
+    char buf[128], *tok, *save = NULL;
+
+    *out = 0;
+    if (!names || strlen(names) >= sizeof buf)
+        return FXL_EINVAL;
+    snprintf(buf, sizeof buf, "%s", names);
+    for (tok = strtok_r(buf, ",", &save); tok; tok = strtok_r(NULL, ",", &save)) {
+        if (strcmp(tok, "sd") == 0)
+            *out |= FXL_CALIB_CONFIRM_SD;
+        else if (strcmp(tok, "n-change") == 0)
+            *out |= FXL_CALIB_CONFIRM_N_CHANGE;
+        else if (strcmp(tok, "nominal") == 0)
+            *out |= FXL_CALIB_CONFIRM_NOMINAL;
+        else
+            return FXL_EINVAL;
+    }
+    return *out ? 0 : FXL_EINVAL;
+}
+
+static int setting_pct(fxl_ctx *ctx, double *out, const char *key, double fallback)
+{
+    char buf[64], *end = NULL;
+    int rc = fxl_setting_get(ctx, key, buf, sizeof buf);
+
+    *out = fallback;
+    if (rc == FXL_ENOTFOUND || (rc == 0 && !buf[0]))
+        return 0;
+    if (rc != 0)
+        return rc;
+    *out = strtod(buf, &end);
+    if (end == buf || *end || !isfinite(*out) || !(*out > 0))
+        return fxl_fail(ctx, FXL_EINVAL, "setting '%s' value '%s' must be a number above 0 %%",
+                        key, buf);
+    return 0;
+}
+
+/* One failed acceptance check: refused unless confirmed by a physicist;
+ * when confirmed, its words are kept with the calibration. */
+static int accept_or_confirm(fxl_ctx *ctx, calib_plan *p, const fxl_calib_spec *c, int bit,
+                             const char *name, const char *what)
+{
+    size_t used = strlen(p->confirmed);
+
+    if (!(c->confirm & bit))
+        return fxl_fail(ctx, FXL_EINVAL,
+                        "calibration of detector '%s' for %s %s %s not put in force: %s; a "
+                        "physicist who has checked it may confirm it with --confirm-change %s",
+                        c->serial, c->machine, c->beam, c->point, what, name);
+    if (!(fxl_user_role(ctx) & FXL_ROLE_PHYSICIST))
+        return fxl_fail(ctx, FXL_EPERM,
+                        "permission denied: only a physicist may confirm a calibration that fails "
+                        "its acceptance check (%s)", what);
+    snprintf(p->confirmed + used, sizeof p->confirmed - used, "%s%s (confirmed)",
+             used ? "; " : "", what);
+    return 0;
+}
+
+/* The acceptance checks of a new calibration (docs/equipment.md): the
+ * spread of its readings, the change of N against the previous calibration
+ * of the same detector, beam and point, and for the detector's very first
+ * calibration the agreement with its nominal sensitivity. */
+static int acceptance_checks(fxl_ctx *ctx, calib_plan *p, const fxl_calib_spec *c)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    double sd_lim, change_lim, nominal_lim, sd_pct, change;
+    char what[240];
+    int rc, any = 0;
+
+    if ((rc = setting_pct(ctx, &sd_lim, "calibration_sd_limit_pct", FXL_CALIB_SD_LIMIT_PCT_DEFAULT)) != 0 ||
+        (rc = setting_pct(ctx, &change_lim, "calibration_change_limit_pct",
+                          FXL_CALIB_CHANGE_LIMIT_PCT_DEFAULT)) != 0 ||
+        (rc = setting_pct(ctx, &nominal_lim, "calibration_nominal_limit_pct",
+                          FXL_CALIB_NOMINAL_LIMIT_PCT_DEFAULT)) != 0)
+        return rc;
+    sd_pct = p->sd / p->mean * 100.0;
+    if (sd_pct > sd_lim) {
+        snprintf(what, sizeof what, "the SD of its readings is %.2f %% of their mean, above the "
+                 "limit of %g %%", sd_pct, sd_lim);
+        if ((rc = accept_or_confirm(ctx, p, c, FXL_CALIB_CONFIRM_SD, "sd", what)) != 0)
+            return rc;
+    }
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+                               "SELECT id, factor_cgy_per_unit FROM calibrations WHERE detector_id = :d "
+                               "AND beam_id = :b AND point = :point AND calibrated_at < :at "
+                               "ORDER BY calibrated_at DESC, id DESC LIMIT 1")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":d", p->detector_id);
+    fxl_stmt_bind_int(&s, ":b", p->beam_id);
+    fxl_stmt_bind_text(&s, ":point", c->point);
+    fxl_stmt_bind_text(&s, ":at", p->calibrated_at);
+    if ((rc = fxl_stmt_step(&s)) < 0)
+        goto cleanup;
+    if (rc == 1) {
+        change = (p->factor - fxl_stmt_double(&s, 1)) / fxl_stmt_double(&s, 1) * 100.0;
+        if (fabs(change) > change_lim) {
+            snprintf(what, sizeof what, "N %.5f changes by %+.2f %% against calibration #%lld "
+                     "(N %.5f), beyond the limit of %g %%", p->factor, change,
+                     (long long)fxl_stmt_int(&s, 0), fxl_stmt_double(&s, 1), change_lim);
+            if ((rc = accept_or_confirm(ctx, p, c, FXL_CALIB_CONFIRM_N_CHANGE, "n-change", what)) != 0)
+                goto cleanup;
+        }
+    }
+    fxl_stmt_finalize(&s);
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+                               "SELECT count(*) FROM calibrations WHERE detector_id = :d")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":d", p->detector_id);
+    if ((rc = fxl_stmt_step(&s)) < 0)
+        goto cleanup;
+    any = rc == 1 && fxl_stmt_int(&s, 0) > 0;
+    rc = 0;
+    /* N nominal = 1 / sensitivity (cGy per unit from unit per cGy). */
+    if (!any && isfinite(p->sensitivity) && p->sensitivity > 0) {
+        double nominal = 1.0 / p->sensitivity;
+        change = (p->factor - nominal) / nominal * 100.0;
+        if (fabs(change) > nominal_lim) {
+            snprintf(what, sizeof what, "N %.5f differs by %+.2f %% from the nominal %.5f (1 / "
+                     "sensitivity %g %s/cGy), beyond the limit of %g %%", p->factor, change,
+                     nominal, p->sensitivity, p->unit, nominal_lim);
+            rc = accept_or_confirm(ctx, p, c, FXL_CALIB_CONFIRM_NOMINAL, "nominal", what);
+        }
+    }
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
 
 static int plan_calibration(fxl_ctx *ctx, calib_plan *p, const fxl_calib_spec *c)
 {
@@ -126,6 +259,13 @@ static int plan_calibration(fxl_ctx *ctx, calib_plan *p, const fxl_calib_spec *c
     p->temp_c = isnan(c->temp_c) ? FXL_CALIB_TEMP_DEFAULT_C : c->temp_c;
     p->ssd_cm = isnan(c->ssd_cm) ? FXL_CALIB_SSD_DEFAULT_CM : c->ssd_cm;
     p->field_size_cm = isnan(c->field_size_cm) ? FXL_CALIB_FIELD_DEFAULT_CM : c->field_size_cm;
+    /* 0 (a zeroed spec) counts as not given, like NaN. */
+    p->ref_thickness_cm = c->ref_thickness_cm == 0 ? NAN : c->ref_thickness_cm;
+    if (!isnan(p->ref_thickness_cm) && strcmp(c->point, "exit") != 0)
+        return fxl_fail(ctx, FXL_EINVAL, "a phantom thickness is given only for an exit calibration");
+    if (!isnan(p->ref_thickness_cm) && !(p->ref_thickness_cm > 0 && p->ref_thickness_cm <= 60))
+        return fxl_fail(ctx, FXL_EINVAL, "phantom thickness '%g' must be > 0 and at most 60 cm",
+                        c->ref_thickness_cm);
     if (!(p->temp_c >= 10 && p->temp_c <= 45))
         return fxl_fail(ctx, FXL_EINVAL, "calibration temperature '%g' must be 10 to 45 degC",
                         p->temp_c);
@@ -147,6 +287,7 @@ static int plan_calibration(fxl_ctx *ctx, calib_plan *p, const fxl_calib_spec *c
     if ((rc = fxl_detector_get(ctx, &det, c->serial, NULL)) != 0)
         return rc;
     p->detector_id = det.id;
+    p->sensitivity = det.sensitivity;
     snprintf(p->unit, sizeof p->unit, "%s", det.reading_unit);
     if (strcmp(det.status, "retired") == 0)
         return fxl_fail(ctx, FXL_EINVAL, "detector '%s' is retired (since %s) and cannot be calibrated",
@@ -214,7 +355,7 @@ static int plan_calibration(fxl_ctx *ctx, calib_plan *p, const fxl_calib_spec *c
                       c->serial);
         goto cleanup;
     }
-    rc = 0;
+    rc = acceptance_checks(ctx, p, c);
 cleanup:
     fxl_stmt_finalize(&s);
     return rc;
@@ -251,9 +392,9 @@ int fxl_calib_add(fxl_ctx *ctx, fxl_calibration *out, const fxl_calib_spec *c)
                                "INSERT INTO calibrations (detector_id, beam_id, point, calibrated_at, "
                                "valid_until, chamber_dose_cgy, readings, reading_n, reading_mean, "
                                "reading_sd, factor_cgy_per_unit, temp_c, ssd_cm, field_size_cm, chamber, "
-                               "notes, user_id, created_at) VALUES (:d, :b, :point, :at, :until, :dose, "
-                               ":readings, :n, :mean, :sd, :factor, :temp, :ssd, :fs, :chamber, :notes, "
-                               ":user, :now)")) != 0)
+                               "notes, user_id, created_at, ref_thickness_cm, confirmed_change) VALUES "
+                               "(:d, :b, :point, :at, :until, :dose, :readings, :n, :mean, :sd, :factor, "
+                               ":temp, :ssd, :fs, :chamber, :notes, :user, :now, :thick, :confirmed)")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&s, ":d", p.detector_id);
     fxl_stmt_bind_int(&s, ":b", p.beam_id);
@@ -269,6 +410,8 @@ int fxl_calib_add(fxl_ctx *ctx, fxl_calibration *out, const fxl_calib_spec *c)
     fxl_stmt_bind_double(&s, ":temp", p.temp_c);
     fxl_stmt_bind_double(&s, ":ssd", p.ssd_cm);
     fxl_stmt_bind_double(&s, ":fs", p.field_size_cm);
+    fxl_stmt_bind_double_opt(&s, ":thick", p.ref_thickness_cm);
+    fxl_stmt_bind_text(&s, ":confirmed", p.confirmed[0] ? p.confirmed : NULL);
     fxl_stmt_bind_text(&s, ":chamber", c->chamber && *c->chamber ? c->chamber : NULL);
     fxl_stmt_bind_text(&s, ":notes", c->notes && *c->notes ? c->notes : NULL);
     fxl_stmt_bind_int(&s, ":user", fxl_user_id(ctx));
@@ -293,6 +436,10 @@ int fxl_calib_add(fxl_ctx *ctx, fxl_calibration *out, const fxl_calib_spec *c)
     cJSON_AddNumberToObject(audit, "temp_c", p.temp_c);
     cJSON_AddNumberToObject(audit, "ssd_cm", p.ssd_cm);
     cJSON_AddNumberToObject(audit, "field_size_cm", p.field_size_cm);
+    if (isfinite(p.ref_thickness_cm))
+        cJSON_AddNumberToObject(audit, "ref_thickness_cm", p.ref_thickness_cm);
+    if (p.confirmed[0])
+        cJSON_AddStringToObject(audit, "confirmed_change", p.confirmed);
     if (c->chamber && *c->chamber)
         cJSON_AddStringToObject(audit, "chamber", c->chamber);
     if (c->notes && *c->notes)

@@ -6,6 +6,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "fxl/core.h"
 #include "fxl/corrections.h"
 #include "fxl/detectors.h"
 #include "fxl/machines.h"
@@ -15,16 +16,17 @@
 #include "store/stmt.h"
 
 static int table_exists(fxl_ctx *ctx, int *exists, int64_t detector_id, int64_t beam_id,
-                        const char *parameter, const char *effective_from)
+                        const char *point, const char *parameter, const char *effective_from)
 {
     fxl_stmt s = FXL_STMT_INIT;
     int rc = fxl_stmt_prepare(&s, ctx,
                               "SELECT 1 FROM correction_tables WHERE detector_id = :d AND beam_id = :b "
-                              "AND parameter = :p AND effective_from = :at");
+                              "AND point = :pt AND parameter = :p AND effective_from = :at");
 
     if (rc == 0) {
         fxl_stmt_bind_int(&s, ":d", detector_id);
         fxl_stmt_bind_int(&s, ":b", beam_id);
+        fxl_stmt_bind_text(&s, ":pt", point);
         fxl_stmt_bind_text(&s, ":p", parameter);
         fxl_stmt_bind_text(&s, ":at", effective_from);
         rc = fxl_stmt_step(&s);
@@ -35,6 +37,86 @@ static int table_exists(fxl_ctx *ctx, int *exists, int64_t detector_id, int64_t 
     }
     fxl_stmt_finalize(&s);
     return rc;
+}
+
+/* The reference condition x of `parameter` for the detector's latest
+ * calibration of this beam and point: its field size and SSD, its exit
+ * phantom thickness (and SSD + thickness as source-to-detector distance);
+ * open field, no tray and normal incidence for every calibration. Without a
+ * calibration yet, the reference set-up of docs/equipment.md (10 x 10 cm at
+ * SSD 100 cm). *x is NaN when the reference is not known. */
+static int reference_x(fxl_ctx *ctx, double *x, int64_t detector_id, int64_t beam_id,
+                       const char *point, fxl_cf_param p)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    double ssd = 100.0, fs = 10.0, thick = NAN;
+    int rc;
+
+    *x = NAN;
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+                               "SELECT ssd_cm, field_size_cm, ref_thickness_cm FROM calibrations "
+                               "WHERE detector_id = :d AND beam_id = :b AND point = :pt "
+                               "ORDER BY calibrated_at DESC, id DESC LIMIT 1")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":d", detector_id);
+    fxl_stmt_bind_int(&s, ":b", beam_id);
+    fxl_stmt_bind_text(&s, ":pt", point);
+    if ((rc = fxl_stmt_step(&s)) < 0)
+        goto cleanup;
+    if (rc == 1) {
+        ssd = fxl_stmt_double(&s, 0);
+        fs = fxl_stmt_double(&s, 1);
+        thick = fxl_stmt_double_opt(&s, 2);
+    }
+    switch (p) {
+    case FXL_CF_FIELD_SIZE: *x = fs; break;
+    case FXL_CF_SSD: *x = ssd; break;
+    case FXL_CF_THICKNESS: *x = thick; break;
+    case FXL_CF_SDD: *x = ssd + thick; break;
+    default: *x = 0; break;  /* wedge, tray, angle */
+    }
+    rc = 0;
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
+/* A table is normalised to the calibration's reference condition: CF = 1
+ * there by definition (CF_x = (D/M)_x / (D/M)_ref, AAPM Report 87). A table
+ * that is not 1 there was normalised elsewhere or mistyped; it would scale
+ * every result. Checked where the table covers the reference. */
+static int check_reference(fxl_ctx *ctx, const char *serial, int64_t detector_id, int64_t beam_id,
+                           const fxl_corr_table_spec *t)
+{
+    double xs[FXL_CORR_POINTS_MAX], ys[FXL_CORR_POINTS_MAX], ref, f;
+    fxl_cf_param p;
+    size_t i;
+    int rc;
+
+    if (fxl_cf_parse(&p, t->parameter) != 0 || t->n_points > FXL_CORR_POINTS_MAX)
+        return 0;
+    if ((rc = reference_x(ctx, &ref, detector_id, beam_id, t->point, p)) != 0)
+        return rc;
+    if (!isfinite(ref))
+        return 0;
+    for (i = 0; i < t->n_points; i++) {
+        xs[i] = t->points[i].x;
+        ys[i] = t->points[i].factor;
+    }
+    if (fxl_cf_is_discrete(p))
+        rc = fxl_lookup_exact(&f, xs, ys, t->n_points, ref);
+    else
+        rc = fxl_interp_linear(&f, xs, ys, t->n_points, ref);
+    if (rc != 0)
+        return 0;  /* the table does not cover the reference */
+    if (fabs(f - 1.0) > FXL_CORR_REFERENCE_TOL + 1e-12)
+        return fxl_fail(ctx, FXL_EINVAL,
+                        "%s %s table of detector '%s' for %s %s gives %.4f at the calibration's "
+                        "reference (%s %g): a correction table must be 1 there within %g %% "
+                        "(normalise it to the reference condition)",
+                        t->point, t->parameter, serial, t->machine, t->beam, f, t->parameter, ref,
+                        FXL_CORR_REFERENCE_TOL * 100);
+    return 0;
 }
 
 int fxl_corr_store(fxl_ctx *ctx, int64_t **out_ids, const fxl_corr_file *file)
@@ -88,24 +170,28 @@ int fxl_corr_store(fxl_ctx *ctx, int64_t **out_ids, const fxl_corr_file *file)
         }
         if ((rc = fxl_beam_find(ctx, &beam_ids[i], t->machine, t->beam)) != 0)
             goto cleanup;
-        if ((rc = table_exists(ctx, &exists, det.id, beam_ids[i], t->parameter, t->effective_from)) != 0)
+        if ((rc = table_exists(ctx, &exists, det.id, beam_ids[i], t->point, t->parameter,
+                               t->effective_from)) != 0)
             goto cleanup;
         if (exists) {
             rc = fxl_fail(ctx, FXL_ECONFLICT,
-                          "detector '%s' already has a %s table for %s %s effective from %s; "
+                          "detector '%s' already has a %s %s table for %s %s effective from %s; "
                           "load a new version with a later effective date",
-                          file->detector, t->parameter, t->machine, t->beam, t->effective_from);
+                          file->detector, t->point, t->parameter, t->machine, t->beam,
+                          t->effective_from);
             goto cleanup;
         }
+        if ((rc = check_reference(ctx, file->detector, det.id, beam_ids[i], t)) != 0)
+            goto cleanup;
     }
 
     fxl_now(ctx, now);
     if ((rc = fxl_begin(ctx)) != 0)
         goto cleanup;
     if ((rc = fxl_stmt_prepare(&tab, ctx,
-                               "INSERT INTO correction_tables (detector_id, beam_id, parameter, "
-                               "effective_from, source, user_id, created_at) VALUES (:d, :b, :p, :from, "
-                               ":source, :user, :now)")) != 0 ||
+                               "INSERT INTO correction_tables (detector_id, beam_id, point, parameter, "
+                               "effective_from, source, user_id, created_at) VALUES (:d, :b, :pt, :p, "
+                               ":from, :source, :user, :now)")) != 0 ||
         (rc = fxl_stmt_prepare(&pt, ctx,
                                "INSERT INTO correction_points (table_id, x, factor) "
                                "VALUES (:t, :x, :f)")) != 0)
@@ -116,6 +202,7 @@ int fxl_corr_store(fxl_ctx *ctx, int64_t **out_ids, const fxl_corr_file *file)
         fxl_stmt_reset(&tab);
         fxl_stmt_bind_int(&tab, ":d", det.id);
         fxl_stmt_bind_int(&tab, ":b", beam_ids[i]);
+        fxl_stmt_bind_text(&tab, ":pt", t->point);
         fxl_stmt_bind_text(&tab, ":p", t->parameter);
         fxl_stmt_bind_text(&tab, ":from", t->effective_from);
         fxl_stmt_bind_text(&tab, ":source", t->source[0] ? t->source : NULL);
@@ -128,6 +215,7 @@ int fxl_corr_store(fxl_ctx *ctx, int64_t **out_ids, const fxl_corr_file *file)
         cJSON_AddStringToObject(audit, "serial", file->detector);
         cJSON_AddStringToObject(audit, "machine", t->machine);
         cJSON_AddStringToObject(audit, "beam", t->beam);
+        cJSON_AddStringToObject(audit, "point", t->point);
         cJSON_AddStringToObject(audit, "parameter", t->parameter);
         cJSON_AddStringToObject(audit, "effective_from", t->effective_from);
         if (t->source[0])
@@ -178,12 +266,12 @@ cleanup:
     "coalesce(t.source, ''), u.login, t.created_at, "                                           \
     "(t.effective_from <= :at AND NOT EXISTS (SELECT 1 FROM correction_tables l "               \
     "  WHERE l.detector_id = t.detector_id AND l.beam_id = t.beam_id "                          \
-    "  AND l.parameter = t.parameter AND l.effective_from <= :at "                              \
+    "  AND l.point = t.point AND l.parameter = t.parameter AND l.effective_from <= :at "        \
     "  AND (l.effective_from > t.effective_from OR (l.effective_from = t.effective_from "       \
     "  AND l.id > t.id)))), "                                                                   \
     "(SELECT count(*) FROM correction_points p WHERE p.table_id = t.id), "                      \
     "(SELECT min(x) FROM correction_points p WHERE p.table_id = t.id), "                        \
-    "(SELECT max(x) FROM correction_points p WHERE p.table_id = t.id) "                         \
+    "(SELECT max(x) FROM correction_points p WHERE p.table_id = t.id), t.point "                \
     "FROM correction_tables t JOIN detectors d ON d.id = t.detector_id "                        \
     "JOIN beams b ON b.id = t.beam_id JOIN machines m ON m.id = b.machine_id "                  \
     "JOIN users u ON u.id = t.user_id "
@@ -204,6 +292,7 @@ static void read_table(fxl_stmt *s, fxl_corr_table *t)
     t->n_points = (size_t)fxl_stmt_int(s, 10);
     t->x_min = fxl_stmt_double_opt(s, 11);
     t->x_max = fxl_stmt_double_opt(s, 12);
+    snprintf(t->point, sizeof t->point, "%s", fxl_stmt_text(s, 13));
 }
 
 void fxl_corr_table_release(fxl_corr_table *t)
@@ -245,7 +334,7 @@ int fxl_corr_list(fxl_ctx *ctx, fxl_corr_table **out, size_t *n, const char *ser
         return rc;
     if ((rc = fxl_stmt_prepare(&s, ctx,
                                CORR_SELECT "WHERE (:serial IS NULL OR d.serial = :serial) "
-                               "ORDER BY d.serial, m.name, b.name, t.parameter, t.effective_from, t.id")) != 0)
+                               "ORDER BY d.serial, m.name, b.name, t.point, t.parameter, t.effective_from, t.id")) != 0)
         goto cleanup;
     fxl_stmt_bind_text(&s, ":serial", serial);
     fxl_stmt_bind_text(&s, ":at", at);

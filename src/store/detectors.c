@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "fxl/detectors.h"
+#include "store/dose_counted.h"
 #include "store/audit.h"
 #include "store/grow.h"
 #include "store/json_put.h"
@@ -27,6 +28,12 @@ static int in_list(const char *const *list, const char *v)
 }
 
 int fxl_detector_kind_valid(const char *kind) { return in_list(kinds, kind); }
+
+int fxl_detector_kind_is_diode(const char *kind)
+{
+    return kind && (strcmp(kind, "photon_diode") == 0 || strcmp(kind, "electron_diode") == 0 ||
+                    strcmp(kind, "small_field_diode") == 0);
+}
 int fxl_detector_status_valid(const char *status) { return in_list(statuses, status); }
 int fxl_detector_unit_valid(const char *unit) { return in_list(units, unit); }
 
@@ -99,7 +106,17 @@ int fxl_detector_add(fxl_ctx *ctx, int64_t *out_id, const fxl_detector_spec *d)
     if (!(isnan(d->sensitivity) || (d->sensitivity > 0 && isfinite(d->sensitivity))))
         return fxl_fail(ctx, FXL_EINVAL, "sensitivity '%g' for detector '%s' must be > 0 %s/cGy",
                         d->sensitivity, d->serial, unit);
-    if (!(d->temp_coeff_per_c >= -FXL_TEMP_COEFF_MAX && d->temp_coeff_per_c <= FXL_TEMP_COEFF_MAX))
+    /* A diode's response changes with temperature (0.1 to 0.5 %/degC, AAPM
+     * Report 87, from memory): a missing coefficient would silently apply no
+     * correction. An explicit 0 is accepted for a detector that has none. */
+    if (isnan(d->temp_coeff_per_c) && fxl_detector_kind_is_diode(d->kind))
+        return fxl_fail(ctx, FXL_EINVAL,
+                        "detector '%s' is a diode (%s): its temperature coefficient is required "
+                        "(--temp-coeff, a fraction per degC such as 0.003; give 0 explicitly for a "
+                        "diode that has none)",
+                        d->serial, d->kind);
+    if (!(isnan(d->temp_coeff_per_c) ||
+          (d->temp_coeff_per_c >= -FXL_TEMP_COEFF_MAX && d->temp_coeff_per_c <= FXL_TEMP_COEFF_MAX)))
         return fxl_fail(ctx, FXL_EINVAL,
                         "temperature coefficient '%g' for detector '%s' must be %g to %g per degC "
                         "(a fraction: 0.003 means 0.3 %%/degC)",
@@ -126,7 +143,7 @@ int fxl_detector_add(fxl_ctx *ctx, int64_t *out_id, const fxl_detector_spec *d)
     fxl_stmt_bind_text(&s, ":kind", d->kind);
     fxl_stmt_bind_text(&s, ":unit", unit);
     fxl_stmt_bind_double_opt(&s, ":sens", d->sensitivity);
-    fxl_stmt_bind_double(&s, ":tc", d->temp_coeff_per_c);
+    fxl_stmt_bind_double(&s, ":tc", isnan(d->temp_coeff_per_c) ? 0 : d->temp_coeff_per_c);
     fxl_stmt_bind_text(&s, ":buildup", d->buildup && *d->buildup ? d->buildup : NULL);
     fxl_stmt_bind_double_opt(&s, ":limit", d->dose_limit_cgy);
     fxl_stmt_bind_text(&s, ":now", now);
@@ -141,7 +158,7 @@ int fxl_detector_add(fxl_ctx *ctx, int64_t *out_id, const fxl_detector_spec *d)
     cJSON_AddStringToObject(audit, "kind", d->kind);
     cJSON_AddStringToObject(audit, "reading_unit", unit);
     fxl_json_put_number(audit, "sensitivity", d->sensitivity);
-    cJSON_AddNumberToObject(audit, "temp_coeff_per_c", d->temp_coeff_per_c);
+    cJSON_AddNumberToObject(audit, "temp_coeff_per_c", isnan(d->temp_coeff_per_c) ? 0 : d->temp_coeff_per_c);
     fxl_json_put_text(audit, "buildup", d->buildup);
     fxl_json_put_number(audit, "dose_limit_cgy", d->dose_limit_cgy);
     cJSON_AddStringToObject(audit, "status", "in_service");
@@ -197,7 +214,7 @@ static int load_derived(fxl_ctx *ctx, fxl_detector *d, const char *at)
     /* A measurement superseded by an amendment is counted once, through the
      * row that replaced it. Not-evaluable rows carry no dose and add nothing. */
     if ((rc = fxl_stmt_prepare(&s, ctx,
-                               "SELECT coalesce(sum(m.corrected_dose_cgy), 0), count(m.corrected_dose_cgy) "
+                               "SELECT coalesce(sum(" FXL_SQL_DOSE_COUNTED("m") "), 0), count(m.corrected_dose_cgy) "
                                "FROM measurements m JOIN fractions f ON f.id = m.fraction_id "
                                "WHERE m.detector_id = :d AND f.treated_at <= :at "
                                "AND (:since = '' OR f.treated_at > :since) "

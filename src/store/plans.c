@@ -307,22 +307,32 @@ static int evaluate_point(fxl_ctx *ctx, point_eval *ev, const fxl_field_spec *f,
                                    modality, &in, now)) != 0)
         return rc;
 
-    if (strcmp(p->expected_source, "tps") == 0) {
+    /* A planning-system value and a hand-entered one are both checked
+     * against the independent model: a hand calculation is as likely to
+     * carry a transcription or MU error (docs/expected-dose.md). */
+    if (strcmp(p->expected_source, "tps") == 0 || strcmp(p->expected_source, "manual") == 0) {
         if (fxl_model_crosscheck(&ev->xcheck, p->expected_dose_cgy, &ev->model, level_pct) != 0)
             return fxl_fail(ctx, FXL_EINVAL, "internal: cross-check level %g %%", level_pct);
+        if (strcmp(p->expected_source, "manual") == 0 &&
+            (ev->xcheck.outcome == FXL_XCHECK_AGREES || ev->xcheck.outcome == FXL_XCHECK_DISAGREES))
+            snprintf(ev->xcheck.summary, sizeof ev->xcheck.summary,
+                     "hand-entered expected dose %.1f cGy %s the model's %.1f cGy %s%+.2f %% "
+                     "(level %.2f %%)",
+                     p->expected_dose_cgy,
+                     ev->xcheck.outcome == FXL_XCHECK_DISAGREES ? "differs from" : "agrees with",
+                     ev->xcheck.model_cgy,
+                     ev->xcheck.outcome == FXL_XCHECK_DISAGREES ? "by " : "", ev->xcheck.deviation_pct,
+                     level_pct);
     } else {
-        /* Only a planning-system value is cross-checked; anything else is
-         * "not checked", never agreement. */
+        /* A model value is not checked against itself; "not checked" is
+         * never agreement. */
         memset(&ev->xcheck, 0, sizeof ev->xcheck);
         ev->xcheck.outcome = FXL_XCHECK_NOT_CHECKED;
         ev->xcheck.tps_cgy = NAN;
         ev->xcheck.model_cgy = ev->model.computed ? ev->model.dose_cgy : NAN;
         ev->xcheck.deviation_pct = NAN;
         ev->xcheck.level_pct = level_pct;
-        if (strcmp(p->expected_source, "manual") == 0)
-            snprintf(ev->xcheck.summary, sizeof ev->xcheck.summary,
-                     "not cross-checked: the expected dose is a hand calculation, not a planning-system value");
-        else if (ev->model.computed)
+        if (ev->model.computed)
             snprintf(ev->xcheck.summary, sizeof ev->xcheck.summary,
                      "not cross-checked: the expected dose is the model's own value");
         else

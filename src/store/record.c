@@ -194,6 +194,7 @@ static cJSON *measurement_audit(const rec_inputs *in, int64_t fraction_id)
     fxl_json_put_id(o, "threshold_set_id", m->threshold_set_id);
     cJSON_AddStringToObject(o, "verdict", fxl_verdict_name(m->verdict));
     cJSON_AddBoolToObject(o, "escalated", m->escalated);
+    cJSON_AddBoolToObject(o, "gross", m->gross);
     cJSON_AddItemToObject(o, "reasons", rec_reasons_json(&m->reasons));
     if (m->supersedes_id) {
         fxl_json_put_id(o, "supersedes_id", m->supersedes_id);
@@ -221,11 +222,13 @@ int rec_insert_measurement(fxl_ctx *ctx, rec_inputs *in, int64_t fraction_id, co
                                "reading_unit, temp_c, temp_entered, calibration_id, factor_n, cf_field_size, "
                                "cf_ssd, cf_wedge, cf_tray, cf_angle, cf_temp, corrected_dose_cgy, "
                                "expected_dose_cgy, deviation_pct, threshold_set_id, tolerance_pct, action_pct, "
-                               "floor_cgy, verdict, reasons, supersedes_id, amend_reason, user_id, created_at) "
+                               "floor_cgy, verdict, reasons, supersedes_id, amend_reason, user_id, created_at, "
+                               "background, cf_thickness, cf_sdd, gross) "
                                "VALUES (:fraction, :field, :detector, :reading, :unit, :temp, :temp_entered, "
                                ":calibration, :n, :cf_fs, :cf_ssd, :cf_wedge, :cf_tray, :cf_angle, :cf_temp, "
                                ":dose, :expected, :deviation, :set, :tol, :action, :floor, :verdict, "
-                               ":reasons, :supersedes, :amend_reason, :user, :now)")) != 0)
+                               ":reasons, :supersedes, :amend_reason, :user, :now, :background, "
+                               ":cf_thickness, :cf_sdd, :gross)")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&s, ":fraction", fraction_id);
     fxl_stmt_bind_int(&s, ":field", m->field_id);
@@ -244,6 +247,10 @@ int rec_insert_measurement(fxl_ctx *ctx, rec_inputs *in, int64_t fraction_id, co
     fxl_stmt_bind_double_opt(&s, ":cf_wedge", m->cf[FXL_CF_WEDGE]);
     fxl_stmt_bind_double_opt(&s, ":cf_tray", m->cf[FXL_CF_TRAY]);
     fxl_stmt_bind_double_opt(&s, ":cf_angle", m->cf[FXL_CF_ANGLE]);
+    fxl_stmt_bind_double_opt(&s, ":cf_thickness", m->cf[FXL_CF_THICKNESS]);
+    fxl_stmt_bind_double_opt(&s, ":cf_sdd", m->cf[FXL_CF_SDD]);
+    fxl_stmt_bind_double(&s, ":background", m->background);
+    fxl_stmt_bind_int(&s, ":gross", m->gross ? 1 : 0);
     fxl_stmt_bind_double_opt(&s, ":cf_temp", m->cf_temp);
     fxl_stmt_bind_double_opt(&s, ":dose", m->corrected_dose_cgy);
     fxl_stmt_bind_double_opt(&s, ":expected", m->expected_dose_cgy);
@@ -312,7 +319,9 @@ int rec_open_review_item(fxl_ctx *ctx, rec_inputs *in, const rec_plan *plan, int
                                        m->verdict == FXL_VERDICT_OUTSIDE_TOLERANCE ||
                                        m->verdict == FXL_VERDICT_IMPLAUSIBLE))
         snprintf(what, sizeof what, "%s, deviation %+.2f %%%s", fxl_verdict_label(m->verdict),
-                 m->deviation_pct, m->escalated ? " (second in a row, escalated)" : "");
+                 m->deviation_pct,
+                 m->gross ? " (gross deviation: re-read, unit check, hold treatment)"
+                 : m->escalated ? " (second in a row, escalated)" : "");
     else
         snprintf(what, sizeof what, "%s: %.180s", fxl_verdict_label(m->verdict),
                  m->reasons.n ? m->reasons.text[0] : "no reason given");
@@ -562,6 +571,7 @@ typedef struct rec_original {
     char plan[65];
     double temp_c;
     int temp_entered;
+    double background;        /* M_0 of the original; NaN in rows before schema 5 */
     int64_t superseded_by;
 } rec_original;
 
@@ -574,7 +584,7 @@ static int load_original(fxl_ctx *ctx, rec_original *o, int64_t id)
     if ((rc = fxl_stmt_prepare(&s, ctx,
                                "SELECT m.fraction_id, m.field_id, m.detector_id, f.number, f.treated_at, "
                                "pt.mrn, p.label, m.temp_c, m.temp_entered, "
-                               "(SELECT s.id FROM measurements s WHERE s.supersedes_id = m.id) "
+                               "(SELECT s.id FROM measurements s WHERE s.supersedes_id = m.id), m.background "
                                "FROM measurements m JOIN fractions f ON f.id = m.fraction_id "
                                "JOIN plans p ON p.id = f.plan_id JOIN patients pt ON pt.id = p.patient_id "
                                "WHERE m.id = :id")) != 0)
@@ -597,6 +607,7 @@ static int load_original(fxl_ctx *ctx, rec_original *o, int64_t id)
     o->temp_c = fxl_stmt_double(&s, 7);
     o->temp_entered = (int)fxl_stmt_int(&s, 8);
     o->superseded_by = fxl_stmt_int(&s, 9);
+    o->background = fxl_stmt_double_opt(&s, 10);
     rc = 0;
 cleanup:
     fxl_stmt_finalize(&s);
@@ -619,7 +630,7 @@ int fxl_record_amend(fxl_ctx *ctx, fxl_record_result *out, const fxl_amend_reque
     rec_inputs in;
     char now[FXL_TIME_LEN], unit[8] = "", field[65] = "";
     int64_t detector_id;
-    double temp_c;
+    double temp_c, background;
     int rc, temp_entered, loaded = 0;
 
     memset(out, 0, sizeof *out);
@@ -649,12 +660,15 @@ int fxl_record_amend(fxl_ctx *ctx, fxl_record_result *out, const fxl_amend_reque
         return rc;
     loaded = 1;
     snprintf(field, sizeof field, "%s", in.m.field);
-    if ((rc = rec_check_numbers(ctx, field, req->reading, req->background, req->temp_c,
+    /* The background is an input of the dose like the reading: an amendment
+     * keeps the original's M_0 unless a new one is given. */
+    background = isnan(req->background) ? orig.background : req->background;
+    if ((rc = rec_check_numbers(ctx, field, req->reading, background, req->temp_c,
                             in.m.reading_unit)) != 0)
         goto cleanup;
     temp_entered = isnan(req->temp_c) ? orig.temp_entered : 1;
     temp_c = isnan(req->temp_c) ? orig.temp_c : req->temp_c;
-    rec_compute(&in, req->reading, req->background, temp_c, temp_entered, &settings);
+    rec_compute(&in, req->reading, background, temp_c, temp_entered, &settings);
     in.m.supersedes_id = req->measurement_id;
     snprintf(in.m.amend_reason, sizeof in.m.amend_reason, "%s", req->reason);
 

@@ -86,7 +86,8 @@ int fxl_history_list(fxl_ctx *ctx, fxl_history_row **out, size_t *n, const fxl_h
                                "m.expected_dose_cgy, m.deviation_pct, coalesce(m.threshold_set_id, 0), "
                                "m.tolerance_pct, m.action_pct, m.floor_cgy, m.verdict, m.reasons, "
                                "coalesce(m.supersedes_id, 0), coalesce(m.amend_reason, ''), "
-                               "coalesce((SELECT s.id FROM measurements s WHERE s.supersedes_id = m.id), 0) "
+                               "coalesce((SELECT s.id FROM measurements s WHERE s.supersedes_id = m.id), 0), "
+                               "m.cf_thickness, m.cf_sdd, m.background, m.gross "
                                "FROM measurements m JOIN fractions f ON f.id = m.fraction_id "
                                "JOIN plans p ON p.id = f.plan_id JOIN fields fl ON fl.id = m.field_id "
                                "JOIN detectors d ON d.id = m.detector_id JOIN users u ON u.id = m.user_id "
@@ -120,7 +121,7 @@ int fxl_history_list(fxl_ctx *ctx, fxl_history_row **out, size_t *n, const fxl_h
         r->temp_entered = (int)fxl_stmt_int(&s, 13);
         r->calibration_id = fxl_stmt_int(&s, 14);
         r->factor_n = fxl_stmt_double_opt(&s, 15);
-        for (i = 0; i < FXL_CF_COUNT; i++)
+        for (i = 0; i <= FXL_CF_ANGLE; i++)
             r->cf[i] = fxl_stmt_double_opt(&s, 16 + i);
         r->cf_temp = fxl_stmt_double_opt(&s, 21);
         r->corrected_dose_cgy = fxl_stmt_double_opt(&s, 22);
@@ -136,6 +137,10 @@ int fxl_history_list(fxl_ctx *ctx, fxl_history_row **out, size_t *n, const fxl_h
         r->supersedes_id = fxl_stmt_int(&s, 31);
         copy(r->amend_reason, sizeof r->amend_reason, fxl_stmt_text(&s, 32));
         r->superseded_by = fxl_stmt_int(&s, 33);
+        r->cf[FXL_CF_THICKNESS] = fxl_stmt_double_opt(&s, 34);
+        r->cf[FXL_CF_SDD] = fxl_stmt_double_opt(&s, 35);
+        r->background = fxl_stmt_double_opt(&s, 36);  /* NaN: row older than schema 5 */
+        r->gross = (int)fxl_stmt_int(&s, 37);
     }
     if (rc == 0) {
         *out = list;

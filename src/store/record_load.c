@@ -261,7 +261,7 @@ static int load_field(fxl_ctx *ctx, rec_inputs *in, int64_t field_id)
     if ((rc = fxl_stmt_prepare(&s, ctx,
                                "SELECT f.name, f.point, f.beam_id, f.ssd_cm, f.x_cm, f.y_cm, f.wedge_deg, "
                                "f.tray, f.incidence_deg, f.expected_dose_cgy, coalesce(f.expected_source, ''), "
-                               "b.name, b.modality, b.energy, mc.name "
+                               "b.name, b.modality, b.energy, mc.name, f.thickness_cm "
                                "FROM fields f JOIN beams b ON b.id = f.beam_id "
                                "JOIN machines mc ON mc.id = b.machine_id WHERE f.id = :id")) != 0)
         goto cleanup;
@@ -288,6 +288,11 @@ static int load_field(fxl_ctx *ctx, rec_inputs *in, int64_t field_id)
     copy(m->modality, sizeof m->modality, fxl_stmt_text(&s, 12));
     m->energy = fxl_stmt_double(&s, 13);
     copy(m->machine, sizeof m->machine, fxl_stmt_text(&s, 14));
+    /* Exit parameters: the patient thickness along the beam and the
+     * source-to-detector distance SSD + thickness (the detector sits on the
+     * exit surface); NaN when the plan gives no thickness. */
+    m->param[FXL_CF_THICKNESS] = fxl_stmt_double_opt(&s, 15);
+    m->param[FXL_CF_SDD] = m->param[FXL_CF_SSD] + m->param[FXL_CF_THICKNESS];
     rc = 0;
 cleanup:
     fxl_stmt_finalize(&s);
@@ -348,8 +353,10 @@ static int load_calibration(fxl_ctx *ctx, rec_inputs *in, const char *at)
     m->ref[FXL_CF_WEDGE] = 0;
     m->ref[FXL_CF_TRAY] = 0;
     m->ref[FXL_CF_ANGLE] = 0;
+    m->ref[FXL_CF_THICKNESS] = m->ref[FXL_CF_SDD] = NAN;
     if ((rc = fxl_stmt_prepare(&s, ctx,
-                               "SELECT id, factor_cgy_per_unit, temp_c, ssd_cm, field_size_cm, valid_until "
+                               "SELECT id, factor_cgy_per_unit, temp_c, ssd_cm, field_size_cm, valid_until, "
+                               "ref_thickness_cm "
                                "FROM calibrations WHERE detector_id = :det AND beam_id = :beam "
                                "AND point = :point AND calibrated_at <= :at "
                                "ORDER BY calibrated_at DESC, id DESC LIMIT 1")) != 0)
@@ -368,6 +375,10 @@ static int load_calibration(fxl_ctx *ctx, rec_inputs *in, const char *at)
         m->ref[FXL_CF_FIELD_SIZE] = fxl_stmt_double(&s, 4);
         copy(m->calibration_valid_until, sizeof m->calibration_valid_until, fxl_stmt_text(&s, 5));
         m->calibration_valid = strcmp(at, m->calibration_valid_until) <= 0;
+        /* Exit reference: the phantom thickness of the exit calibration and
+         * its source-to-detector distance SSD + thickness. */
+        m->ref[FXL_CF_THICKNESS] = fxl_stmt_double_opt(&s, 6);
+        m->ref[FXL_CF_SDD] = m->ref[FXL_CF_SSD] + m->ref[FXL_CF_THICKNESS];
     }
     rc = 0;
 cleanup:
@@ -382,7 +393,8 @@ static int load_tables(fxl_ctx *ctx, rec_inputs *in, const char *at)
 
     if ((rc = fxl_stmt_prepare(&t, ctx,
                                "SELECT id FROM correction_tables WHERE detector_id = :det "
-                               "AND beam_id = :beam AND parameter = :param AND effective_from <= :at "
+                               "AND beam_id = :beam AND point = :point AND parameter = :param "
+                               "AND effective_from <= :at "
                                "ORDER BY effective_from DESC, id DESC LIMIT 1")) != 0 ||
         (rc = fxl_stmt_prepare(&p, ctx,
                                "SELECT x, factor FROM correction_points WHERE table_id = :table "
@@ -392,10 +404,15 @@ static int load_tables(fxl_ctx *ctx, rec_inputs *in, const char *at)
         rec_table *tb = &in->tables[i];
         size_t cap_x = 0, cap_f = 0;
 
+        /* Only the tables of this measured point: an exit reading never
+         * takes an entrance factor. */
+        if (!fxl_cf_applies((fxl_cf_param)i, strcmp(in->m.point, "exit") == 0))
+            continue;
         fxl_stmt_reset(&t);
         fxl_stmt_bind_int(&t, ":det", in->detector_id);
         fxl_stmt_bind_int(&t, ":beam", in->beam_id);
         fxl_stmt_bind_text(&t, ":param", fxl_cf_name((fxl_cf_param)i));
+        fxl_stmt_bind_text(&t, ":point", in->m.point);
         fxl_stmt_bind_text(&t, ":at", at);
         if ((rc = fxl_stmt_step(&t)) < 0)
             goto cleanup;
@@ -436,6 +453,11 @@ static int load_prior(fxl_ctx *ctx, rec_inputs *in, const rec_plan *plan, int fr
                                "JOIN fractions f ON f.id = m.fraction_id "
                                "WHERE m.field_id = :field AND f.plan_id = :plan AND f.number < :number "
                                "AND NOT EXISTS (SELECT 1 FROM measurements s WHERE s.supersedes_id = m.id) "
+                               /* the last EVALUATED result: a not-evaluable or
+                                * implausible one between two results outside
+                                * tolerance does not hide the pair */
+                               "AND m.verdict IN ('within_tolerance', 'outside_tolerance', 'outside_action') "
+                               "AND m.deviation_pct IS NOT NULL "
                                "ORDER BY f.number DESC, m.id DESC LIMIT 1")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&s, ":field", in->m.field_id);
@@ -514,12 +536,13 @@ void rec_compute(rec_inputs *in, double reading, double background, double temp_
     fxl_judgement j;
     int i;
 
+    memset(&di, 0, sizeof di);
     m->reading = reading;
     m->background = isfinite(background) ? background : 0;
+    di.exit = strcmp(m->point, "exit") == 0;
     m->temp_c = temp_c;
     m->temp_entered = temp_entered;
 
-    memset(&di, 0, sizeof di);
     di.reading = reading;
     di.background = m->background;
     di.factor_n = m->calibration_id ? m->factor_n : NAN;
@@ -569,6 +592,7 @@ void rec_compute(rec_inputs *in, double reading, double background, double temp_
                                 : NAN;
     m->deviation_pct = j.deviation_pct;
     m->verdict = j.verdict;
+    m->gross = j.gross;
     m->reasons = j.reasons;
 }
 

@@ -11,6 +11,7 @@
 
 #include <cjson/cJSON.h>
 
+#include "fxl/drift.h"
 #include "fxl/review.h"
 #include "fxl/rules.h"
 #include "store/audit.h"
@@ -533,7 +534,7 @@ static int load_measurement(fxl_ctx *ctx, fxl_review_measurement *m, int64_t id)
             "       coalesce(t.version, 0), m.tolerance_pct, m.action_pct, m.floor_cgy, m.verdict, "
             "       m.reasons, coalesce(m.supersedes_id, 0), coalesce(m.amend_reason, ''), "
             "       coalesce(n.id, 0), coalesce(n.amend_reason, ''), coalesce(n.verdict, ''), "
-            "       n.deviation_pct "
+            "       n.deviation_pct, m.cf_thickness, m.cf_sdd, m.background, m.gross "
             "FROM measurements m "
             "JOIN fractions fr ON fr.id = m.fraction_id "
             "JOIN fields f ON f.id = m.field_id "
@@ -566,7 +567,7 @@ static int load_measurement(fxl_ctx *ctx, fxl_review_measurement *m, int64_t id)
     m->temp_entered = (int)fxl_stmt_int(&s, 12);
     m->calibration_id = fxl_stmt_int(&s, 13);
     m->factor_n = fxl_stmt_double_opt(&s, 14);
-    for (i = 0; i < FXL_CF_COUNT; i++)
+    for (i = 0; i <= FXL_CF_ANGLE; i++)
         m->cf[i] = fxl_stmt_double_opt(&s, 15 + i);
     m->cf_temp = fxl_stmt_double_opt(&s, 20);
     m->corrected_dose_cgy = fxl_stmt_double_opt(&s, 21);
@@ -586,6 +587,10 @@ static int load_measurement(fxl_ctx *ctx, fxl_review_measurement *m, int64_t id)
     copy(m->superseded_reason, sizeof m->superseded_reason, fxl_stmt_text(&s, 35));
     copy(m->superseded_verdict, sizeof m->superseded_verdict, fxl_stmt_text(&s, 36));
     m->superseded_deviation_pct = fxl_stmt_double_opt(&s, 37);
+    m->cf[FXL_CF_THICKNESS] = fxl_stmt_double_opt(&s, 38);
+    m->cf[FXL_CF_SDD] = fxl_stmt_double_opt(&s, 39);
+    m->background = fxl_stmt_double_opt(&s, 40);
+    m->gross = (int)fxl_stmt_int(&s, 41);
     rc = 0;
 cleanup:
     fxl_stmt_finalize(&s);
@@ -638,40 +643,75 @@ cleanup:
     return rc;
 }
 
+/* The beam and point of a drift item, from its key
+ * "detector:<d>:beam:<b>:point:<p>:since:..."; beam 0 and point "" for an
+ * item opened before schema version 5 (one series per detector). */
+static void drift_item_series(const char *key, int64_t *beam_id, char point[16])
+{
+    long long d = 0, b = 0;
+    char p[16] = "";
+
+    *beam_id = 0;
+    point[0] = '\0';
+    if (sscanf(key, "detector:%lld:beam:%lld:point:%15[a-z]", &d, &b, p) == 3) {
+        *beam_id = (int64_t)b;
+        snprintf(point, 16, "%s", p);
+    }
+}
+
 static int load_detector_trend(fxl_ctx *ctx, fxl_review_detail *d)
 {
     fxl_rule_settings rs;
     fxl_drift_point *pts = NULL;
-    fxl_cusum_params p;
-    fxl_cusum_result cr;
-    double *dev = NULL, *hi = NULL, *lo = NULL;
-    char since[FXL_TIME_LEN] = "";
+    fxl_drift_params p;
+    fxl_drift_result cr;
+    fxl_stmt s = FXL_STMT_INIT;
+    double *dev = NULL, *hi = NULL, *lo = NULL, *sig = NULL;
+    char since[FXL_TIME_LEN] = "", point[16];
+    int64_t beam_id;
     size_t n = 0, i;
     int rc;
 
+    drift_item_series(d->item.rule_key, &beam_id, point);
     if ((rc = fxl_rule_settings_load(ctx, &rs)) != 0 ||
-        (rc = fxl_drift_series(ctx, &pts, &n, since, d->item.detector_id)) != 0)
+        (rc = fxl_drift_series(ctx, &pts, &n, since, d->item.detector_id, beam_id,
+                               point[0] ? point : NULL)) != 0)
         goto cleanup;
     d->trend_is_detector = 1;
     d->cusum_target_pct = rs.cusum_target_pct;
-    d->cusum_k_pct = rs.cusum_k_pct;
-    d->cusum_h_pct = rs.cusum_h_pct;
+    d->cusum_k_sd = rs.cusum_k_sd;
+    d->cusum_h_sd = rs.cusum_h_sd;
+    d->cusum_startup = rs.cusum_startup;
+    if (beam_id && point[0]) {
+        if ((rc = fxl_stmt_prepare(&s, ctx,
+                                   "SELECT mc.name || ' ' || b.name FROM beams b "
+                                   "JOIN machines mc ON mc.id = b.machine_id WHERE b.id = :b")) != 0)
+            goto cleanup;
+        fxl_stmt_bind_int(&s, ":b", beam_id);
+        if ((rc = fxl_stmt_step(&s)) < 0)
+            goto cleanup;
+        snprintf(d->trend_series, sizeof d->trend_series, "%s %s",
+                 rc == 1 ? fxl_stmt_text(&s, 0) : "?", point);
+        rc = 0;
+    }
     if (n == 0)
         goto cleanup;
     dev = calloc(n, sizeof *dev);
     hi = calloc(n, sizeof *hi);
     lo = calloc(n, sizeof *lo);
+    sig = calloc(n, sizeof *sig);
     d->trend = calloc(n, sizeof *d->trend);
-    if (!dev || !hi || !lo || !d->trend) {
+    if (!dev || !hi || !lo || !sig || !d->trend) {
         rc = fxl_fail(ctx, FXL_EIO, "out of memory reading a detector trend");
         goto cleanup;
     }
     for (i = 0; i < n; i++)
         dev[i] = pts[i].deviation_pct;
     p.target_pct = rs.cusum_target_pct;
-    p.k_pct = rs.cusum_k_pct;
-    p.h_pct = rs.cusum_h_pct;
-    if (fxl_cusum(&cr, hi, lo, dev, n, &p) != 0) {
+    p.k_sigma = rs.cusum_k_sd;
+    p.h_sigma = rs.cusum_h_sd;
+    p.startup = (size_t)rs.cusum_startup;
+    if (fxl_drift_cusum(&cr, hi, lo, sig, dev, n, &p) != 0) {
         rc = fxl_fail(ctx, FXL_EINVAL, "internal: CUSUM refused the detector's deviations");
         goto cleanup;
     }
@@ -686,13 +726,16 @@ static int load_detector_trend(fxl_ctx *ctx, fxl_review_detail *d)
         copy(t->verdict, sizeof t->verdict, pts[i].verdict);
         t->cusum_high = hi[i];
         t->cusum_low = lo[i];
+        t->sigma_pct = sig[i];
     }
     d->n_trend = n;
 cleanup:
+    fxl_stmt_finalize(&s);
     free(pts);
     free(dev);
     free(hi);
     free(lo);
+    free(sig);
     return rc;
 }
 
@@ -748,7 +791,7 @@ int fxl_queue_show(fxl_ctx *ctx, fxl_review_detail *out, int64_t id)
 
     memset(out, 0, sizeof *out);
     out->trend_tolerance_pct = out->trend_action_pct = NAN;
-    out->cusum_target_pct = out->cusum_k_pct = out->cusum_h_pct = NAN;
+    out->cusum_target_pct = out->cusum_k_sd = out->cusum_h_sd = NAN;
     if ((rc = fxl_require_role(ctx, FXL_ROLES_ANY, "reading the review queue")) != 0)
         return rc;
     memset(&all, 0, sizeof all);

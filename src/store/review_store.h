@@ -45,8 +45,9 @@ typedef struct fxl_rule_settings {
     int calibration_due_days;   /* calibration_due_days, 0..365, default 14 */
     int weekly_interval_days;   /* weekly_interval_days, 1..60, default 7 */
     double cusum_target_pct;    /* cusum_target_pct, -20..20 %, default 0 */
-    double cusum_k_pct;         /* cusum_k_pct, 0..20 %, default 1 */
-    double cusum_h_pct;         /* cusum_h_pct, 0.1..100 %, default 10 */
+    double cusum_k_sd;          /* cusum_k_sd, 0..3 spreads, default 0.5 */
+    double cusum_h_sd;          /* cusum_h_sd, 1..20 spreads, default 5.5 */
+    int cusum_startup;          /* cusum_startup, 10..100 results, default 10 */
 } fxl_rule_settings;
 
 int fxl_rule_settings_load(fxl_ctx *ctx, fxl_rule_settings *out);
@@ -62,13 +63,20 @@ typedef struct fxl_drift_point {
     double deviation_pct;
 } fxl_drift_point;
 
-/* The deviations the CUSUM of detector `detector_id` runs over, oldest first:
- * its evaluable measurements (within tolerance, outside tolerance, outside
- * action), not superseded, treated after the restart point. The restart
+/* The deviations the drift chart of detector `detector_id`, beam `beam_id`
+ * and measured point `point` runs over, oldest first: its evaluable
+ * measurements (within tolerance, outside tolerance, outside action, not
+ * gross), not superseded, treated after the restart point. The restart
  * point (into since, "" when none) is the later of the detector's latest
- * calibration and the latest closing of a detector_drift item on it.
+ * calibration for that beam and point and the latest closing of the
+ * detector_drift item of that series. beam_id 0 and point NULL read every
+ * series of the detector together (items opened before schema version 5).
  * *out is a heap array (free()), NULL when *n is 0. */
 int fxl_drift_series(fxl_ctx *ctx, fxl_drift_point **out, size_t *n, char since[FXL_TIME_LEN],
-                     int64_t detector_id);
+                     int64_t detector_id, int64_t beam_id, const char *point);
+
+/* The review item key of one drift series: "detector:<id>:beam:<id>:point:<p>". */
+void fxl_drift_series_key(char *buf, size_t size, int64_t detector_id, int64_t beam_id,
+                          const char *point);
 
 #endif

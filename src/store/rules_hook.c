@@ -8,8 +8,10 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "fxl/drift.h"
 #include "fxl/number.h"
 #include "fxl/rules.h"
+#include "store/dose_counted.h"
 #include "store/grow.h"
 #include "store/review_store.h"
 #include "store/rules_hook.h"
@@ -42,7 +44,7 @@ static int setting_number(fxl_ctx *ctx, double *out, const char *key, double fal
 
 int fxl_rule_settings_load(fxl_ctx *ctx, fxl_rule_settings *out)
 {
-    double due, weekly;
+    double due, weekly, startup;
     int rc;
 
     if ((rc = setting_number(ctx, &due, "calibration_due_days", FXL_CALIBRATION_DUE_DAYS_DEFAULT,
@@ -51,11 +53,14 @@ int fxl_rule_settings_load(fxl_ctx *ctx, fxl_rule_settings *out)
                              1, 60, 1, "days")) != 0 ||
         (rc = setting_number(ctx, &out->cusum_target_pct, "cusum_target_pct",
                              FXL_CUSUM_TARGET_PCT_DEFAULT, -20, 20, 0, "%")) != 0 ||
-        (rc = setting_number(ctx, &out->cusum_k_pct, "cusum_k_pct", FXL_CUSUM_K_PCT_DEFAULT, 0, 20,
-                             0, "%")) != 0 ||
-        (rc = setting_number(ctx, &out->cusum_h_pct, "cusum_h_pct", FXL_CUSUM_H_PCT_DEFAULT, 0.1,
-                             100, 0, "%")) != 0)
+        (rc = setting_number(ctx, &out->cusum_k_sd, "cusum_k_sd", FXL_DRIFT_K_SIGMA_DEFAULT, 0, 3,
+                             0, "spreads")) != 0 ||
+        (rc = setting_number(ctx, &out->cusum_h_sd, "cusum_h_sd", FXL_DRIFT_H_SIGMA_DEFAULT, 1,
+                             20, 0, "spreads")) != 0 ||
+        (rc = setting_number(ctx, &startup, "cusum_startup", FXL_DRIFT_STARTUP_DEFAULT,
+                             FXL_DRIFT_STARTUP_MIN, 100, 1, "results")) != 0)
         return rc;
+    out->cusum_startup = (int)startup;
     out->calibration_due_days = (int)due;
     out->weekly_interval_days = (int)weekly;
     return 0;
@@ -364,7 +369,11 @@ static int rule_dose_limit(fxl_ctx *ctx, const hook_detector *d)
         return 0;
     if ((rc = fxl_stmt_prepare(&s, ctx,
             "SELECT coalesce(c.id, 0), coalesce(c.calibrated_at, ''), "
-            "       coalesce((SELECT sum(m.corrected_dose_cgy) FROM measurements m "
+            /* A gross or implausible result (a unit slip can be a factor
+             * 1000) adds the planned dose, the best estimate of what the
+             * detector received; one without a dose adds nothing
+             * (docs/rules.md). */
+            "       coalesce((SELECT sum(" FXL_SQL_DOSE_COUNTED("m") ") FROM measurements m "
             "                 JOIN fractions fr ON fr.id = m.fraction_id "
             "                 WHERE m.detector_id = :d AND m.corrected_dose_cgy IS NOT NULL "
             "                 AND NOT EXISTS (SELECT 1 FROM measurements n WHERE n.supersedes_id = m.id) "
@@ -416,25 +425,40 @@ cleanup:
     return rc;
 }
 
+void fxl_drift_series_key(char *buf, size_t size, int64_t detector_id, int64_t beam_id,
+                          const char *point)
+{
+    snprintf(buf, size, "detector:%lld:beam:%lld:point:%s", (long long)detector_id,
+             (long long)beam_id, point ? point : "");
+}
+
 int fxl_drift_series(fxl_ctx *ctx, fxl_drift_point **out, size_t *n, char since[FXL_TIME_LEN],
-                     int64_t detector_id)
+                     int64_t detector_id, int64_t beam_id, const char *point)
 {
     fxl_stmt s = FXL_STMT_INIT;
     fxl_drift_point *list = NULL;
+    char key[128];
     size_t cap = 0, count = 0;
-    int rc;
+    int rc, all = beam_id == 0 || !point;
 
     *out = NULL;
     *n = 0;
     since[0] = '\0';
+    fxl_drift_series_key(key, sizeof key, detector_id, beam_id, point);
     if ((rc = fxl_stmt_prepare(&s, ctx,
             "SELECT coalesce(max(t), '') FROM ("
             "  SELECT max(calibrated_at) AS t FROM calibrations WHERE detector_id = :d "
+            "  AND (:all OR (beam_id = :b AND point = :p)) "
             "  UNION ALL "
             "  SELECT max(e.created_at) FROM review_events e JOIN review_items i ON i.id = e.item_id "
-            "  WHERE i.detector_id = :d AND i.rule = '" FXL_RULE_DRIFT "' AND e.kind = 'close')")) != 0)
+            "  WHERE i.detector_id = :d AND i.rule = '" FXL_RULE_DRIFT "' AND e.kind = 'close' "
+            "  AND (:all OR substr(i.rule_key, 1, length(:key) + 1) = :key || ':'))")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&s, ":d", detector_id);
+    fxl_stmt_bind_int(&s, ":all", all);
+    fxl_stmt_bind_int(&s, ":b", beam_id);
+    fxl_stmt_bind_text(&s, ":p", point ? point : "");
+    fxl_stmt_bind_text(&s, ":key", key);
     if ((rc = fxl_stmt_step(&s)) < 0)
         goto cleanup;
     snprintf(since, FXL_TIME_LEN, "%s", rc == 1 ? fxl_stmt_text(&s, 0) : "");
@@ -449,12 +473,17 @@ int fxl_drift_series(fxl_ctx *ctx, fxl_drift_point **out, size_t *n, char since[
             "JOIN patients p ON p.id = pl.patient_id "
             "WHERE m.detector_id = :d AND m.deviation_pct IS NOT NULL "
             "  AND m.verdict IN ('within_tolerance', 'outside_tolerance', 'outside_action') "
+            "  AND m.gross = 0 "   /* a gross result has its own item; not a drift */
+            "  AND (:all OR (f.beam_id = :b AND f.point = :p)) "
             "  AND NOT EXISTS (SELECT 1 FROM measurements n WHERE n.supersedes_id = m.id) "
             "  AND (:since = '' OR fr.treated_at > :since) "
             "  AND m.created_at > :since "  /* created_at >= treated_at: the index finds the rows */
             "ORDER BY fr.treated_at, m.id")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&s, ":d", detector_id);
+    fxl_stmt_bind_int(&s, ":all", all);
+    fxl_stmt_bind_int(&s, ":b", beam_id);
+    fxl_stmt_bind_text(&s, ":p", point ? point : "");
     fxl_stmt_bind_text(&s, ":since", since);
     while ((rc = fxl_stmt_step(&s)) == 1) {
         fxl_drift_point *p;
@@ -482,20 +511,21 @@ cleanup:
     return rc;
 }
 
-/* Tabular CUSUM of the detector's deviations across all patients; a signal
- * opens one item on the detector per restart point. */
-static int rule_drift(fxl_ctx *ctx, const hook_detector *d, const fxl_rule_settings *rs)
+/* The standardised CUSUM of one series (detector, beam, point); a signal
+ * opens one item on the detector per series and restart point. */
+static int drift_series_rule(fxl_ctx *ctx, const hook_detector *d, const fxl_rule_settings *rs,
+                             int64_t beam_id, const char *beam, const char *point)
 {
     fxl_drift_point *pts = NULL;
     double *dev = NULL;
-    fxl_cusum_params p;
-    fxl_cusum_result r;
+    fxl_drift_params p;
+    fxl_drift_result r;
     fxl_review_open_spec spec;
-    char since[FXL_TIME_LEN], key[96], summary[720];
+    char since[FXL_TIME_LEN], series[128], key[200], summary[720];
     size_t n = 0, i;
     int rc;
 
-    if ((rc = fxl_drift_series(ctx, &pts, &n, since, d->id)) != 0 || n == 0)
+    if ((rc = fxl_drift_series(ctx, &pts, &n, since, d->id, beam_id, point)) != 0 || n == 0)
         goto cleanup;
     if (!(dev = calloc(n, sizeof *dev))) {
         rc = fxl_fail(ctx, FXL_EIO, "out of memory evaluating detector drift");
@@ -504,17 +534,19 @@ static int rule_drift(fxl_ctx *ctx, const hook_detector *d, const fxl_rule_setti
     for (i = 0; i < n; i++)
         dev[i] = pts[i].deviation_pct;
     p.target_pct = rs->cusum_target_pct;
-    p.k_pct = rs->cusum_k_pct;
-    p.h_pct = rs->cusum_h_pct;
-    if (fxl_cusum(&r, NULL, NULL, dev, n, &p) != 0) {
-        rc = fxl_fail(ctx, FXL_EINVAL, "setting 'cusum_h_pct' must be above 0 %% (see docs/rules.md)");
+    p.k_sigma = rs->cusum_k_sd;
+    p.h_sigma = rs->cusum_h_sd;
+    p.startup = (size_t)rs->cusum_startup;
+    if (fxl_drift_cusum(&r, NULL, NULL, NULL, dev, n, &p) != 0) {
+        rc = fxl_fail(ctx, FXL_EINVAL, "setting 'cusum_h_sd' must be above 0 (see docs/rules.md)");
         goto cleanup;
     }
     if (!r.signal)
         goto cleanup;
-    snprintf(key, sizeof key, "detector:%lld:since:%s", (long long)d->id, since[0] ? since : "start");
-    snprintf(summary, sizeof summary, "detector %s: %s, across all patients since %s", d->serial,
-             r.text, since[0] ? since : "its first measurement");
+    fxl_drift_series_key(series, sizeof series, d->id, beam_id, point);
+    snprintf(key, sizeof key, "%s:since:%s", series, since[0] ? since : "start");
+    snprintf(summary, sizeof summary, "detector %s, beam %s %s: %s, all patients since %s",
+             d->serial, beam, point, r.text, since[0] ? since : "its first measurement");
     memset(&spec, 0, sizeof spec);
     spec.rule = FXL_RULE_DRIFT;
     spec.severity = FXL_RULE_DRIFT_SEVERITY;
@@ -525,6 +557,44 @@ static int rule_drift(fxl_ctx *ctx, const hook_detector *d, const fxl_rule_setti
 cleanup:
     free(pts);
     free(dev);
+    return rc;
+}
+
+/* Drift per detector, beam and measured point: one chart for each series
+ * the detector measured in this fraction. Entrance and exit, or two beams,
+ * do not share a spread (docs/rules.md). */
+static int rule_drift(fxl_ctx *ctx, const hook_detector *d, const fxl_rule_settings *rs,
+                      int64_t fraction_id)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    struct { int64_t beam_id; char beam[98]; char point[16]; } series[64];
+    size_t n = 0, i;
+    int rc;
+
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+            "SELECT DISTINCT f.beam_id, mc.name || ' ' || b.name, f.point FROM measurements m "
+            "JOIN fields f ON f.id = m.field_id JOIN beams b ON b.id = f.beam_id "
+            "JOIN machines mc ON mc.id = b.machine_id "
+            "WHERE m.fraction_id = :fr AND m.detector_id = :d ORDER BY f.beam_id, f.point")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":fr", fraction_id);
+    fxl_stmt_bind_int(&s, ":d", d->id);
+    while ((rc = fxl_stmt_step(&s)) == 1 && n < sizeof series / sizeof series[0]) {
+        series[n].beam_id = fxl_stmt_int(&s, 0);
+        snprintf(series[n].beam, sizeof series[n].beam, "%s", fxl_stmt_text(&s, 1));
+        snprintf(series[n].point, sizeof series[n].point, "%s", fxl_stmt_text(&s, 2));
+        n++;
+    }
+    if (rc < 0)
+        goto cleanup;
+    fxl_stmt_finalize(&s);
+    for (i = 0; i < n; i++)
+        if ((rc = drift_series_rule(ctx, d, rs, series[i].beam_id, series[i].beam,
+                                    series[i].point)) != 0)
+            goto cleanup;
+    rc = 0;
+cleanup:
+    fxl_stmt_finalize(&s);
     return rc;
 }
 
@@ -610,7 +680,7 @@ int fxl_rules_after_record(fxl_ctx *ctx, int64_t fraction_id)
     for (i = 0; i < n; i++) {
         if ((rc = rule_calibration(ctx, &fr, &dets[i], &rs, now)) != 0 ||
             (rc = rule_dose_limit(ctx, &dets[i])) != 0 ||
-            (rc = rule_drift(ctx, &dets[i], &rs)) != 0)
+            (rc = rule_drift(ctx, &dets[i], &rs, fraction_id)) != 0)
             goto cleanup;
     }
     rc = follow_amendments(ctx, fraction_id);

@@ -8,6 +8,8 @@
 #include <sys/stat.h>
 
 #include "fxl/beam_model.h"
+#include "fxl/calibrations.h"
+#include "fxl/drift.h"
 #include "fxl/review.h"
 #include "fxl/rules.h"
 #include "fxl/settings.h"
@@ -27,7 +29,7 @@ typedef struct setting_rule {
     double lo, hi;          /* numbers: inclusive range; text: length range */
 } setting_rule;
 
-/* Ranges: skin temperature from DOMAIN.md (skin 28 to 34 degC) widened to what
+/* Ranges: skin temperature (skin 28 to 34 degC, common practice) widened to what
  * the measurements table accepts; the rules-over-history keys use the ranges
  * their reader checks (src/store/rules_hook.c, docs/rules.md); the rest are
  * local policy choices documented in docs/equipment.md. Sorted by key. */
@@ -46,14 +48,25 @@ static const setting_rule rules[] = {
       "3 to 20", "5"}, KIND_INT, 3, 20},
     {{"auth_session_hours", "a session ends at the latest this many hours after login",
       "1 to 24 h", "12"}, KIND_INT, 1, 24},
+    {{"calibration_change_limit_pct", "largest change of N against the previous calibration of "
+      "the same detector, beam and point accepted without a physicist's confirmation",
+      "0.1 to 50 %", STR(FXL_CALIB_CHANGE_LIMIT_PCT_DEFAULT)}, KIND_NUMBER, 0.1, 50},
     {{"calibration_due_days", "warn this many days before a calibration expires",
       "0 to 365 days", "14"}, KIND_INT, 0, 365},
     {{"calibration_interval_days", "validity of a new calibration when none is given",
       "1 to 3650 days", "90"}, KIND_INT, 1, 3650},
-    {{"cusum_h_pct", "CUSUM decision interval for detector and course drift",
-      "0.1 to 100 %", STR(FXL_CUSUM_H_PCT_DEFAULT)}, KIND_NUMBER, 0.1, 100},
-    {{"cusum_k_pct", "CUSUM allowance (slack) for detector and course drift",
-      "0 to 20 %", STR(FXL_CUSUM_K_PCT_DEFAULT)}, KIND_NUMBER, 0, 20},
+    {{"calibration_nominal_limit_pct", "largest difference of a detector's first N from its "
+      "nominal sensitivity accepted without a physicist's confirmation", "1 to 100 %",
+      STR(FXL_CALIB_NOMINAL_LIMIT_PCT_DEFAULT)}, KIND_NUMBER, 1, 100},
+    {{"calibration_sd_limit_pct", "largest SD of the calibration readings (percent of their mean) "
+      "accepted without a physicist's confirmation", "0.01 to 20 %",
+      STR(FXL_CALIB_SD_LIMIT_PCT_DEFAULT)}, KIND_NUMBER, 0.01, 20},
+    {{"cusum_h_sd", "drift CUSUM decision interval, in spreads of the series",
+      "1 to 20", STR(FXL_DRIFT_H_SIGMA_DEFAULT)}, KIND_NUMBER, 1, 20},
+    {{"cusum_k_sd", "drift CUSUM allowance (slack), in spreads of the series",
+      "0 to 3", STR(FXL_DRIFT_K_SIGMA_DEFAULT)}, KIND_NUMBER, 0, 3},
+    {{"cusum_startup", "results of a drift series before its chart starts (spread estimate)",
+      "10 to 100", STR(FXL_DRIFT_STARTUP_DEFAULT)}, KIND_INT, 10, 100},
     {{"cusum_target_pct", "CUSUM target mean deviation", "-20 to 20 %",
       STR(FXL_CUSUM_TARGET_PCT_DEFAULT)}, KIND_NUMBER, -20, 20},
     {{"department", "department name printed on reports", "1 to 200 characters", NULL},
@@ -61,7 +74,8 @@ static const setting_rule rules[] = {
     {{"dispositions", "comma-separated dispositions offered when closing a review item",
       "a comma-separated list of at most " STR(FXL_DISPOSITIONS_MAX) " entries of at most "
       STR(FXL_DISPOSITION_MAX) " characters", FXL_DISPOSITIONS_DEFAULT}, KIND_DISPOSITIONS, 0, 4000},
-    {{"implausible_pct", "|deviation| above this is flagged as a probable entry error",
+    {{"implausible_pct", "plausibility bound: |deviation| above this is a gross deviation "
+      "(outside the action level; re-read and unit check asked for first)",
       "5 to 100 %", "50"}, KIND_NUMBER, 5, 100},
     {{"model_crosscheck_pct", "disagreement between a planning-system expected dose and the "
       "independent model that opens a review item at plan import", "0.1 to 50 %",

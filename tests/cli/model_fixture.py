@@ -2,7 +2,7 @@
 second time from the published formalism, independently of the C code:
 
 AAPM TG-71 (Gibbons et al., Med. Phys. 41, 2014, 031501), the monitor-unit
-equation run backwards (DOMAIN.md section 4, docs/expected-dose.md):
+equation run backwards (AAPM TG-71, Gibbons et al., Med. Phys. 2014, docs/expected-dose.md):
     entrance, d = d_max:  D = MU x D0' x S_c(r_c) x S_p(r_d) x WF x TF x ((SSD0+d0)/(SSD+d_max))^2
     exit, d = t - d_max:  D = MU x D0' x S_c(r_c) x S_p(r_x) x TMR(d, r_x) x WF x TF x ((SSD0+d0)/(SSD+d))^2
     r_d = r_field x (SSD + d)/SAD (the field at the point, diverging from the SAD plane)

@@ -45,7 +45,7 @@ class ReviewCase(FxlTestCase):
         fx.ok("machine", "add", "LINAC1")
         fx.ok("machine", "beam", "6X", "--machine", "LINAC1", "--modality", "photon",
               "--energy", "6", "--dmax", "1.5")
-        fx.ok("detector", "add", "D-1", "--label", "Diode 1", "--kind", "photon_diode")
+        fx.ok("detector", "add", "D-1", "--label", "Diode 1", "--kind", "photon_diode", "--temp-coeff", "0")
         fx.ok("calib", "add", "D-1", "--machine", "LINAC1", "--beam", "6X", "--point", "entrance",
               "--chamber-dose", "100", "--readings", "10,10,10", "--temp", "20",
               "--valid-until", "2026-12-31")

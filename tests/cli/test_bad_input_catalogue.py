@@ -325,7 +325,8 @@ def catalogue(f):
     calib = ["calib", "add", "D-1001", "--machine", "LINAC-A", "--beam", "6X", "--point", "entrance",
              "--chamber-dose", "100", "--readings", "10.0", "--temp", "20"]
     beam = ["machine", "beam", "10X", "--machine", "LINAC-A", "--modality", "photon", "--energy", "10"]
-    det = ["detector", "add", "D-9009", "--label", "Diode 9", "--kind", "photon_diode"]
+    det = ["detector", "add", "D-9009", "--label", "Diode 9", "--temp-coeff", "0", "--kind", "photon_diode"]
+    det_no_tc = ["detector", "add", "D-9009", "--label", "Diode 9", "--kind", "photon_diode"]
 
     def dcm(path, *extra):
         return ["plan", "import-dicom", path, "--machine", "LINAC-A", "--site", "Pelvis",
@@ -455,8 +456,9 @@ def catalogue(f):
         ],
         "detector add": [
             (M, det[:-2], dict(code=1, expect="--kind")),
-            (U, det + ["--temp-coeff", "0.3"], dict(expect="0.003 = 0.3 %/degC")),     # percent
-            (W, det + ["--temp-coeff", "0.3%"], dict(expect="not a number")),
+            (U, det_no_tc + ["--temp-coeff", "0.3"], dict(expect="0.003 = 0.3 %/degC")),  # percent
+            (W, det_no_tc + ["--temp-coeff", "0.3%"], dict(expect="not a number")),
+            (M, det_no_tc, dict(expect="temperature coefficient is required")),
             (R, det[:-1] + ["laser"], dict(expect="laser")),
             (R, det + ["--unit", "Gy"], dict(expect="Gy")),
             (R, det + ["--dose-limit", "-5"], dict()),
@@ -566,6 +568,28 @@ def catalogue(f):
         ],
         "patient list": [
             (M, ["patient", "list", "extra"], dict(code=1, expect="unexpected argument")),
+        ],
+        "patient correct": [
+            (M, ["patient", "correct", rf.MRN, "--family", "X"], dict(code=1, expect="--reason")),
+            (M, ["patient", "correct", rf.MRN, "--reason", "typo"], dict(expect="nothing to correct")),
+            (O, ["patient", "correct", rf.MRN, "--family", LONG, "--reason", "typo"], dict(user="phil")),
+            (R, ["patient", "correct", rf.MRN, "--birth-date", "2030-01-01", "--reason", "typo"],
+             dict(user="phil", expect="2030-01-01")),
+            (R, ["patient", "correct", rf.MRN, "--family", "X", "--reason", "typo"],
+             dict(user="tina", code=4)),
+            (W, ["patient", "correct", rf.MRN, "--birth-date", "yesterday", "--reason", "typo"],
+             dict(user="phil", expect="yesterday")),
+            (H, ["patient", "correct", SQL, "--family", "X", "--reason", "typo"],
+             dict(user="phil", expect="unknown patient")),
+            (H, ["patient", "correct", rf.MRN, "--family", ESC, "--reason", "typo"],
+             dict(user="phil")),
+        ],
+        "patient history": [
+            (M, ["patient", "history"], dict(code=1)),
+            (H, ["patient", "history", SQL], dict(expect="unknown patient")),
+            (O, ["patient", "history", LONG], dict()),
+            (W, ["patient", "history", rf.MRN, "extra"], dict(code=1)),
+            (R, ["patient", "history", "P-NONE"], dict(code=2)),
         ],
         "patient show": [
             (H, ["patient", "show", SQL], dict(expect="unknown patient")),
@@ -1075,27 +1099,33 @@ class WrongUnitDetectedTest(unittest.TestCase):
         self.dep.restore()
 
     def test_reading_in_pc_magnitude_for_an_nc_detector(self):
-        # 20 nC typed as 20000 (pC): 200000 cGy against 180 cGy, a ratio far
-        # above 10 (implausible rule, docs/physics.md section 3.3).
+        # 20 nC typed as 20000 (pC): about 1000 times the expected dose: a gross
+        # deviation, outside the action level, the unit slip named in the
+        # reasons (docs/physics.md section 3.3).
         fx = self.dep.fx
         r = fx.run("--json", "record", "--patient", rf.MRN, "--field", "LAT:entrance",
                    "--detector", "D-1001", "--reading", "15000", user="tina")
-        self.assertEqual(r.returncode, 10, r.stderr)
+        self.assertEqual(r.returncode, 12, r.stderr)
         res = json.loads(r.stdout)["results"][0]
-        self.assertEqual(res["verdict"], "implausible")
+        self.assertEqual(res["verdict"], "outside_action")
+        self.assertIn("close to a factor 1000", " ".join(res["reasons"]))
+        # OBL lies outside the SSD table: not evaluable whatever the reading.
         t = fx.run("record", "--patient", rf.MRN, "--field", "OBL", "--detector", "D-1001",
-                   "--reading", "18000", user="tina")
+                   "--reading", "18000", user="tina", now="2026-11-03T09:00:00Z")
         self.assertEqual(t.returncode, 10, t.stderr)
         row = next(line for line in t.stdout.splitlines() if "OBL" in line and "nC" in line)
         self.assertNotIn("cGy    +", row)
         self.assertNotIn("within tolerance", t.stdout)
 
     def test_reading_in_microcoulomb_magnitude(self):
-        # 20 nC typed as 0.020 (uC): a hundredth of the expected dose.
+        # 20 nC typed as 0.020 (uC): a hundredth of the expected dose, a gross
+        # deviation (outside the action level) whose reasons name the unit slip.
         r = self.dep.fx.run("--json", "record", "--patient", rf.MRN, "--field", "LAT:entrance",
                             "--detector", "D-1001", "--reading", "0.015", user="tina")
-        self.assertEqual(r.returncode, 10, r.stderr)
-        self.assertEqual(json.loads(r.stdout)["results"][0]["verdict"], "implausible")
+        self.assertEqual(r.returncode, 12, r.stderr)
+        res = json.loads(r.stdout)["results"][0]
+        self.assertEqual(res["verdict"], "outside_action")
+        self.assertTrue(res["gross"])
 
 
 def discover_commands(db):

@@ -261,7 +261,7 @@ class RecordAgainstModelTest(DicomTestCase):
     def test_model_expected_dose_is_used_and_missing_is_not_evaluable(self):
         fx = self.fx
         fx.ok("patient", "add", "TEST-0302", "--family", "Beispiel", "--given", "Kim")
-        fx.ok("detector", "add", "D-1", "--label", "Diode 1", "--kind", "photon_diode",
+        fx.ok("detector", "add", "D-1", "--label", "Diode 1", "--kind", "photon_diode", "--temp-coeff", "0",
               now="2026-09-01T08:00:00Z")
         for beam in ("6X", "10X"):
             fx.ok("calib", "add", "D-1", "--machine", "LINAC1", "--beam", beam, "--point", "entrance",

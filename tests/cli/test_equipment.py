@@ -105,13 +105,13 @@ class DetectorTest(FxlTestCase):
         add_people(self.fx)
 
     def add(self, serial="D-1001", *extra, user="phil"):
-        return self.fx.ok("detector", "add", serial, "--label", "Red 1", "--kind", "photon_diode",
+        return self.fx.ok("detector", "add", serial, "--label", "Red 1", "--kind", "photon_diode", "--temp-coeff", "0",
                           *extra, user=user)
 
     def test_add_list_show(self):
         self.add("D-1001", "--temp-coeff", "0.003", "--sensitivity", "0.09", "--buildup",
                  "brass cap 6-12 MV", "--dose-limit", "50000")
-        self.fx.ok("detector", "add", "E-2001", "--label", "Blue 1", "--kind", "electron_diode",
+        self.fx.ok("detector", "add", "E-2001", "--label", "Blue 1", "--kind", "electron_diode", "--temp-coeff", "0",
                    "--unit", "pC")
         dets = {d["serial"]: d for d in self.fx.json("detector", "list")}
         d = dets["D-1001"]
@@ -155,25 +155,41 @@ class DetectorTest(FxlTestCase):
         self.assertFailsUnchanged("detector", "status", "D-1001", "out_for_service", "--reason",
                                   "x", "--at", "2026-10-01", expect_in="before its latest status change")
 
+    def test_diode_needs_a_temperature_coefficient(self):
+        self.add()
+        # A diode's response changes with temperature (of order 0.1 to 0.5 %/degC,
+        # AAPM Report 87, from memory): without a coefficient none would be applied.
+        for kind in ("photon_diode", "electron_diode", "small_field_diode"):
+            self.assertFailsUnchanged("detector", "add", "D-2002", "--label", "X", "--kind", kind,
+                                      expect_in="temperature coefficient is required")
+        # an explicit 0 is accepted for a diode that has none
+        self.fx.ok("detector", "add", "D-2002", "--label", "X", "--kind", "photon_diode",
+                   "--temp-coeff", "0")
+        # other kinds default to 0
+        self.fx.ok("detector", "add", "M-3003", "--label", "Y", "--kind", "mosfet")
+        rows = {d["serial"]: d for d in self.fx.json("detector", "list")}
+        self.assertEqual(rows["D-2002"]["temp_coeff_per_c"], 0)
+        self.assertEqual(rows["M-3003"]["temp_coeff_per_c"], 0)
+
     def test_refusals_write_nothing(self):
         self.add()
-        self.assertFailsUnchanged("detector", "add", "D-2002", "--label", "X", "--kind", "photon_diode",
+        self.assertFailsUnchanged("detector", "add", "D-2002", "--label", "X", "--kind", "photon_diode", "--temp-coeff", "0",
                                   user="tina", expect_code=4, expect_in="permission denied")
-        self.assertFailsUnchanged("detector", "add", "D-2002", "--label", "X", "--kind", "photon_diode",
+        self.assertFailsUnchanged("detector", "add", "D-2002", "--label", "X", "--kind", "photon_diode", "--temp-coeff", "0",
                                   user="otto", expect_code=4)
         self.assertFailsUnchanged("detector", "retire", "D-1001", "--reason", "x", user="tina",
                                   expect_code=4)
-        self.assertFailsUnchanged("detector", "add", "D-1001", "--label", "X", "--kind", "photon_diode",
+        self.assertFailsUnchanged("detector", "add", "D-1001", "--label", "X", "--kind", "photon_diode", "--temp-coeff", "0",
                                   expect_in="already exists")
         self.assertFailsUnchanged("detector", "add", "D-2002", "--label", "X", "--kind", "ion_chamber",
                                   expect_in="kind 'ion_chamber'")
         self.assertFailsUnchanged("detector", "add", "D-2002", "--label", "X", "--kind", "photon_diode",
                                   "--temp-coeff", "0.3", expect_in="0.003 = 0.3 %/degC")
-        self.assertFailsUnchanged("detector", "add", "D-2002", "--label", "X", "--kind", "photon_diode",
+        self.assertFailsUnchanged("detector", "add", "D-2002", "--label", "X", "--kind", "photon_diode", "--temp-coeff", "0",
                                   "--unit", "Gy", expect_in="reading unit 'Gy'")
-        self.assertFailsUnchanged("detector", "add", "D-2002", "--label", "X", "--kind", "photon_diode",
+        self.assertFailsUnchanged("detector", "add", "D-2002", "--label", "X", "--kind", "photon_diode", "--temp-coeff", "0",
                                   "--dose-limit", "-5")
-        self.assertFailsUnchanged("detector", "add", "D-2002", "--kind", "photon_diode",
+        self.assertFailsUnchanged("detector", "add", "D-2002", "--kind", "photon_diode", "--temp-coeff", "0",
                                   expect_in="--label")
         self.assertFailsUnchanged("detector", "status", "D-1001", "broken", "--reason", "x",
                                   expect_in="status 'broken'")

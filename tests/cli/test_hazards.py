@@ -70,9 +70,11 @@ class HazardTest(RecordTestCase):
         out = self.record_json("--plan", PLAN, "--at", "2026-11-02T09:30", *self.ref(20.0))
         self.assertEqual((out["plan"]["label"], out["results"][0]["verdict"]), (PLAN, "within_tolerance"))
         # Without --plan the current plan is taken: 200 cGy against REC-2's 100 cGy.
-        out = self.record_json(*self.ref(20.0), expect_code=10)
+        # +100 %: a gross deviation, outside the action level (docs/physics.md).
+        out = self.record_json(*self.ref(20.0), expect_code=12)
         self.assertEqual(out["plan"]["label"], "REC-2")
-        self.assertEqual(out["results"][0]["verdict"], "implausible")
+        self.assertEqual(out["results"][0]["verdict"], "outside_action")
+        self.assertTrue(out["results"][0]["gross"])
 
     def test_plan_replaced_while_logging_interactively(self):
         """The interactive session shows plan REC-1; a plan change imported
@@ -130,12 +132,16 @@ class HazardTest(RecordTestCase):
                         "--field", "AP", "--reading", "20.0", "--temp", "30")
         self.assertEqual(r.returncode, 0, r.stderr)
         # The note is wrapped at 80 columns: read it as one paragraph.
-        text = r.stdout[r.stdout.index("No temperature entered"):]
+        text = r.stdout[r.stdout.index("Temperature assumed"):]
         note = " ".join(text[:text.index("value.") + 6].split())
-        self.assertEqual(note, "No temperature entered for REF entrance: 32.0 degC assumed "
-                               "(setting skin_temp_c); give --temp with the measured value.")
+        self.assertEqual(note, "Temperature assumed (none entered) for REF entrance: 32.0 degC "
+                               "assumed (setting skin_temp_c); give --temp with the measured value.")
+        # history marks it too
+        hist = self.fx.json("history", "--patient", MRN)
+        self.assertEqual([h["temperature_assumed"] for h in hist], [True, False])
+        self.assertIn("temperature assumed", self.fx.run("history", "--patient", MRN).stdout)
         r = self.record(*self.ref(20.0), now="2026-11-03T09:00:00Z")
-        self.assertNotIn("No temperature entered", r.stdout)
+        self.assertNotIn("Temperature assumed", r.stdout)
 
     # ---- calibration, detector, levels ------------------------------------------------
 

@@ -1,6 +1,5 @@
 """fxledger levels set / list: versions, scope, ties, refusals. The levels
-used are typical values (5 % entrance, wider for breast and exit; DOMAIN.md
-section 5, from memory) but the rules tested are fxledger's own."""
+used are typical values (5 % entrance, wider for breast and exit; published surveys, from memory) but the rules tested are fxledger's own."""
 import sqlite3
 
 from fxlcli import FxlTestCase, main

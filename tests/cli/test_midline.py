@@ -6,16 +6,20 @@ carries it.
 Method (named beside the check values, docs/expected-dose.md section 5):
 geometric mean sqrt(D_E x D_X), with the arithmetic mean (D_E + D_X)/2 beside
 it, as described in ESTRO Booklet 1 (Van Dam and Marinello, 2nd ed. 2006,
-from memory). Check values DOMAIN.md section 7: D_E 120, D_X 60 cGy give
+from memory). Check values arithmetic of the published formula: D_E 120, D_X 60 cGy give
 arithmetic 90.000 and geometric 84.853 cGy. Test data is invented."""
 import json
 import math
 
-from fxlcli import main
+import os
+
+from fxlcli import DATA, main
 from record_fixture import MRN, RecordTestCase, dose
 
-GEOMETRIC_120_60 = 84.853   # sqrt(120 x 60), DOMAIN.md section 7
-ARITHMETIC_120_60 = 90.000  # (120 + 60)/2, DOMAIN.md section 7
+EXIT_TABLES = os.path.join(DATA, "corrections", "diode_6x_exit.json")
+
+GEOMETRIC_120_60 = 84.853   # sqrt(120 x 60), arithmetic of the published formula
+ARITHMETIC_120_60 = 90.000  # (120 + 60)/2, arithmetic of the published formula
 
 
 def reading_for(target_cgy):
@@ -28,9 +32,15 @@ def reading_for(target_cgy):
 class MidlineTest(RecordTestCase):
     def setUp(self):
         super().setUp()
-        # an exit cross-calibration for D-1001 (same N: 100 cGy / 10 nC)
+        # an exit cross-calibration for D-1001 (same N: 100 cGy / 10 nC) behind a
+        # 20 cm phantom, and its exit tables (invented): field size, wedge, tray
+        # and angle as at entrance, the SDD table the entrance SSD table moved by
+        # the 20 cm reference (SDD 120 at SSD 100), so LAT exit (SSD 90 + 20 cm =
+        # SDD 110) gets the product of factors of LAT entrance (SSD 90)
         self.fx.ok("calib", "add", "D-1001", "--machine", "LINAC-A", "--beam", "6X", "--point", "exit",
-                   "--chamber-dose", "100", "--readings", "10.0", "--temp", "20", "--at", "2026-10-01")
+                   "--chamber-dose", "100", "--readings", "10.0", "--temp", "20", "--at", "2026-10-01",
+                   "--thickness", "20")
+        self.fx.ok("table", "load", EXIT_TABLES)
 
     def pair(self, entrance_cgy, exit_cgy, exit_detector="D-1001", expect_code=None, **kw):
         args = ["--field", "LAT:entrance", "--detector", "D-1001", "--reading", repr(reading_for(entrance_cgy)),

@@ -85,7 +85,7 @@ class CrossCheckTest(ModelTestCase):
     def test_planning_value_10_percent_off_opens_an_item(self):
         off, off_f = mf.expected(self.bd, 200, 90, 15, 15)                 # TG-71, model_fixture.py
         ok, ok_f = mf.expected(self.bd, 150, 95, 10, 20, wedge=30, tray=True)
-        self.assertAlmostEqual(off_f["inverse_square"], 1.230523, places=6)  # DOMAIN.md section 7
+        self.assertAlmostEqual(off_f["inverse_square"], 1.230523, places=6)  # arithmetic of the published formula
         tps_off = round(off * 1.10, 1)
         tps_ok = round(ok * 1.02, 1)
         r = self.import_plan(plan("XC-1", [field("OFF", 90, 15, 15, [tps(tps_off)]),
@@ -152,10 +152,8 @@ class CrossCheckTest(ModelTestCase):
         r = self.import_plan(plan("NC", [
             field("E1", 100, 10, 10, [tps(300.0)], beam="9E"),                       # electrons
             field("HI", 100, 10, 10, [tps(180.0)], beam="10X"),                      # no beam data
-            field("BIG", 100, 40, 40, [tps(230.0)]),                                 # r_d 40.6 cm > 40 cm
-            field("HAND", 100, 10, 10, [{"point": "entrance", "expected_dose_cgy": 199.0,
-                                         "expected_source": "manual"}])]))
-        self.assertIn("0 agree, 0 disagree, 4 not checked", r.stdout)
+            field("BIG", 100, 40, 40, [tps(230.0)])]))                               # r_d 40.6 cm > 40 cm
+        self.assertIn("0 agree, 0 disagree, 3 not checked", r.stdout)
         for line in r.stdout.splitlines():
             if line.startswith("  E1") or line.startswith("  HI") or line.startswith("  BIG"):
                 self.assertNotIn("agree", line.replace("not cross-checked", ""))
@@ -165,15 +163,34 @@ class CrossCheckTest(ModelTestCase):
         self.assertIn("outside", fields[("BIG", "entrance")]["crosscheck"]["summary"])
         self.assertIsNone(fields[("BIG", "entrance")]["model_dose_cgy"])
         self.assertIsNotNone(fields[("BIG", "entrance")]["model"]["sc"])   # computed as far as it went
-        hand = fields[("HAND", "entrance")]
-        self.assertEqual(hand["crosscheck"]["outcome"], "not_checked")
-        self.assertAlmostEqual(hand["model_dose_cgy"], mf.expected(self.bd, 200, 100, 10, 10)[0], places=6)
         for f in fields.values():
             self.assertNotEqual(f["crosscheck"]["outcome"], "agrees")
         self.assertEqual(self.items(), [])
         text = self.fx.ok("plan", "show", MRN, "NC").stdout
         self.assertIn("not checked", text)
         self.assertNotIn("agrees", text)
+
+    def test_hand_entered_expected_dose_cross_checked(self):
+        # A hand calculation is checked against the model exactly as a
+        # planning-system value: 15 % off opens a review item at import.
+        model, _ = mf.expected(self.bd, 200, 100, 10, 10)
+        hand = {"point": "entrance", "expected_dose_cgy": round(model * 1.15, 1),
+                "expected_source": "manual"}
+        near = {"point": "entrance", "expected_dose_cgy": round(model * 1.01, 1),
+                "expected_source": "manual"}
+        self.import_plan(plan("HAND", [field("H1", 100, 10, 10, [hand]),
+                                       field("H2", 100, 10, 10, [near])]))
+        fields = self.show("HAND")
+        xc = fields[("H1", "entrance")]["crosscheck"]
+        self.assertEqual(xc["outcome"], "disagrees")
+        self.assertIn("hand-entered expected dose", xc["summary"])
+        # (D_hand - D_model) / D_model x 100, rounded to 0.01 % (formula)
+        self.assertAlmostEqual(xc["deviation_pct"],
+                               round((round(model * 1.15, 1) - model) / model * 100, 2), places=9)
+        self.assertEqual(fields[("H2", "entrance")]["crosscheck"]["outcome"], "agrees")
+        items = self.items()
+        self.assertEqual(len(items), 1)
+        self.assertIn("H1", items[0]["summary"])
 
     def test_show_names_every_factor(self):
         self.import_plan(plan("SHOW", [field("W", 95, 10, 20, [tps(150.0)], wedge=30, mu=150)]))

@@ -151,7 +151,7 @@ class PlanTest(FxlTestCase):
 
     def test_missing_file(self):
         self.assertFailsUnchanged("plan", "import", self.fx.path("nope.json"), user="phys",
-                                  expect_code=3, expect_in="cannot read plan file")
+                                  expect_code=2, expect_in="cannot read plan file")
 
     def test_not_a_plan_file(self):
         self.assertFailsUnchanged("plan", "import", self.fx.write("arr.json", "[1, 2]"), user="phys",

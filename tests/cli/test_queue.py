@@ -190,24 +190,50 @@ class QueueTest(ReviewCase):
 
 
 class RuleHitsTest(ReviewCase):
+    @staticmethod
+    def standardised_cusum(x, k=0.5, h=5.5, startup=10):
+        """C+ per result and the first signalling index of the drift chart of
+        docs/rules.md, written out again: spread = mean moving range / 1.128
+        (d2, SPC constant) with a 0.2 % floor, z limited to +/- h/2."""
+        hi, lo, mr, out, first = 0.0, 0.0, 0.0, [], None
+        for i, v in enumerate(x):
+            if i:
+                mr += abs(v - x[i - 1])
+            if i < startup:
+                out.append(0.0)
+                continue
+            z = max(-h / 2, min(h / 2, v / max(mr / i / 1.128, 0.2)))
+            hi, lo = max(0.0, hi + z - k), max(0.0, lo - z - k)
+            out.append(hi)
+            if first is None and (hi > h or lo > h):
+                first = i
+        return out, first
+
     def test_detector_drift_item_across_patients(self):
-        # +3 % on every reading, alternating patients: within tolerance each
-        # time, but C+ grows by 2 % (k = 1 %): 2, 4, 6, 8, 10, 12 > h = 10 %.
-        days = ["2026-11-%02dT08:00:00Z" % d for d in range(2, 8)]
-        for i, at in enumerate(days):
-            res = self.record("P-1" if i % 2 == 0 else "P-2", at, ("AP", 3.0))
+        # Ten start-up results alternating +1/-1 % (the spread comes from their
+        # moving ranges), then +3 % on every reading, alternating patients:
+        # within tolerance each time, but a drift of the detector.
+        devs = [1.0 if i % 2 == 0 else -1.0 for i in range(10)] + [3.0] * 20
+        want, first = self.standardised_cusum(devs)
+        self.assertIsNotNone(first)
+        for i in range(first + 1):
+            at = "2026-11-%02dT%02d:00:00Z" % (2 + i // 8, 8 + i % 8)
+            res = self.record("P-1" if i % 2 == 0 else "P-2", at, ("AP", devs[i]))
             self.assertEqual(res["results"][0]["verdict"], "within_tolerance")
             drift = [x for x in self.queue("list", "--detector", "D-1") if x["rule"] == "detector_drift"]
-            self.assertEqual(len(drift), 1 if i == 5 else 0, "after reading %d" % (i + 1))
+            self.assertEqual(len(drift), 1 if i == first else 0, "after reading %d" % (i + 1))
         item = drift[0]
         self.assertEqual((item["detector"], item["mrn"], item["severity"]), ("D-1", None, 3))
         self.assertIn("upward", item["summary"])
+        self.assertIn("entrance", item["summary"])
         d = self.queue("show", str(item["id"]))
         self.assertEqual(d["trend_kind"], "detector")
-        self.assertEqual([t["mrn"] for t in d["trend"]], ["P-1", "P-2"] * 3)
-        self.assertEqual([round(t["cusum_high_pct"], 2) for t in d["trend"]], [2, 4, 6, 8, 10, 12])
+        self.assertEqual(d["cusum_h_sd"], 5.5)
+        self.assertEqual([t["mrn"] for t in d["trend"]][:4], ["P-1", "P-2", "P-1", "P-2"])
+        for got, exp in zip([t["cusum_high_sd"] for t in d["trend"]], want[:first + 1]):
+            self.assertAlmostEqual(got, exp, delta=0.02)  # deviations are stored to 0.01 %
         text = self.fx.ok("queue", "show", str(item["id"]), user="aud").stdout
-        self.assertIn("C+ 12.00", text)
+        self.assertIn("standardised CUSUM", text)
         # Listing filtered by patient does not show the detector's item.
         self.assertEqual([x for x in self.queue("list", "--patient", "P-1")
                           if x["rule"] == "detector_drift"], [])

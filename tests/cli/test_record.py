@@ -110,28 +110,46 @@ class RecordVerdictTest(RecordTestCase):
         self.assertEqual(out["results"][0]["deviation_pct"], 5.01)
         self.assertEqual(out["results"][0]["verdict"], "outside_tolerance")
 
-    def test_implausible_reading(self):
-        # Ten times the expected reading: a unit slip, never a dose result.
+    def test_unit_slip_is_a_gross_deviation(self):
+        # Ten times the expected reading: probably a unit slip, but a gross
+        # deviation is an action-level result until a re-read clears it
+        # (docs/physics.md section 3.3; tests/cli/test_gross.py).
         out = self.record_json("--field", "REF", "--detector", "D-1001", "--reading", "200",
-                               "--temp", "20", expect_code=10)
+                               "--temp", "20", expect_code=12)
         r = out["results"][0]
-        self.assertEqual(r["verdict"], "implausible")
-        self.assertIn("entry", " ".join(r["reasons"]))
+        self.assertEqual(r["verdict"], "outside_action")
+        self.assertTrue(r["gross"])
+        self.assertIn("unit slip", " ".join(r["reasons"]))
         con = sqlite3.connect(self.fx.db)
-        self.assertEqual(con.execute("SELECT severity FROM review_items WHERE rule = 'result'").fetchone()[0], 3)
+        self.assertEqual(con.execute("SELECT severity FROM review_items WHERE rule = 'result'").fetchone()[0], 4)
+        self.assertEqual(con.execute("SELECT gross FROM measurements").fetchone()[0], 1)
         con.close()
 
-    def test_implausible_reading_shows_no_dose(self):
-        # An implausible entry is never reported as a dose result (DESIGN.md
-        # section 4): the verdict table shows no corrected dose or deviation.
-        # 200 nC x 10 cGy/nC would be 2000 cGy, ten times the expected 200 cGy.
+    def test_gross_deviation_shows_its_dose(self):
+        # 200 nC x 10 cGy/nC = 2000 cGy, ten times the expected 200 cGy: shown as
+        # measured, so the physicist sees what the detector read.
         r = self.record("--field", "REF", "--detector", "D-1001", "--reading", "200", "--temp", "20")
-        self.assertEqual(r.returncode, 10, r.stderr)
-        row = next(line for line in r.stdout.splitlines() if line.startswith("#1 "))
-        self.assertIn("implausible", row)
-        self.assertNotIn("2000.0", row)
-        self.assertNotIn("%", row)
-        self.assertIn("200.000 nC", row)
+        self.assertEqual(r.returncode, 12, r.stderr)
+        # the verdict table (laid out in rows or, when too wide, one block per
+        # result) before the first explanation
+        table = r.stdout[:r.stdout.index("REF entrance: outside action level")]
+        self.assertIn("gross", table)
+        self.assertIn("2000.0", table)
+        self.assertIn("+900.00 %", table)
+        self.assertIn("200.000 nC", table)
+
+    def test_amendment_keeps_the_background(self):
+        out = self.record_json("--field", "REF", "--detector", "D-1001", "--reading", "2.01",
+                               "--background", "0.01", "--temp", "20", expect_code=12)
+        first = out["results"][0]["measurement_id"]
+        out = self.fx.json("amend", str(first), "--reading", "20.01", "--reason", "typed 2.01",
+                           user="tina")
+        # (20.01 - 0.01) x 10 = 200 cGy (formula): M_0 of the original kept
+        self.assertAlmostEqual(out["results"][0]["corrected_dose_cgy"], 200.0, places=9)
+        con = sqlite3.connect(self.fx.db)
+        self.assertEqual([r[0] for r in con.execute("SELECT background FROM measurements ORDER BY id")],
+                         [0.01, 0.01])
+        con.close()
 
     def test_several_fields_worst_result_wins(self):
         r = self.record("--detector", "D-1001", "--temp", "20",

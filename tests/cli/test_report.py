@@ -24,7 +24,7 @@ FACTOR = 1.05         # cGy per nC, invented calibration factor
 
 
 def verdict_for(dev):
-    """Rule of DESIGN.md section 4 with the levels above (a deviation exactly at a
+    """Rule of docs/physics.md with the levels above (a deviation exactly at a
     level counts as inside it)."""
     a = abs(dev)
     if a > 50:

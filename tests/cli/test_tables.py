@@ -24,7 +24,7 @@ class TableTest(FxlTestCase):
         fx.ok("user", "add", "otto", "--name", "Otto Auditor", "--role", "auditor")
         fx.ok("machine", "add", "LINAC-A")
         fx.ok("machine", "beam", "6X", "--machine", "LINAC-A", "--modality", "photon", "--energy", "6")
-        fx.ok("detector", "add", "D-1001", "--label", "Red 1", "--kind", "photon_diode")
+        fx.ok("detector", "add", "D-1001", "--label", "Red 1", "--kind", "photon_diode", "--temp-coeff", "0")
 
     def variant(self, change):
         doc = good_doc()

@@ -1,6 +1,6 @@
 /* Unit tests for the independent expected-dose model (src/core/beam_model.c)
  * and the beam-data file (src/io/beam_json.c): bilinear interpolation without
- * extrapolation, the TG-71 check values of DOMAIN.md section 7, the exit dose,
+ * extrapolation, the TG-71 check values of arithmetic of the published formula, the exit dose,
  * the PDD to TMR conversion against a textbook MU example, reasons when a
  * value cannot be computed, the planning-system cross-check, and the file
  * format's refusals. Beam data here are invented. */
@@ -80,7 +80,7 @@ static void set_grid(fxl_grid *g, const double *x, size_t nx, const double *y, s
 }
 
 /* An invented 6 MV beam whose factors are flat where the TG-71 check case of
- * DOMAIN.md section 7 reads them: S_c = 1.02 at a 15 x 15 cm collimator
+ * arithmetic of the published formula reads them: S_c = 1.02 at a 15 x 15 cm collimator
  * setting, S_p = 1.01 from 14 cm up, WF(45) = 0.72, TF = 0.97, D0' = 1.000
  * cGy/MU at 101.5 cm, d_max 1.5 cm. */
 static void check_beam(fxl_beam_model *m)
@@ -190,7 +190,7 @@ static void test_beam_model_bilinear_single_column_and_bad_grid(void **state)
     assert_int_equal(fxl_grid_check(&bad), FXL_EINVAL);
 }
 
-/* ---- the TG-71 check values (DOMAIN.md section 7) ---------------------------- */
+/* ---- the TG-71 check values (arithmetic of the published formula) ---------------------------- */
 
 static void test_beam_model_entrance_dose_tg71_check_value(void **state)
 {
@@ -212,7 +212,7 @@ static void test_beam_model_entrance_dose_tg71_check_value(void **state)
     assert_near(r.depth_cm, 1.5, 1e-12);
     assert_near(r.spd_cm, 96.5, 1e-12);
     /* 200 x 1.000 x 1.02 x 1.01 x 0.72 x 0.97 x (101.5/96.5)^2 = 159.196 cGy:
-     * DOMAIN.md section 7, "TG-71 formalism" (AAPM TG-71, Gibbons et al.
+     * arithmetic of the published formula, "TG-71 formalism" (AAPM TG-71, Gibbons et al.
      * 2014); checked by hand: 143.898336 x 1.106311 = 159.196. */
     assert_near(r.dose_cgy, 159.196, 0.0005);
     fxl_beam_model_release(&m);
@@ -226,7 +226,7 @@ static void test_beam_model_inverse_square_check_values(void **state)
 
     (void)state;
     check_beam(&m);
-    /* physics: (101.5/91.5)^2 = 1.230523 (DOMAIN.md section 7). */
+    /* physics: (101.5/91.5)^2 = 1.230523 (arithmetic of the published formula). */
     in = entrance_input(100, 90, 10);
     assert_int_equal(fxl_model_expected(&r, &m, &in), 0);
     assert_true(r.computed);
@@ -294,7 +294,7 @@ static void test_beam_model_exit_dose_formula(void **state)
     assert_int_equal(fxl_model_expected(&r, &m, &in), 0);
     assert_true(r.computed);
     /* depth t - d_max = 15 cm, SPD 105 cm, r_d = 10 x 1.05 = 10.5 cm
-     * (DESIGN.md section 4). */
+     * (docs/physics.md). */
     assert_near(r.depth_cm, 15, 1e-12);
     assert_near(r.spd_cm, 105, 1e-12);
     assert_near(r.rd_cm, 10.5, 1e-12);
@@ -340,7 +340,7 @@ static void test_beam_model_exit_needs_thickness_in_range(void **state)
 
 /* A PDD beam: the exit point at 10 cm depth of an SSD 100 field equals the
  * TG-71 PDD calculation, so the MU that a textbook computes for 200 cGy at
- * 10 cm must give 200 cGy back. Textbook example (from memory; DOMAIN.md
+ * 10 cm must give 200 cGy back. Textbook example (from memory; published sources (from memory)
  * section 7): 200 cGy at 10 cm, S_c 1.020, S_p 1.010, PDD 65.1 %, 1 cGy/MU
  * -> 298.2 MU. */
 static void test_beam_model_pdd_conversion_textbook_mu(void **state)

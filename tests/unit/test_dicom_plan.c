@@ -371,7 +371,7 @@ static void test_dicom_plan_json_model_variants(void **state)
     assert_true(fabs(p.beams[0].energy - 15) < 1e-12);
     assert_true(fabs(p.beams[0].gantry_deg - 45.5) < 1e-12);
     assert_true(fabs(p.beams[0].ssd_cm - 100) < 1e-12);
-    /* 10 x 20 cm: 13.333 cm (Sterling rule, DOMAIN.md section 7) */
+    /* 10 x 20 cm: 13.333 cm (Sterling rule, arithmetic of the published formula) */
     assert_true(fabs(p.beams[0].coll_eqsq_cm - 13.333) < 0.0005);
     assert_true(isnan(p.beams[0].sad_cm));
     fxl_dicom_plan_release(&p);

@@ -1,6 +1,6 @@
 /* Unit tests for src/core/escalation.c: the same field outside tolerance with
  * the same sign on two consecutive measured fractions escalates to the action
- * level (DESIGN.md section 4). Boundaries: a prior exactly at the tolerance
+ * level (docs/physics.md). Boundaries: a prior exactly at the tolerance
  * level (within, so no escalation), opposite signs, a prior outside action,
  * a current already outside action, no prior, a prior without a deviation. */
 #include <math.h>

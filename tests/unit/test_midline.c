@@ -1,6 +1,6 @@
 /* Unit tests for the midline dose of an entrance-exit pair
  * (src/core/midline.c): arithmetic and geometric mean against the check
- * values of DOMAIN.md section 7, and the refusals. */
+ * values of arithmetic of the published formula, and the refusals. */
 #include <math.h>
 #include <setjmp.h>
 #include <stdarg.h>
@@ -30,7 +30,7 @@ static void test_midline_check_values(void **state)
     assert_int_equal(fxl_midline_estimate(&m, 120.0, 60.0), 0);
     assert_true(m.computed);
     /* D_E 120, D_X 60: arithmetic 90.000, geometric sqrt(7200) = 84.853
-     * (DOMAIN.md section 7, "formulas above"; ESTRO Booklet 1, from memory). */
+     * (arithmetic of the published formula, "formulas above"; ESTRO Booklet 1, from memory). */
     assert_near(m.arithmetic_cgy, 90.000, 0.0005);
     assert_near(m.geometric_cgy, 84.853, 0.0005);
     assert_near(m.transmission, 0.5, 1e-12);

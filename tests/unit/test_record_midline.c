@@ -1,7 +1,7 @@
 /* Unit tests for the entrance-exit pairing of logged results
  * (src/store/record_midline.c): which readings pair up (same fraction, same
  * field, current rows only, dose results only) and the estimate against the
- * check values of DOMAIN.md section 7 (D_E 120, D_X 60 cGy: arithmetic
+ * check values of arithmetic of the published formula (D_E 120, D_X 60 cGy: arithmetic
  * 90.000, geometric 84.853 cGy; geometric mean sqrt(D_E x D_X), ESTRO
  * Booklet 1). Invented data. */
 #include <math.h>
@@ -63,8 +63,8 @@ static void test_record_midline_pairs_of_a_fraction(void **state)
     assert_int_equal(pairs[0].exit_id, 13);
     assert_int_equal(pairs[0].fraction_number, 3);
     assert_true(pairs[0].estimate.computed);
-    assert_near(pairs[0].estimate.geometric_cgy, 84.853, 0.0005);    /* DOMAIN.md section 7 */
-    assert_near(pairs[0].estimate.arithmetic_cgy, 90.000, 0.0005);   /* DOMAIN.md section 7 */
+    assert_near(pairs[0].estimate.geometric_cgy, 84.853, 0.0005);    /* arithmetic of the published formula */
+    assert_near(pairs[0].estimate.arithmetic_cgy, 90.000, 0.0005);   /* arithmetic of the published formula */
     assert_string_equal(pairs[1].field, "PA");
     assert_false(pairs[1].estimate.computed);
     assert_non_null(strstr(pairs[1].estimate.reasons.text[0], "exit reading gave no dose result"));
@@ -116,7 +116,7 @@ static void test_record_midline_history_current_rows_per_fraction(void **state)
     assert_int_equal(n, 1);
     assert_int_equal(pairs[0].entrance_id, 1);
     assert_int_equal(pairs[0].exit_id, 3);
-    /* sqrt(120 x 60) (formula above, DOMAIN.md check value) */
+    /* sqrt(120 x 60) (formula above, arithmetic check value) */
     assert_near(pairs[0].estimate.geometric_cgy, 84.853, 0.0005);
     assert_near(pairs[0].estimate.transmission, 0.5, 1e-12);
     free(pairs);

@@ -330,91 +330,145 @@ static void test_review_dose_limit_boundary(void **state)
     assert_int_equal(items(f, FXL_RULE_DOSE_LIMIT), 1);
 }
 
-/* ---- detector drift (CUSUM) ---------------------------------------------- */
+static void test_review_dose_limit_not_inflated_by_gross_results(void **state)
+{
+    fixture *f = *state;
+
+    /* D-1 limit 1000 cGy. A reading typed in pC for nC (a factor 1000:
+     * 200000 cGy against 200 cGy expected) is a gross deviation; it adds its
+     * planned 200 cGy, not 200000 cGy (docs/rules.md). An old implausible
+     * row counts the same way. 200 + 200 + 200 = 600 cGy: under the limit. */
+    sql(f, "INSERT INTO fractions (id, plan_id, number, treated_at, user_id, created_at) VALUES "
+           "(150, 1, 20, '2026-11-02T08:00:00Z', 2, '2026-11-02T08:00:00Z');"
+           "INSERT INTO measurements (fraction_id, field_id, detector_id, reading, reading_unit, temp_c, "
+           "temp_entered, corrected_dose_cgy, expected_dose_cgy, deviation_pct, verdict, gross, user_id, "
+           "created_at) VALUES (150, 3, 1, 20000, 'nC', 32, 0, 200000, 200, 99900, 'outside_action', 1, "
+           "2, '2026-11-02T08:00:00Z'), (150, 1, 1, 20000, 'nC', 32, 0, 200000, 200, 99900, "
+           "'implausible', 0, 2, '2026-11-02T08:00:00Z')");
+    log_fraction(f, 1, 2, "2026-11-03T08:00:00Z", "3:1:0");
+    assert_int_equal(items(f, FXL_RULE_DOSE_LIMIT), 0);
+    /* two more plausible 200 cGy results: 1000 cGy, at the limit; a third is over */
+    log_fraction(f, 1, 3, "2026-11-04T08:00:00Z", "3:1:0 1:1:0");
+    assert_int_equal(items(f, FXL_RULE_DOSE_LIMIT), 0);
+    log_fraction(f, 1, 4, "2026-11-05T08:00:00Z", "3:1:0");
+    assert_int_equal(items(f, FXL_RULE_DOSE_LIMIT), 1);
+}
+
+/* ---- detector drift (standardised CUSUM) ---------------------------------- */
+
+/* The index (0-based) at which the standardised CUSUM of docs/rules.md first
+ * exceeds h = 5.5 spreads (k = 0.5, start-up 10, spread = average moving
+ * range / 1.128 with a 0.2 % floor, z limited to +/- h/2), or -1: the
+ * formula written out again, independently of src/core/drift.c. */
+static int first_signal(const double *x, int n)
+{
+    double mr = 0, hi = 0, lo = 0;
+    int i;
+
+    for (i = 1; i < n; i++) {
+        double sig, z;
+        mr += fabs(x[i] - x[i - 1]);
+        if (i < 10)
+            continue;
+        sig = fmax(mr / i / 1.128, 0.2);
+        z = fmax(-2.75, fmin(2.75, x[i] / sig));
+        hi = fmax(0, hi + z - 0.5);
+        lo = fmax(0, lo - z - 0.5);
+        if (hi > 5.5 || lo > 5.5)
+            return i;
+    }
+    return -1;
+}
 
 static void test_review_drift_opens_item_on_detector(void **state)
 {
     fixture *f = *state;
     fxl_review_detail d = FXL_REVIEW_DETAIL_INIT;
+    double x[40];
     int64_t id;
-    int i;
+    int i, fr1 = 0, fr2 = 0, first;
 
-    /* Defaults k = 1 %, h = 10 %: +3 % each time adds 2 % to C+; across two
-     * patients: 2, 4, 6, 8, 10 (at h: no item), then 12 (item). */
-    for (i = 1; i <= 5; i++) {
-        char at[32];
-        snprintf(at, sizeof at, "2026-11-%02dT08:00:00Z", i + 1);
-        log_fraction(f, (i % 2) ? 1 : 2, i, at, (i % 2) ? "3:1:3.0" : "4:1:3.0");
+    /* Ten start-up results alternating +1/-1 % across two patients (same
+     * detector, beam and point), then +3 % every time: within tolerance
+     * each time, but a drift of 3 / 1.77 = 1.7 spreads. */
+    for (i = 0; i < 40; i++)
+        x[i] = i < 10 ? (i % 2 ? -1.0 : 1.0) : 3.0;
+    first = first_signal(x, 40);
+    assert_true(first > 10 && first < 20);
+    for (i = 0; i <= first; i++) {
+        char at[32], spec[32];
+        snprintf(at, sizeof at, "2026-11-%02dT%02d:00:00Z", 2 + i / 8, 8 + i % 8);
+        snprintf(spec, sizeof spec, "%d:1:%.1f", i % 2 ? 4 : 3, x[i]);
+        log_fraction(f, i % 2 ? 2 : 1, i % 2 ? ++fr2 : ++fr1, at, spec);
+        assert_int_equal(items(f, FXL_RULE_DRIFT), i == first ? 1 : 0);
     }
-    assert_int_equal(items(f, FXL_RULE_DRIFT), 0);
-    log_fraction(f, 1, 7, "2026-11-08T08:00:00Z", "3:1:3.0");
     assert_int_equal(count(f, "SELECT count(*) FROM review_items WHERE rule = 'detector_drift' AND "
                               "detector_id = 1 AND patient_id IS NULL AND field_id IS NULL AND "
-                              "measurement_id IS NULL AND severity = %d", FXL_RULE_DRIFT_SEVERITY), 1);
+                              "measurement_id IS NULL AND severity = %d AND rule_key LIKE "
+                              "'detector:1:beam:1:point:entrance:since:%%'", FXL_RULE_DRIFT_SEVERITY), 1);
     id = count(f, "SELECT id FROM review_items WHERE rule = 'detector_drift'");
-    /* Showing it gives the detector's deviations with the CUSUM sums. */
+    /* Showing it gives the series' deviations with the standardised sums. */
     as(f, "otto");
     assert_int_equal(fxl_queue_show(f->ctx, &d, id), 0);
     assert_int_equal(d.trend_is_detector, 1);
-    assert_int_equal(d.n_trend, 6);
-    assert_true(fabs(d.trend[5].cusum_high - 12.0) < 1e-6);
+    assert_int_equal(d.n_trend, first + 1);
+    assert_true(d.trend[first].cusum_high > 5.5);
+    assert_true(d.trend[first - 1].cusum_high <= 5.5);
+    assert_true(isnan(d.trend[9].sigma_pct));
     assert_string_equal(d.trend[1].mrn, "P-2");
+    assert_string_equal(d.trend_series, "LINAC-A 6X entrance");
     fxl_review_detail_release(&d);
     /* Still drifting: no second item while the first exists. */
-    log_fraction(f, 1, 8, "2026-11-09T08:00:00Z", "3:1:3.0");
+    log_fraction(f, 1, ++fr1, "2026-11-20T08:00:00Z", "3:1:3.0");
     assert_int_equal(items(f, FXL_RULE_DRIFT), 1);
-    /* Closing restarts the CUSUM: five more +3 % readings stay at h, the
-     * sixth opens a new item. */
+    /* Closing restarts the chart: a new start-up of ten results first. */
     as(f, "phil");
-    setenv("FXLEDGER_NOW", "2026-11-09T12:00:00Z", 1);
+    setenv("FXLEDGER_NOW", "2026-11-20T12:00:00Z", 1);
     assert_int_equal(fxl_review_close(f->ctx, id, "detector fault", "replaced cable"), 0);
-    for (i = 10; i <= 14; i++) {
-        char at[32];
-        snprintf(at, sizeof at, "2026-11-%02dT08:00:00Z", i);
-        log_fraction(f, 1, i, at, "3:1:3.0");
+    for (i = 0; i <= first; i++) {
+        char at[32], spec[32];
+        snprintf(at, sizeof at, "2026-11-%02dT%02d:00:00Z", 21 + i / 8, 8 + i % 8);
+        snprintf(spec, sizeof spec, "3:1:%.1f", x[i]);
+        log_fraction(f, 1, ++fr1, at, spec);
+        assert_int_equal(items(f, FXL_RULE_DRIFT), i == first ? 2 : 1);
     }
-    assert_int_equal(items(f, FXL_RULE_DRIFT), 1);
-    log_fraction(f, 1, 15, "2026-11-15T08:00:00Z", "3:1:3.0");
-    assert_int_equal(items(f, FXL_RULE_DRIFT), 2);
     assert_chain_ok(f);
 }
 
 static void test_review_drift_ignores_superseded_and_not_evaluable(void **state)
 {
     fixture *f = *state;
+    fxl_drift_point *pts = NULL;
+    char since[FXL_TIME_LEN];
+    size_t n = 0;
     int i;
 
-    sql(f, "INSERT INTO settings (key, value) VALUES ('cusum_h_pct', '5')");
-    /* h = 5 %, k = 1 %, deviations limited to +/- 2.5 %: +2 % gives C+ = 1,
-     * 2; a not-evaluable reading adds nothing; a +30 % entry error adds only
-     * 1.5 (C+ = 3.5, no item); a fourth and fifth +2 % give 4.5, 5.5 > 5. */
+    /* A not-evaluable reading and a superseded one are not in the series;
+     * the amendment is. */
     log_fraction(f, 1, 1, "2026-11-02T08:00:00Z", "3:1:2.0");
     log_fraction(f, 1, 2, "2026-11-03T08:00:00Z", "3:1:2.0 1:1:NAN");
     log_fraction(f, 1, 3, "2026-11-04T08:00:00Z", "3:1:30.0");
-    assert_int_equal(items(f, FXL_RULE_DRIFT), 0);
-    /* The +30 % superseded by an amendment to +2 %: the series holds the
-     * amendment instead. */
     sql(f, "INSERT INTO measurements (fraction_id, field_id, detector_id, reading, reading_unit, temp_c, "
            "temp_entered, corrected_dose_cgy, deviation_pct, verdict, supersedes_id, amend_reason, "
            "user_id, created_at) SELECT 103, 3, 1, 20.4, 'nC', 32, 0, 204, 2.0, 'within_tolerance', id, "
            "'typed 26 for 20.4', 2, '2026-11-04T09:00:00Z' FROM measurements WHERE deviation_pct = 30");
-    {
-        fxl_drift_point *pts = NULL;
-        char since[FXL_TIME_LEN];
-        size_t n = 0;
-        assert_int_equal(fxl_drift_series(f->ctx, &pts, &n, since, 1), 0);
-        assert_int_equal(n, 3);
-        assert_string_equal(since, "2026-10-01T08:00:00Z");
-        for (i = 0; i < 3; i++)
-            assert_true(fabs(pts[i].deviation_pct - 2.0) < 1e-9);
-        free(pts);
-    }
-    log_fraction(f, 1, 4, "2026-11-05T08:00:00Z", "3:1:2.0");
-    assert_int_equal(items(f, FXL_RULE_DRIFT), 0);   /* 1, 2, 3, 4 */
-    log_fraction(f, 1, 5, "2026-11-06T08:00:00Z", "3:1:2.0");
-    assert_int_equal(items(f, FXL_RULE_DRIFT), 0);   /* 5: exactly h */
-    log_fraction(f, 1, 6, "2026-11-07T08:00:00Z", "3:1:2.0");
-    assert_int_equal(items(f, FXL_RULE_DRIFT), 1);   /* 6 > 5 */
+    /* a gross result (beyond the plausibility bound) is not a drift either */
+    sql(f, "INSERT INTO fractions (id, plan_id, number, treated_at, user_id, created_at) VALUES "
+           "(104, 1, 4, '2026-11-05T08:00:00Z', 2, '2026-11-05T08:00:00Z');"
+           "INSERT INTO measurements (fraction_id, field_id, detector_id, reading, reading_unit, temp_c, "
+           "temp_entered, corrected_dose_cgy, expected_dose_cgy, deviation_pct, verdict, gross, user_id, "
+           "created_at) VALUES (104, 3, 1, 32, 'nC', 32, 0, 320, 200, 60, 'outside_action', 1, 2, "
+           "'2026-11-05T08:00:00Z')");
+    assert_int_equal(fxl_drift_series(f->ctx, &pts, &n, since, 1, 1, "entrance"), 0);
+    assert_int_equal(n, 3);
+    assert_string_equal(since, "2026-10-01T08:00:00Z");
+    for (i = 0; i < 3; i++)
+        assert_true(fabs(pts[i].deviation_pct - 2.0) < 1e-9);
+    free(pts);
+    /* an exit series of the same detector is another series */
+    assert_int_equal(fxl_drift_series(f->ctx, &pts, &n, since, 1, 1, "exit"), 0);
+    assert_int_equal(n, 0);
+    free(pts);
 }
 
 static void test_review_bad_setting_refuses_logging(void **state)
@@ -423,7 +477,7 @@ static void test_review_bad_setting_refuses_logging(void **state)
     int64_t before = count(f, "SELECT count(*) FROM review_items");
     int rc;
 
-    sql(f, "INSERT INTO settings (key, value) VALUES ('cusum_k_pct', 'abc')");
+    sql(f, "INSERT INTO settings (key, value) VALUES ('cusum_k_sd', 'abc')");
     as(f, "tina");
     assert_int_equal(fxl_begin(f->ctx), 0);
     sql(f, "INSERT INTO fractions (id, plan_id, number, treated_at, user_id, created_at) "
@@ -431,7 +485,7 @@ static void test_review_bad_setting_refuses_logging(void **state)
     rc = fxl_rules_after_record(f->ctx, 101);
     fxl_rollback(f->ctx);
     assert_int_equal(rc, FXL_EINVAL);
-    assert_non_null(strstr(fxl_errmsg(f->ctx), "cusum_k_pct"));
+    assert_non_null(strstr(fxl_errmsg(f->ctx), "cusum_k_sd"));
     assert_non_null(strstr(fxl_errmsg(f->ctx), "'abc'"));
     assert_int_equal(count(f, "SELECT count(*) FROM review_items"), before);
     assert_int_equal(count(f, "SELECT count(*) FROM fractions"), 0);
@@ -731,6 +785,8 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_review_missing_weekly_boundary, setup, teardown),
         cmocka_unit_test_setup_teardown(test_review_calibration_due_and_expired, setup, teardown),
         cmocka_unit_test_setup_teardown(test_review_dose_limit_boundary, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_review_dose_limit_not_inflated_by_gross_results, setup,
+                                        teardown),
         cmocka_unit_test_setup_teardown(test_review_drift_opens_item_on_detector, setup, teardown),
         cmocka_unit_test_setup_teardown(test_review_drift_ignores_superseded_and_not_evaluable, setup, teardown),
         cmocka_unit_test_setup_teardown(test_review_bad_setting_refuses_logging, setup, teardown),

@@ -1,7 +1,7 @@
 /* Unit tests for src/core/rules.c: each rule over history firing and not
  * firing at its boundary (required measurement per policy, calibration due
  * and expired, accumulated dose limit, CUSUM drift), and the individuals /
- * moving-range chart against the check values of DOMAIN.md section 7. Dates
+ * moving-range chart against the check values of arithmetic of the published formula. Dates
  * and values are invented. */
 #include <math.h>
 #include <setjmp.h>
@@ -457,7 +457,7 @@ static void test_rules_cusum_refuses_bad_input(void **state)
 
 static void test_rules_imr_domain_check_values(void **state)
 {
-    /* DOMAIN.md section 7 (SPC constants; Pawlicki et al.): deviations 1.0,
+    /* arithmetic of the published formula (SPC constants; Pawlicki et al.): deviations 1.0,
      * -0.5, 0.5, 2.0, -1.0 % -> mean 0.400, limits 5.055 / -4.255, moving-
      * range limit 5.717. */
     double x[] = {1.0, -0.5, 0.5, 2.0, -1.0};

@@ -141,7 +141,7 @@ static fxl_calib_spec calib(const char *serial, const double *readings, size_t n
     c.readings = readings;
     c.n_readings = n;
     c.temp_c = 21.5;
-    c.ssd_cm = c.field_size_cm = NAN;
+    c.ssd_cm = c.field_size_cm = c.ref_thickness_cm = NAN;
     return c;
 }
 

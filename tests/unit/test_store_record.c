@@ -389,6 +389,7 @@ static void test_store_record_amend_supersedes_and_history_marks(void **state)
     fixture *f = *state;
     fxl_reading_entry e[] = {entry("AP", "D-1", 2.0, 20.0)};  /* a tenth: unit slip */
     fxl_record_request req = request(e, 1, 0);
+    /* a gross deviation is outside the action level (critical), re-read first */
     fxl_record_result res = FXL_RECORD_RESULT_INIT, am = FXL_RECORD_RESULT_INIT;
     fxl_amend_request a;
     fxl_history_query q = {"P-1", NULL, NULL};
@@ -397,7 +398,8 @@ static void test_store_record_amend_supersedes_and_history_marks(void **state)
     int64_t first;
 
     assert_int_equal(fxl_record_fraction(f->ctx, &res, &req), 0);
-    assert_int_equal(res.items[0].verdict, FXL_VERDICT_IMPLAUSIBLE);
+    assert_int_equal(res.items[0].verdict, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_int_equal(res.items[0].gross, 1);
     first = res.items[0].measurement_id;
 
     fxl_amend_request_init(&a);
@@ -434,7 +436,9 @@ static void test_store_record_amend_supersedes_and_history_marks(void **state)
     assert_int_equal(rows[0].superseded_by, rows[1].measurement_id);
     assert_int_equal(rows[1].supersedes_id, first);
     assert_string_equal(rows[1].amend_reason, "decimal point misread");
-    assert_int_equal(rows[0].verdict, FXL_VERDICT_IMPLAUSIBLE);
+    assert_int_equal(rows[0].verdict, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_int_equal(rows[0].gross, 1);
+    assert_int_equal(rows[1].gross, 0);
     free(rows);
     q.field = "LAT";
     assert_int_equal(fxl_history_list(f->ctx, &rows, &n, &q), FXL_ENOTFOUND);

@@ -201,29 +201,62 @@ static void test_verdict_outside_action(void **state)
 
 static void test_verdict_floor_for_small_doses(void **state)
 {
-    fxl_judge_input in = clean_input(22.0);
+    fxl_judge_input in = clean_input(21.2);
     fxl_judgement j;
 
     (void)state;
     in.expected_dose_cgy = 20.0;
     in.levels.floor_cgy = 2.0;
+    /* physics: |21.2 - 20.0| = 1.20 cGy <= floor 2.0 cGy, although the
+     * deviation 1.2 / 20 x 100 = +6 % is beyond the 5 % tolerance (inside
+     * the 7 % action level) */
     j = judge(&in);
-    /* physics: |22.0 - 20.0| = 2.00 cGy <= floor 2.0 cGy, although the
-     * deviation is 2 / 20 x 100 = +10 %, beyond the 7 % action level */
     assert_verdict(&j, FXL_VERDICT_WITHIN);
-    assert_near(j.deviation_pct, 10.0, 1e-9);
+    assert_near(j.deviation_pct, 6.0, 1e-9);
     assert_reason(&j.reasons, "within the 2.00 cGy floor");
-    in.dose.dose_cgy = 18.0;  /* physics: |18 - 20| = 2.00 cGy, -10 % */
+    in.dose.dose_cgy = 18.8;  /* physics: |18.8 - 20| = 1.20 cGy, -6 % */
     j = judge(&in);
     assert_verdict(&j, FXL_VERDICT_WITHIN);
-    in.dose.dose_cgy = 22.02;  /* physics: 2.02 cGy > floor; 2.02 / 20 x 100 = +10.1 % */
+    /* the floor never turns a result beyond the action level into a pass:
+     * physics: |22.0 - 20.0| = 2.00 cGy <= floor, but +10 % > 7 % action */
+    in.dose.dose_cgy = 22.0;
     j = judge(&in);
     assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
-    /* no floor: the same 2 cGy on 20 cGy is judged on the percentage */
-    in.dose.dose_cgy = 22.0;
+    /* no floor: 1.2 cGy on 20 cGy is judged on the percentage, +6 % */
+    in.dose.dose_cgy = 21.2;
     in.levels.floor_cgy = NAN;
     j = judge(&in);
+    assert_verdict(&j, FXL_VERDICT_OUTSIDE_TOLERANCE);
+}
+
+static void test_verdict_floor_capped(void **state)
+{
+    fxl_judge_input in = clean_input(200.0);
+    fxl_judgement j;
+
+    (void)state;
+    /* a stored floor above FXL_FLOOR_MAX_CGY (5 cGy) acts as 5 cGy:
+     * physics: 106 against 100 cGy is +6 %, a difference of 6.00 cGy > 5 */
+    in.expected_dose_cgy = 100.0;
+    in.dose.dose_cgy = 106.0;
+    in.levels.floor_cgy = 30.0;
+    j = judge(&in);
+    assert_verdict(&j, FXL_VERDICT_OUTSIDE_TOLERANCE);
+    /* physics: 105.5 -> +5.5 %, 5.50 cGy > 5: still outside tolerance */
+    in.dose.dose_cgy = 105.5;
+    j = judge(&in);
+    assert_verdict(&j, FXL_VERDICT_OUTSIDE_TOLERANCE);
+    /* physics: 5 cGy of 60 cGy is +8.33 %, beyond the 7 % action level but
+     * <= the (capped) floor: the floor never passes it */
+    in.expected_dose_cgy = 60.0;
+    in.dose.dose_cgy = 65.0;
+    j = judge(&in);
     assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
+    /* physics: 4 cGy of 70 cGy is +5.71 %: inside action, <= floor: within */
+    in.expected_dose_cgy = 70.0;
+    in.dose.dose_cgy = 74.0;
+    j = judge(&in);
+    assert_verdict(&j, FXL_VERDICT_WITHIN);
 }
 
 static void test_verdict_reading_not_positive(void **state)
@@ -262,26 +295,46 @@ static void test_verdict_reading_checked_first(void **state)
     assert_verdict(&j, FXL_VERDICT_IMPLAUSIBLE);
 }
 
-static void test_verdict_implausible_deviation(void **state)
+static void test_verdict_gross_deviation(void **state)
 {
     fxl_judge_input in = clean_input(300.0);
     fxl_judgement j = judge(&in);
 
     (void)state;
-    /* physics: 100 / 200 x 100 = 50.00 %: at the bound, still a dose result */
+    /* physics: 100 / 200 x 100 = 50.00 %: at the bound, an ordinary result */
     assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
-    /* physics: 100.02 / 200 x 100 = 50.01 %: beyond the bound */
+    assert_int_equal(j.gross, 0);
+    /* physics: 100.02 / 200 x 100 = 50.01 %: beyond the bound, a gross
+     * deviation: outside the action level, re-read first, then hold */
     in = clean_input(300.02);
     j = judge(&in);
-    assert_verdict(&j, FXL_VERDICT_IMPLAUSIBLE);
-    assert_reason(&j.reasons, "probable entry or unit error");
+    assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_int_equal(j.gross, 1);
+    assert_near(j.deviation_pct, 50.01, 1e-9);
+    assert_reason(&j.reasons, "gross deviation, outside the action level");
+    assert_reason(&j.reasons, "re-read the electrometer and check the unit");
+    assert_reason(&j.reasons, "hold treatment and call the physicist");
     /* physics: -100.02 / 200 x 100 = -50.01 % */
     in = clean_input(99.98);
     j = judge(&in);
-    assert_verdict(&j, FXL_VERDICT_IMPLAUSIBLE);
+    assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_int_equal(j.gross, 1);
+    /* a 60 degree wedge left out: WF 0.62 (a typical value, from memory:
+     * 0.42 to 0.62) -> 200 / 0.62 = 322.58 cGy, +61.29 % (physics) */
+    in = clean_input(200.0 / 0.62);
+    j = judge(&in);
+    assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_int_equal(j.gross, 1);
+    assert_near(j.deviation_pct, 61.29, 1e-9);
+    /* even without levels a gross deviation is outside the action level */
+    in.levels.present = 0;
+    j = judge(&in);
+    assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_non_null(strstr(fxl_gross_guidance(), "re-read the electrometer"));
+    assert_non_null(strstr(fxl_gross_guidance(), "Call the physicist"));
 }
 
-static void test_verdict_implausible_bound_configurable(void **state)
+static void test_verdict_gross_bound_configurable(void **state)
 {
     fxl_judge_input in = clean_input(262.0);
     fxl_judgement j;
@@ -290,41 +343,57 @@ static void test_verdict_implausible_bound_configurable(void **state)
     /* physics: 62 / 200 x 100 = 31 % > 30 % */
     in.implausible_pct = 30.0;
     j = judge(&in);
-    assert_verdict(&j, FXL_VERDICT_IMPLAUSIBLE);
-    /* unset (0 or NaN) bound means the default 50 %: 31 % is a dose result */
+    assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_int_equal(j.gross, 1);
+    /* unset (0 or NaN) bound means the default 50 %: 31 % is not gross */
     in.implausible_pct = 0.0;
     j = judge(&in);
     assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_int_equal(j.gross, 0);
     in.implausible_pct = NAN;
     j = judge(&in);
-    assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_int_equal(j.gross, 0);
     in = clean_input(300.02);
     in.implausible_pct = -5.0;
     j = judge(&in);
-    assert_verdict(&j, FXL_VERDICT_IMPLAUSIBLE);
+    assert_int_equal(j.gross, 1);
 }
 
-static void test_verdict_implausible_ratio(void **state)
+static void test_verdict_gross_unit_slip(void **state)
 {
     fxl_judge_input in = clean_input(2100.0);
     fxl_judgement j;
 
     (void)state;
     /* a bound set very wide still leaves the 0.1..10 ratio check:
-     * physics: 2100 / 200 = 10.5 > 10 */
+     * physics: 2100 / 200 = 10.5 > 10, close to a factor 10 */
     in.implausible_pct = 5000.0;
     j = judge(&in);
-    assert_verdict(&j, FXL_VERDICT_IMPLAUSIBLE);
-    assert_reason(&j.reasons, "more than ten times");
-    /* physics: 15 / 200 = 0.075 < 0.1 */
-    in.dose.dose_cgy = 15.0;
+    assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_int_equal(j.gross, 1);
+    assert_reason(&j.reasons, "close to a factor 10");
+    /* physics: 0.2 / 200 = 0.001: a factor 1000 (pC entered as nC) */
+    in.implausible_pct = 0;
+    in.dose.dose_cgy = 0.2;
     j = judge(&in);
-    assert_verdict(&j, FXL_VERDICT_IMPLAUSIBLE);
-    assert_reason(&j.reasons, "less than a tenth");
-    /* physics: 2000 / 200 = 10 exactly: inside the ratio range */
+    assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_reason(&j.reasons, "close to a factor 0.001");
+    /* physics: 200000 / 200 = 1000 */
+    in.dose.dose_cgy = 200000.0;
+    j = judge(&in);
+    assert_reason(&j.reasons, "close to a factor 1000");
+    /* physics: 2000 / 200 = 10 exactly with a very wide bound: not gross */
+    in.implausible_pct = 5000.0;
     in.dose.dose_cgy = 2000.0;
     j = judge(&in);
     assert_verdict(&j, FXL_VERDICT_OUTSIDE_ACTION);
+    assert_int_equal(j.gross, 0);
+    /* physics: 320 / 200 = 1.6: gross but no unit slip named */
+    in.implausible_pct = 0;
+    in.dose.dose_cgy = 320.0;
+    j = judge(&in);
+    assert_int_equal(j.gross, 1);
+    assert_int_equal(j.reasons.n, 2);
 }
 
 static void test_verdict_missing_levels_not_evaluable(void **state)
@@ -518,11 +587,12 @@ int main(void)
         cmocka_unit_test(test_verdict_action_boundary),
         cmocka_unit_test(test_verdict_outside_action),
         cmocka_unit_test(test_verdict_floor_for_small_doses),
+        cmocka_unit_test(test_verdict_floor_capped),
         cmocka_unit_test(test_verdict_reading_not_positive),
         cmocka_unit_test(test_verdict_reading_checked_first),
-        cmocka_unit_test(test_verdict_implausible_deviation),
-        cmocka_unit_test(test_verdict_implausible_bound_configurable),
-        cmocka_unit_test(test_verdict_implausible_ratio),
+        cmocka_unit_test(test_verdict_gross_deviation),
+        cmocka_unit_test(test_verdict_gross_bound_configurable),
+        cmocka_unit_test(test_verdict_gross_unit_slip),
         cmocka_unit_test(test_verdict_missing_levels_not_evaluable),
         cmocka_unit_test(test_verdict_invalid_levels_not_evaluable),
         cmocka_unit_test(test_verdict_retired_detector),
