@@ -3,8 +3,9 @@
 built from nothing in demo/out/ with fxledger's own commands, then about two
 weeks of logged fractions, the physicist's review queue and the PDF reports.
 
-Every person, patient, plan, detector, calibration and reading here is
-invented for the demo; none is real. The readings are made up so that the
+Every person, patient, plan, detector, calibration, reading and password
+here is invented for the demo; none is real. The invented passwords reach
+fxledger through --password-fd, so the demo runs with no prompt. The readings are made up so that the
 corrected doses land at chosen deviations from the expected doses: mostly
 small, with one result outside tolerance, two consecutive results outside
 tolerance that escalate, one outside the action level, one mistyped reading
@@ -20,12 +21,15 @@ The demo plays two weeks in minutes, so it needs the test build of the
 program (fxledger-testclock), whose clock FXLEDGER_NOW fixes; the program
 users run (fxledger) ignores FXLEDGER_NOW.
 """
+import calendar
 import json
 import os
 import random
+import re
 import shutil
 import subprocess
 import sys
+import time
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 DATA = os.path.join(HERE, "data")
@@ -41,17 +45,77 @@ CAL_TEMP_C = 21.0
 A_PER_C = 0.0025  # temperature coefficient of the invented diodes, fraction per degC
 
 
+# Invented passwords of the invented staff, given to fxledger through a pipe
+# (--password-fd), never on the command line: the demo runs with no prompt.
+# 'user add' prints a one-time password; each user replaces it with theirs at
+# their first login. Each user has a state directory of their own for the
+# session file, as each person would on their own OS account.
+PASSWORDS = {}
+ONE_TIME = {}
+SESSIONS = {}   # login -> [login time, last activity] in seconds
+IDLE_S, ABSOLUTE_S = 15 * 60, 12 * 3600   # fxledger's defaults
+
+
+def invented_password(login):
+    return "Invented demo passphrase for " + login[::-1]
+
+
+def seconds(iso):
+    return calendar.timegm(time.strptime(iso, "%Y-%m-%dT%H:%M:%SZ"))
+
+
+def call(args, user, now, lines):
+    """One fxledger call as `user` with `lines` on the password pipe."""
+    state = os.path.join(OUT, "state", user)
+    os.makedirs(state, mode=0o700, exist_ok=True)
+    env = dict(os.environ, FXLEDGER_DB=DB, FXLEDGER_NOW=now, NO_COLOR="1", XDG_STATE_HOME=state)
+    env.pop("FXLEDGER_USER", None)
+    rfd, wfd = os.pipe()
+    os.write(wfd, "".join(x + "\n" for x in lines).encode())
+    os.close(wfd)
+    try:
+        return subprocess.run([BIN, "--user", user, "--password-fd", str(rfd)] + [str(a) for a in args],
+                              capture_output=True, text=True, env=env, pass_fds=(rfd,))
+    finally:
+        os.close(rfd)
+
+
+def ensure_session(user, now):
+    t = seconds(now)
+    s = SESSIONS.get(user)
+    if s and t < s[1] + IDLE_S and t < s[0] + ABSOLUTE_S:
+        return
+    if user in ONE_TIME:
+        r = call(["login", "--new-password"], user, now, [ONE_TIME.pop(user), PASSWORDS[user]])
+    else:
+        r = call(["login"], user, now, [PASSWORDS[user]])
+    if r.returncode != 0:
+        sys.stderr.write("demo: login of %s failed:\n%s" % (user, r.stderr))
+        sys.exit(1)
+    SESSIONS[user] = [t, t]
+
+
 def run(*args, user="adm", now="2026-10-26T08:00:00Z", show=False, ok_codes=(0,)):
     """Runs fxledger on the demo database; prints its output when asked."""
-    env = dict(os.environ, FXLEDGER_DB=DB, FXLEDGER_USER=user, FXLEDGER_NOW=now, NO_COLOR="1")
-    r = subprocess.run([BIN] + [str(a) for a in args], capture_output=True, text=True, env=env)
+    if args[0] == "init":
+        PASSWORDS[user] = invented_password(user)
+    else:
+        ensure_session(user, now)
+    r = call(args, user, now, [PASSWORDS[user]])
     if r.returncode not in ok_codes:
         sys.stderr.write("demo step failed (%d): fxledger %s\n%s%s" % (
             r.returncode, " ".join(map(str, args)), r.stdout, r.stderr))
         sys.exit(1)
+    s = SESSIONS.get(user)
+    if s and seconds(now) >= s[1] + 60:
+        s[1] = seconds(now)
+    m = re.search(r"one-time password for '([^']+)': (\S+)", r.stdout)
+    if m:
+        ONE_TIME[m.group(1)] = m.group(2)
+        PASSWORDS[m.group(1)] = invented_password(m.group(1))
     if show:
         print("$ fxledger " + " ".join(quote(a) for a in args))
-        sys.stdout.write(r.stdout)
+        sys.stdout.write(r.stdout if not m else r.stdout.replace(m.group(2), "(one-time password)"))
         sys.stdout.write(r.stderr)
         print()
     return r

@@ -18,7 +18,9 @@ enum {
     FXL_EPERM = -6,      /* the user's role may not do this */
     FXL_EBUSY = -7,      /* database locked by another process past the timeout */
     FXL_EVERSION = -8,   /* not an fxledger database, or a newer schema */
-    FXL_ERANGE = -9      /* a value outside a commissioned table (no extrapolation) */
+    FXL_ERANGE = -9,     /* a value outside a commissioned table (no extrapolation) */
+    FXL_EAUTH = -10,     /* not authenticated: no live session, wrong password, locked */
+    FXL_EEXPIRED = -11   /* the password must be changed before logging in (fxl/auth.h) */
 };
 
 /* Roles, usable as a bit mask in fxl_require_role(). */

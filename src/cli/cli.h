@@ -14,7 +14,7 @@ enum {
     CLI_EXIT_USAGE = 1,        /* bad command line */
     CLI_EXIT_DATA = 2,         /* invalid input, not found, duplicate */
     CLI_EXIT_DB = 3,           /* database busy, not ours, newer, I/O */
-    CLI_EXIT_PERM = 4,         /* the user's role may not do this */
+    CLI_EXIT_PERM = 4,         /* not logged in, wrong password, or the role may not do this */
     /* record only, the worst result of the fraction: */
     CLI_EXIT_NOT_EVALUABLE = 10,  /* some result not evaluable or implausible */
     CLI_EXIT_TOLERANCE = 11,      /* some result outside tolerance */
@@ -24,12 +24,16 @@ enum {
 /* Command flags, handled once in main.c. */
 #define CLI_NEEDS_DB 1      /* open an existing database (read-write) */
 #define CLI_READONLY 2      /* ... read-only */
-#define CLI_NEEDS_USER 4    /* resolve --user before the handler runs */
+#define CLI_NEEDS_USER 4    /* authenticate (session or password) before the handler runs */
 
 typedef struct cli_env {
     fxl_ctx *ctx;          /* open database, or NULL for commands without one */
     const char *db_path;
-    const char *user;      /* --user, $FXLEDGER_USER or the login name */
+    const char *user;      /* --user: the login to authenticate as, or NULL */
+    int password_fd;       /* --password-fd N, or -1: passwords come from the terminal */
+    char token[65];        /* the live session's token, "" when none */
+    char *password;        /* entered for this command (sodium_malloc), or NULL */
+    int password_used;     /* ... and already spent on a signature */
     int json;              /* --json: machine-readable output */
     int color;             /* stdout is a terminal and NO_COLOR is unset */
     int interactive;       /* stdin is a terminal */
@@ -114,6 +118,8 @@ int cmd_queue(cli_env *env, int argc, char **argv);
 int cmd_amend(cli_env *env, int argc, char **argv);
 int cmd_backup(cli_env *env, int argc, char **argv);
 int cmd_report(cli_env *env, int argc, char **argv);
+int cmd_login(cli_env *env, int argc, char **argv);
+int cmd_logout(cli_env *env, int argc, char **argv);
 int cmd_today(cli_env *env, int argc, char **argv);
 int cmd_stats(cli_env *env, int argc, char **argv);
 int cmd_export(cli_env *env, int argc, char **argv);

@@ -6,6 +6,8 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/signature_view.h"
+#include "cli/session.h"
 #include "fxl/number.h"
 #include "cli/json_put.h"
 #include "fxl/calibrations.h"
@@ -215,10 +217,13 @@ static int calib_add(cli_env *env, int argc, char **argv)
         }
         c.calibrated_at = at;
     }
+    if ((rc = cli_sign_begin(env, "calibration confirmed")) != 0)
+        return rc;
     if ((rc = fxl_calib_add(env->ctx, &out, &c)) != 0)
         return cli_fail(env, rc);
     if (env->json) {
         cJSON *o = calib_json(&out);
+        cJSON_AddItemToObject(o, "signatures", signatures_json(env, "calibrations", out.id));
         cJSON_AddBoolToObject(o, "temp_assumed", isnan(c.temp_c));
         return cli_print_json(o);
     }
@@ -268,8 +273,11 @@ static int calib_list(cli_env *env, int argc, char **argv)
         return cli_fail(env, rc);
     if (env->json) {
         cJSON *arr = cJSON_CreateArray();
-        for (i = 0; i < n; i++)
-            cJSON_AddItemToArray(arr, calib_json(&list[i]));
+        for (i = 0; i < n; i++) {
+            cJSON *o = calib_json(&list[i]);
+            cJSON_AddItemToObject(o, "signatures", signatures_json(env, "calibrations", list[i].id));
+            cJSON_AddItemToArray(arr, o);
+        }
         free(list);
         return cli_print_json(arr);
     }

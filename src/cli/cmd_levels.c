@@ -5,6 +5,8 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/signature_view.h"
+#include "cli/session.h"
 #include "cli/json_put.h"
 #include "fxl/plans.h"
 #include "fxl/scope.h"
@@ -136,11 +138,16 @@ static int levels_set(cli_env *env, int argc, char **argv)
     chg.detector_kind = scope_opt(opts, "detector-kind");
     chg.effective_from = cli_get(opts, "effective");
     chg.deactivate = cli_get(opts, "deactivate") != NULL;
+    if ((rc = cli_sign_begin(env, chg.deactivate ? "levels withdrawn" : "levels in force")) != 0)
+        return rc;
     if ((rc = fxl_thresholds_save(env->ctx, &saved, &chg)) != 0)
         return cli_fail(env, rc);
     warn_unused_scope(env, &saved);
-    if (env->json)
-        return cli_print_json(set_json(&saved));
+    if (env->json) {
+        cJSON *o = set_json(&saved);
+        cJSON_AddItemToObject(o, "signatures", signatures_json(env, "threshold_sets", saved.id));
+        return cli_print_json(o);
+    }
     if (saved.active) {
         fxl_scope s;
         char scope[300];
@@ -194,8 +201,11 @@ static int levels_list(cli_env *env, int argc, char **argv)
         return cli_fail(env, rc);
     if (env->json) {
         cJSON *a = cJSON_CreateArray();
-        for (i = 0; i < n; i++)
-            cJSON_AddItemToArray(a, set_json(&list[i]));
+        for (i = 0; i < n; i++) {
+            cJSON *o = set_json(&list[i]);
+            cJSON_AddItemToObject(o, "signatures", signatures_json(env, "threshold_sets", list[i].id));
+            cJSON_AddItemToArray(a, o);
+        }
         free(list);
         return cli_print_json(a);
     }

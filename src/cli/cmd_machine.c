@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/session.h"
 #include "cli/json_put.h"
 #include "fxl/beam_data.h"
 #include "fxl/machines.h"
@@ -158,6 +159,8 @@ static int machine_beamdata(cli_env *env, int argc, char **argv)
         cli_error("machine beamdata needs the beam data FILE (see 'fxledger machine beamdata --help')");
         return CLI_EXIT_USAGE;
     }
+    if ((rc = cli_sign_begin(env, "beam data loaded")) != 0)
+        return rc;
     if ((rc = fxl_beam_data_load(env->ctx, &d, pos[0], cli_get(opts, "effective"))) != 0)
         return cli_fail(env, rc);
     if (env->json)

@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/session.h"
 #include "cli/plan_view.h"
 #include "fxl/plan_json.h"
 #include "fxl/plans.h"
@@ -56,6 +57,10 @@ static int plan_import(cli_env *env, int argc, char **argv)
             return CLI_EXIT_USAGE;
         }
         snprintf(spec.replaces, sizeof spec.replaces, "%s", replaces);
+    }
+    if ((rc = cli_sign_begin(env, spec.replaces[0] ? "plan replaced" : "plan imported")) != 0) {
+        fxl_plan_spec_release(&spec);
+        return rc;
     }
     rc = fxl_plan_import(env->ctx, NULL, &spec);
     if (rc == 0)

@@ -13,6 +13,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/session.h"
 #include "cli/plan_view.h"
 #include "fxl/dicom_plan.h"
 #include "fxl/machines.h"
@@ -429,6 +430,8 @@ int cli_plan_import_dicom(cli_env *env, int argc, char **argv)
     }
     if ((code = build_spec(env, &spec, &dp, m, pos[0], site, technique, setup, policy, replaces, exits,
                            n_exits, maps, n_maps)) != 0)
+        goto cleanup;
+    if ((code = cli_sign_begin(env, spec.replaces[0] ? "plan replaced" : "plan imported")) != 0)
         goto cleanup;
     if ((rc = fxl_plan_import(env->ctx, NULL, &spec)) != 0 ||
         (rc = fxl_plan_get(env->ctx, &plan, spec.mrn, spec.label)) != 0) {

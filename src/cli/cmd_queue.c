@@ -9,6 +9,8 @@
 #include <strings.h>
 
 #include "cli/cli.h"
+#include "cli/session.h"
+#include "cli/signature_view.h"
 #include "cli/table.h"
 #include "fxl/fraction.h"
 #include "cli/json_put.h"
@@ -508,6 +510,7 @@ static int queue_show(cli_env *env, int argc, char **argv)
             cJSON_AddStringToObject(p, "user_name", e->user_name);
             cJSON_AddStringToObject(p, "role", e->user_role);
             cJSON_AddStringToObject(p, "at", e->at);
+            cJSON_AddItemToObject(p, "signatures", signatures_json(env, "review_events", e->id));
             cJSON_AddItemToArray(events, p);
         }
         cJSON_AddItemToObject(o, "events", events);
@@ -544,6 +547,7 @@ static int queue_show(cli_env *env, int argc, char **argv)
         printf("\n");
         if (e->comment[0])
             printf("      %s\n", e->comment);
+        print_signatures(env, "review_events", e->id, "      ");
     }
     printf("\n");
     cli_print_caveat(stdout);
@@ -656,6 +660,8 @@ static int queue_close(cli_env *env, int argc, char **argv)
     }
     if (parse_item_id(&id, pos[0]) != 0)
         return CLI_EXIT_USAGE;
+    if ((rc = cli_sign_begin(env, "review closed")) != 0)
+        return rc;
     if ((rc = fxl_review_close(env->ctx, id, cli_get(opts, "disposition"), cli_get(opts, "comment"))) != 0)
         return cli_fail(env, rc);
     return print_event_done(env, id, "close", "closed");
@@ -684,6 +690,8 @@ static int queue_reopen(cli_env *env, int argc, char **argv)
     }
     if (parse_item_id(&id, pos[0]) != 0)
         return CLI_EXIT_USAGE;
+    if ((rc = cli_sign_begin(env, "review reopened")) != 0)
+        return rc;
     if ((rc = fxl_review_reopen(env->ctx, id, cli_get(opts, "comment"))) != 0)
         return cli_fail(env, rc);
     return print_event_done(env, id, "reopen", "reopened");

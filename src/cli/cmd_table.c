@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/session.h"
 #include "cli/json_put.h"
 #include "fxl/corrections.h"
 
@@ -65,8 +66,13 @@ static int table_load(cli_env *env, int argc, char **argv)
         cli_error("table load needs a FILE (see 'fxledger table load --help')");
         return CLI_EXIT_USAGE;
     }
-    if ((rc = fxl_corr_file_read(env->ctx, &file, pos[0])) != 0 ||
-        (rc = fxl_corr_store(env->ctx, &ids, &file)) != 0) {
+    if ((rc = fxl_corr_file_read(env->ctx, &file, pos[0])) != 0) {
+        rc = cli_fail(env, rc);
+        goto cleanup;
+    }
+    if ((rc = cli_sign_begin(env, "correction table loaded")) != 0)
+        goto cleanup;
+    if ((rc = fxl_corr_store(env->ctx, &ids, &file)) != 0) {
         rc = cli_fail(env, rc);
         goto cleanup;
     }

@@ -6,7 +6,11 @@
 #include <string.h>
 #include <unistd.h>
 
+#include <fcntl.h>
+#include <sodium.h>
+
 #include "cli/cli.h"
+#include "cli/session.h"
 #include "fxl/text.h"
 
 typedef struct cli_command {
@@ -18,7 +22,9 @@ typedef struct cli_command {
 
 static const cli_command commands[] = {
     {"init", cmd_init, "create a new fxledger database and its first admin user", 0},
-    {"user", cmd_user, "add, list and deactivate users and their roles", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"login", cmd_login, "open a session (password prompt); it ends after 15 min idle or 12 h", CLI_NEEDS_DB},
+    {"logout", cmd_logout, "end the session", CLI_NEEDS_DB},
+    {"user", cmd_user, "add, list, deactivate users; passwords, resets and unlocks", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"setting", cmd_setting, "show and change department settings", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"machine", cmd_machine, "add and list treatment machines and their beams", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"detector", cmd_detector, "add, list, show and retire in vivo detectors", CLI_NEEDS_DB | CLI_NEEDS_USER},
@@ -45,13 +51,16 @@ static void print_help(void)
     size_t i;
 
     printf("fxledger %s - fraction-by-fraction logbook for in vivo dosimetry\n\n", FXL_VERSION);
-    printf("usage: fxledger [--db PATH] [--user NAME] [--json] <command> [options]\n\n");
+    printf("usage: fxledger [--db PATH] [--user NAME] [--password-fd N] [--json] <command> [options]\n\n");
     printf("commands:\n");
     for (i = 0; i < sizeof commands / sizeof commands[0]; i++)
         printf("  %-10s %s\n", commands[i].name, commands[i].summary);
     printf("\nglobal options:\n"
            "  --db PATH     database file (default $FXLEDGER_DB, else ./fxledger.db)\n"
-           "  --user NAME   acting user (default $FXLEDGER_USER, else the login name)\n"
+           "  --user NAME   log in as NAME (default: the OS login name); a live session of\n"
+           "                another user is then not used, the password is asked\n"
+           "  --password-fd N  read passwords from file descriptor N, one per line, instead\n"
+           "                of the terminal (scripts); never put a password on the command line\n"
            "  --json        machine-readable output for listings and results\n"
            "  --help        this help; 'fxledger <command> --help' for a command\n"
            "  --version     print the version\n"
@@ -59,17 +68,6 @@ static void print_help(void)
            "record: 10 not evaluable or implausible, 11 outside tolerance, 12 outside action level.\n");
     printf("\n");
     cli_print_caveat(stdout);
-}
-
-static const char *default_user(void)
-{
-    const char *u = getenv("FXLEDGER_USER");
-    struct passwd *pw;
-
-    if (u && *u)
-        return u;
-    pw = getpwuid(getuid());
-    return pw ? pw->pw_name : "unknown";
 }
 
 /* Removes the global options from argv wherever they stand (before "--"). */
@@ -99,7 +97,25 @@ static int take_global_options(cli_env *env, int *argc, char **argv, int *want_h
             }
             *seen = 1;
         }
-        if (strcmp(a, "--db") == 0 || strcmp(a, "--user") == 0) {
+        if (strcmp(a, "--password-fd") == 0 || strncmp(a, "--password-fd=", 14) == 0) {
+            const char *v = a[13] == '=' ? a + 14 : (i + 1 < *argc ? argv[++i] : NULL);
+            char *end = NULL;
+            long fd;
+            if (!v) {
+                cli_error("option '--password-fd' needs a value N");
+                return -1;
+            }
+            fd = strtol(v, &end, 10);
+            if (end == v || *end || fd < 0 || fd > 1024 || fcntl((int)fd, F_GETFD) < 0) {
+                cli_error("--password-fd '%s' is not an open file descriptor", v);
+                return -1;
+            }
+            if (env->password_fd >= 0) {
+                cli_error("option '--password-fd' is given more than once");
+                return -1;
+            }
+            env->password_fd = (int)fd;
+        } else if (strcmp(a, "--db") == 0 || strcmp(a, "--user") == 0) {
             if (i + 1 >= *argc) {
                 cli_error("option '%s' needs a value", a);
                 return -1;
@@ -167,6 +183,7 @@ static int finish(int code)
 int main(int argc, char **argv)
 {
     cli_env env = {0};
+    fxl_ctx *rw = NULL;
     const cli_command *cmd = NULL;
     const char *nocolor = getenv("NO_COLOR");
     int want_help = 0, want_version = 0, rc, flags;
@@ -176,17 +193,20 @@ int main(int argc, char **argv)
     if (!env.db_path || !*env.db_path)
         env.db_path = "fxledger.db";
     env.user = NULL;
+    env.password_fd = -1;
     env.color = isatty(STDOUT_FILENO) && !(nocolor && *nocolor);
     env.interactive = isatty(STDIN_FILENO);
 
+    if (sodium_init() < 0) {
+        fprintf(stderr, "fxledger: error: cannot initialise libsodium\n");
+        return CLI_EXIT_DB;
+    }
     argc--;
     argv++;
     if (check_arguments(argc, argv) != 0)
         return finish(CLI_EXIT_DATA);
     if (take_global_options(&env, &argc, argv, &want_help, &want_version) != 0)
         return finish(CLI_EXIT_USAGE);
-    if (!env.user)
-        env.user = default_user();
     if (want_version) {
         printf("fxledger %s\n", FXL_VERSION);
         return finish(0);
@@ -217,13 +237,27 @@ int main(int argc, char **argv)
             fxl_close(env.ctx);
             return finish(rc);
         }
-        if ((flags & CLI_NEEDS_USER) && (rc = fxl_set_user(env.ctx, env.user)) != 0) {
-            rc = cli_fail(&env, rc);
+        /* A read-only command still needs a writable connection to count a
+         * failed password or to record the session's activity. */
+        if ((flags & CLI_NEEDS_USER) && (flags & CLI_READONLY) && fxl_open(&rw, env.db_path, 0) != 0) {
+            fxl_close(rw);
+            rw = NULL;
+        }
+        if ((flags & CLI_NEEDS_USER) && (rc = cli_authenticate(&env, rw ? rw : env.ctx)) != 0) {
+            cli_auth_release(&env);
+            fxl_close(rw);
             fxl_close(env.ctx);
             return finish(rc);
         }
     }
     rc = cmd->run(&env, argc, argv);
+    fxl_sign_end(env.ctx);
+    /* Activity keeps the session alive; a refused command does not count. */
+    if (env.token[0] && (rc == CLI_EXIT_OK || rc >= CLI_EXIT_NOT_EVALUABLE) &&
+        ((flags & CLI_READONLY) ? rw : env.ctx))
+        fxl_session_touch((flags & CLI_READONLY) ? rw : env.ctx, env.token);
+    cli_auth_release(&env);
+    fxl_close(rw);
     fxl_close(env.ctx);
     return finish(rc);
 }

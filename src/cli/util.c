@@ -33,7 +33,9 @@ int cli_exit_code(int fxl_code)
     case FXL_EINVAL:
     case FXL_ECONFLICT:
     case FXL_ERANGE: return CLI_EXIT_DATA;
-    case FXL_EPERM: return CLI_EXIT_PERM;
+    case FXL_EPERM:
+    case FXL_EAUTH:
+    case FXL_EEXPIRED: return CLI_EXIT_PERM;
     default: return CLI_EXIT_DB;
     }
 }

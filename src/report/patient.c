@@ -446,6 +446,30 @@ static int on_plan_section(void *arg, const fxl_rq_plan *p)
     return charts(r);
 }
 
+static int on_signature(void *arg, const fxl_rq_signature *g)
+{
+    preport *r = arg;
+    rpt_doc *d = &r->s->doc;
+    char line[900];
+
+    snprintf(line, sizeof line, "%s: %s, signed by %s (%s) at %s UTC", g->subject, g->meaning,
+             g->printed_name, g->login, g->signed_at);
+    rpt_paragraph(d, d->font, 8.5, d->left, d->right - d->left, line);
+    return 0;
+}
+
+/* Every electronic signature on the patient's review items and plans: the
+ * name, login, time and meaning of each (21 CFR Part 11 section 11.50). */
+static int signatures_section(preport *r)
+{
+    rpt_heading(&r->s->doc, "Electronic signatures", 40);
+    rpt_paragraph(&r->s->doc, r->s->doc.font, 8, r->s->doc.left,
+                  r->s->doc.right - r->s->doc.left,
+                  "Each entry was signed by re-entering the signer's password; 'fxledger verify' "
+                  "checks every signature against the signed record.");
+    return fxl_rq_patient_signatures_each(r->s->ctx, r->patient_id, on_signature, r);
+}
+
 static void signature_block(rpt_doc *d)
 {
     static const char *const labels[3] = {"Name of the reviewing medical physicist", "Signature",
@@ -536,6 +560,8 @@ int fxl_report_patient(fxl_ctx *ctx, fxl_report_result *out, const char *path, c
         if ((rc = rpt_method_corrections(&s, &scope)) != 0)
             goto cleanup;
         if ((rc = fxl_rq_plans_each(ctx, r.patient_id, r.plan_label, on_plan_section, &r)) != 0)
+            goto cleanup;
+        if ((rc = signatures_section(&r)) != 0)
             goto cleanup;
         signature_block(d);
     }

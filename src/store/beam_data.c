@@ -16,6 +16,7 @@
 #include "fxl/beam_data.h"
 #include "fxl/beam_json.h"
 #include "store/audit.h"
+#include "store/auth_int.h"
 #include "store/grow.h"
 #include "store/model_store.h"
 #include "store/stmt.h"
@@ -183,6 +184,8 @@ int fxl_beam_data_load(fxl_ctx *ctx, fxl_beam_data_info *out, const char *path, 
         memset(out, 0, sizeof *out);
     if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "loading beam data")) != 0)
         return rc;
+    if ((rc = fxl_sign_require(ctx, "loading beam data")) != 0)
+        return rc;
     if (!path || !*path)
         return fxl_fail(ctx, FXL_EINVAL, "a beam data FILE is required");
     fxl_now(ctx, now);
@@ -252,6 +255,8 @@ int fxl_beam_data_load(fxl_ctx *ctx, fxl_beam_data_info *out, const char *path, 
     if (m.source[0])
         cJSON_AddStringToObject(audit, "source", m.source);
     if ((rc = fxl_audit_append(ctx, "load", "beam_data", id, audit)) != 0)
+        goto cleanup;
+    if ((rc = fxl_signature_add(ctx, "beam_data", id, "beam data loaded")) != 0)
         goto cleanup;
     if ((rc = fxl_commit(ctx)) != 0)
         goto cleanup;

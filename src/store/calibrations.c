@@ -12,6 +12,7 @@
 #include "fxl/machines.h"
 #include "fxl/settings.h"
 #include "store/audit.h"
+#include "store/auth_int.h"
 #include "store/grow.h"
 #include "store/stmt.h"
 
@@ -372,6 +373,8 @@ int fxl_calib_add(fxl_ctx *ctx, fxl_calibration *out, const fxl_calib_spec *c)
 
     if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "recording a calibration")) != 0)
         return rc;
+    if ((rc = fxl_sign_require(ctx, "confirming a calibration")) != 0)
+        return rc;
     if ((rc = plan_calibration(ctx, &p, c)) != 0)
         return rc;
     readings = cJSON_CreateArray();
@@ -442,6 +445,8 @@ int fxl_calib_add(fxl_ctx *ctx, fxl_calibration *out, const fxl_calib_spec *c)
     if (c->notes && *c->notes)
         cJSON_AddStringToObject(audit, "notes", c->notes);
     if ((rc = fxl_audit_append(ctx, "create", "calibrations", id, audit)) != 0)
+        goto cleanup;
+    if ((rc = fxl_signature_add(ctx, "calibrations", id, "calibration confirmed")) != 0)
         goto cleanup;
     if ((rc = fxl_commit(ctx)) != 0)
         goto cleanup;

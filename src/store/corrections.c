@@ -11,6 +11,7 @@
 #include "fxl/detectors.h"
 #include "fxl/machines.h"
 #include "store/audit.h"
+#include "store/auth_int.h"
 #include "store/grow.h"
 #include "store/stmt.h"
 
@@ -132,6 +133,8 @@ int fxl_corr_store(fxl_ctx *ctx, int64_t **out_ids, const fxl_corr_file *file)
         *out_ids = NULL;
     if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "loading correction tables")) != 0)
         return rc;
+    if ((rc = fxl_sign_require(ctx, "loading correction tables")) != 0)
+        return rc;
     if (file->n_tables == 0)
         return fxl_fail(ctx, FXL_EINVAL, "no correction tables to load");
     if ((rc = fxl_detector_get(ctx, &det, file->detector, NULL)) != 0)
@@ -233,6 +236,8 @@ int fxl_corr_store(fxl_ctx *ctx, int64_t **out_ids, const fxl_corr_file *file)
             cJSON_AddItemToArray(points, pair);
         }
         if ((rc = fxl_audit_append(ctx, "load", "correction_tables", ids[i], audit)) != 0)
+            goto cleanup;
+        if ((rc = fxl_signature_add(ctx, "correction_tables", ids[i], "correction table loaded")) != 0)
             goto cleanup;
         cJSON_Delete(audit);
         audit = NULL;

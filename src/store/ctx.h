@@ -15,6 +15,11 @@ struct fxl_ctx {
     int64_t user_id;
     char user_login[65];
     fxl_role user_role;
+    /* An opened signing key, only between fxl_sign_begin and fxl_sign_end
+     * (sodium_malloc'd crypto_sign_SECRETKEYBYTES, NULL otherwise). */
+    unsigned char *sign_sk;
+    int64_t sign_key_id;
+    int64_t sign_user_id;
     char origin[64];       /* client address of a served request, "" if none */
 };
 

@@ -10,6 +10,7 @@
 #include <time.h>
 #include <unistd.h>
 
+#include "fxl/auth.h"
 #include "fxl/server.h"
 #include "store/audit.h"
 #include "store/ctx.h"
@@ -208,6 +209,7 @@ void fxl_close(fxl_ctx *ctx)
 {
     if (!ctx)
         return;
+    fxl_sign_end(ctx);
     sqlite3_close_v2(ctx->db);
     free(ctx);
 }
@@ -290,7 +292,7 @@ int fxl_require_role(fxl_ctx *ctx, unsigned roles_mask, const char *action)
     int i;
 
     if (!ctx->user_id)
-        return fxl_fail(ctx, FXL_EPERM, "%s needs a user (give --user or set FXLEDGER_USER)", action);
+        return fxl_fail(ctx, FXL_EPERM, "%s needs a logged-in user (fxledger login)", action);
     if (ctx->user_role & roles_mask)
         return 0;
     for (i = 0; i < 4; i++) {

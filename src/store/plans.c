@@ -12,6 +12,7 @@
 #include "fxl/beam_model.h"
 #include "fxl/plans.h"
 #include "store/audit.h"
+#include "store/auth_int.h"
 #include "store/grow.h"
 #include "store/json_put.h"
 #include "store/lookup.h"
@@ -446,6 +447,8 @@ int fxl_plan_import(fxl_ctx *ctx, int64_t *out_id, const fxl_plan_spec *spec)
     memset(&ev, 0, sizeof ev);
     if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "importing a plan")) != 0)
         return rc;
+    if ((rc = fxl_sign_require(ctx, "importing a plan")) != 0)
+        return rc;
     if ((rc = check_spec(ctx, spec)) != 0)
         return rc;
     if ((rc = fxl_model_crosscheck_level(ctx, &level_pct)) != 0)
@@ -572,6 +575,8 @@ int fxl_plan_import(fxl_ctx *ctx, int64_t *out_id, const fxl_plan_spec *spec)
                 goto cleanup;
         }
     }
+    if ((rc = fxl_signature_add(ctx, "plans", plan_id, replaced_id ? "plan replaced" : "plan imported")) != 0)
+        goto cleanup;
     if ((rc = fxl_commit(ctx)) != 0)
         goto cleanup;
     if (out_id)

@@ -57,6 +57,38 @@ cleanup:
     return rc;
 }
 
+int fxl_rq_patient_signatures_each(fxl_ctx *ctx, int64_t patient_id, fxl_rq_signature_cb cb,
+                                   void *arg)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    fxl_rq_signature g;
+    int rc;
+
+    rc = fxl_stmt_prepare(&s, ctx,
+        "SELECT 'review item #' || e.item_id, g.login, g.printed_name, g.signed_at, g.meaning, g.id "
+        "FROM signatures g JOIN review_events e ON g.entity = 'review_events' AND e.id = g.entity_id "
+        "JOIN review_items i ON i.id = e.item_id WHERE i.patient_id = :patient "
+        "UNION ALL "
+        "SELECT 'plan ' || p.label, g.login, g.printed_name, g.signed_at, g.meaning, g.id "
+        "FROM signatures g JOIN plans p ON g.entity = 'plans' AND p.id = g.entity_id "
+        "WHERE p.patient_id = :patient ORDER BY 4, 6");
+    if (rc != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":patient", patient_id);
+    while ((rc = fxl_stmt_step(&s)) == 1) {
+        g.subject = fxl_stmt_text(&s, 0);
+        g.login = fxl_stmt_text(&s, 1);
+        g.printed_name = fxl_stmt_text(&s, 2);
+        g.signed_at = fxl_stmt_text(&s, 3);
+        g.meaning = fxl_stmt_text(&s, 4);
+        if ((rc = cb(arg, &g)) != 0)
+            goto cleanup;
+    }
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc < 0 ? rc : 0;
+}
+
 int fxl_rq_plans_each(fxl_ctx *ctx, int64_t patient_id, const char *label,
                       fxl_rq_plan_cb cb, void *arg)
 {

@@ -36,6 +36,22 @@ typedef int (*fxl_rq_patient_cb)(void *arg, const fxl_rq_patient *p);
  * message) when there is none. */
 int fxl_rq_patient_get(fxl_ctx *ctx, const char *mrn, fxl_rq_patient_cb cb, void *arg);
 
+/* One electronic signature on something of the patient: a close or reopen
+ * of one of their review items, or the import of one of their plans. */
+typedef struct fxl_rq_signature {
+    const char *subject;             /* "review item #12" or "plan PL-1" */
+    const char *login;
+    const char *printed_name;
+    const char *signed_at;           /* UTC */
+    const char *meaning;
+} fxl_rq_signature;
+
+typedef int (*fxl_rq_signature_cb)(void *arg, const fxl_rq_signature *g);
+
+/* Calls cb for every such signature of the patient, oldest first. */
+int fxl_rq_patient_signatures_each(fxl_ctx *ctx, int64_t patient_id, fxl_rq_signature_cb cb,
+                                   void *arg);
+
 typedef struct fxl_rq_plan {
     int64_t id;
     const char *label;

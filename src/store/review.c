@@ -15,6 +15,7 @@
 #include "fxl/review.h"
 #include "fxl/rules.h"
 #include "store/audit.h"
+#include "store/auth_int.h"
 #include "store/grow.h"
 #include "store/json_put.h"
 #include "store/review_store.h"
@@ -831,16 +832,17 @@ typedef struct event_rule {
     const char *action;         /* for the permission message */
     int comment_required;
     const char *to_status;      /* NULL: unchanged */
+    int signed_act;             /* an electronic signature is required */
 } event_rule;
 
 static const event_rule EV_ACK = {"acknowledge", FXL_ROLES_CLINICAL, "acknowledging a review item",
-                                  0, "acknowledged"};
+                                  0, "acknowledged", 0};
 static const event_rule EV_COMMENT = {"comment", FXL_ROLES_CLINICAL, "commenting on a review item",
-                                      1, NULL};
+                                      1, NULL, 0};
 static const event_rule EV_CLOSE = {"close", FXL_ROLES_PHYSICS, "closing a review item", 0,
-                                    "closed"};
+                                    "closed", 1};
 static const event_rule EV_REOPEN = {"reopen", FXL_ROLES_PHYSICS, "reopening a review item", 1,
-                                     "open"};
+                                     "open", 1};
 
 /* Refuses a transition that makes no sense from `status`. */
 static int check_transition(fxl_ctx *ctx, const event_rule *r, int64_t id, const char *status)
@@ -893,6 +895,9 @@ static int add_event(fxl_ctx *ctx, const event_rule *r, int64_t id, const char *
             return fxl_fail(ctx, FXL_EINVAL, "disposition '%s' is not in the list: %s",
                             disposition ? disposition : "", accepted);
     }
+    /* Closing and reopening are decisions: signed by the one who makes them. */
+    if (r->signed_act && (rc = fxl_sign_require(ctx, r->action)) != 0)
+        return rc;
 
     if ((rc = fxl_begin(ctx)) != 0)
         return rc;
@@ -933,6 +938,15 @@ static int add_event(fxl_ctx *ctx, const event_rule *r, int64_t id, const char *
     cJSON_AddStringToObject(audit, "status_after", r->to_status ? r->to_status : status);
     if ((rc = fxl_audit_append(ctx, r->kind, "review_events", event_id, audit)) != 0)
         goto cleanup;
+    if (r->signed_act) {
+        char meaning[FXL_DISPOSITION_MAX + 32];
+        if (disp)
+            snprintf(meaning, sizeof meaning, "review closed: %s", disp);
+        else
+            snprintf(meaning, sizeof meaning, "review reopened");
+        if ((rc = fxl_signature_add(ctx, "review_events", event_id, meaning)) != 0)
+            goto cleanup;
+    }
     rc = fxl_commit(ctx);
 cleanup:
     if (rc != 0)

@@ -38,6 +38,16 @@ static const setting_rule rules[] = {
       "0 to 1000 characters", ""}, KIND_TEXT, 0, 1000},
     {{"alert_timeout_s", "seconds the alert command may run before it is stopped",
       "1 to 300 s", "10"}, KIND_INT, 1, 300},
+    {{"auth_failure_window_minutes", "failed logins counted over this many minutes",
+      "1 to 1440 min", "15"}, KIND_INT, 1, 1440},
+    {{"auth_idle_minutes", "a session ends after this many minutes without use",
+      "1 to 240 min", "15"}, KIND_INT, 1, 240},
+    {{"auth_lock_minutes", "how long a lock lasts unless an admin unlocks the account",
+      "1 to 10080 min", "30"}, KIND_INT, 1, 10080},
+    {{"auth_max_failures", "failed logins inside the window that lock the account",
+      "3 to 20", "5"}, KIND_INT, 3, 20},
+    {{"auth_session_hours", "a session ends at the latest this many hours after login",
+      "1 to 24 h", "12"}, KIND_INT, 1, 24},
     {{"calibration_change_limit_pct", "largest change of N against the previous calibration of "
       "the same detector, beam and point accepted without a physicist's confirmation",
       "0.1 to 50 %", STR(FXL_CALIB_CHANGE_LIMIT_PCT_DEFAULT)}, KIND_NUMBER, 0.1, 50},
@@ -132,7 +142,7 @@ int fxl_setting_validate(fxl_ctx *ctx, const char *key, const char *value)
     size_t len;
 
     if (!r) {
-        char known[512] = "";
+        char known[1024] = "";
         size_t i;
         for (i = 0; i < N_RULES; i++) {
             if (i)

@@ -9,6 +9,7 @@
 #include "fxl/scope.h"
 #include "fxl/thresholds.h"
 #include "store/audit.h"
+#include "store/auth_int.h"
 #include "store/grow.h"
 #include "store/json_put.h"
 #include "store/stmt.h"
@@ -366,6 +367,8 @@ int fxl_thresholds_save(fxl_ctx *ctx, fxl_threshold_set *out, const fxl_threshol
 
     if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "setting tolerance and action levels")) != 0)
         return rc;
+    if ((rc = fxl_sign_require(ctx, "putting levels in force")) != 0)
+        return rc;
     if ((rc = fxl_begin(ctx)) != 0)
         return rc;
     if ((rc = load_rows(ctx, &rows, &n, NULL, 0)) != 0)
@@ -422,6 +425,9 @@ int fxl_thresholds_save(fxl_ctx *ctx, fxl_threshold_set *out, const fxl_threshol
     row.id = sqlite3_last_insert_rowid(ctx->db);
     audit = set_to_audit(&row);
     if ((rc = fxl_audit_append(ctx, row.active ? "set" : "deactivate", "threshold_sets", row.id, audit)) != 0)
+        goto cleanup;
+    if ((rc = fxl_signature_add(ctx, "threshold_sets", row.id,
+                                row.active ? "levels in force" : "levels withdrawn")) != 0)
         goto cleanup;
     if ((rc = fxl_commit(ctx)) != 0)
         goto cleanup;

@@ -7,8 +7,10 @@
 #include "fxl/settings.h"
 #include "fxl/users.h"
 #include "store/audit.h"
+#include "store/auth_int.h"
 #include "store/grow.h"
 #include "store/stmt.h"
+#include "store/users_int.h"
 
 /* Defaults written at init; docs/settings.md explains each. */
 static const char *const default_settings[][2] = {
@@ -38,6 +40,14 @@ static int login_valid(const char *login);
 
 int fxl_init_department(fxl_ctx *ctx, const char *department, const char *timezone,
                         const char *admin_login, const char *admin_full_name)
+{
+    return fxl_init_department_hook(ctx, department, timezone, admin_login, admin_full_name,
+                                    NULL, NULL);
+}
+
+int fxl_init_department_hook(fxl_ctx *ctx, const char *department, const char *timezone,
+                             const char *admin_login, const char *admin_full_name,
+                             fxl_user_hook hook, void *arg)
 {
     fxl_stmt s = FXL_STMT_INIT;
     cJSON *settings = cJSON_CreateObject(), *user = cJSON_CreateObject();
@@ -86,6 +96,8 @@ int fxl_init_department(fxl_ctx *ctx, const char *department, const char *timezo
     if ((rc = fxl_audit_append(ctx, "init", "settings", 0, settings)) != 0 ||
         (rc = fxl_audit_append(ctx, "create", "users", ctx->user_id, user)) != 0)
         goto cleanup;
+    if (hook && (rc = hook(ctx, ctx->user_id, arg)) != 0)
+        goto cleanup;
     rc = fxl_commit(ctx);
 cleanup:
     if (rc != 0 && began)
@@ -133,6 +145,12 @@ static int user_exists(fxl_ctx *ctx, const char *login, int *exists)
 int fxl_user_add(fxl_ctx *ctx, int64_t *out_id, const char *login, const char *full_name,
                  fxl_role role)
 {
+    return fxl_user_add_hook(ctx, out_id, login, full_name, role, NULL, NULL);
+}
+
+int fxl_user_add_hook(fxl_ctx *ctx, int64_t *out_id, const char *login, const char *full_name,
+                      fxl_role role, fxl_user_hook hook, void *arg)
+{
     fxl_stmt s = FXL_STMT_INIT;
     cJSON *audit = NULL;
     char now[FXL_TIME_LEN];
@@ -175,6 +193,8 @@ int fxl_user_add(fxl_ctx *ctx, int64_t *out_id, const char *login, const char *f
     cJSON_AddStringToObject(audit, "full_name", full_name);
     cJSON_AddStringToObject(audit, "role", fxl_role_name(role));
     if ((rc = fxl_audit_append(ctx, "create", "users", id, audit)) != 0)
+        goto cleanup;
+    if (hook && (rc = hook(ctx, id, arg)) != 0)
         goto cleanup;
     rc = fxl_commit(ctx);
     if (rc == 0 && out_id)
@@ -234,6 +254,8 @@ int fxl_user_deactivate(fxl_ctx *ctx, const char *login)
 
     if ((rc = fxl_require_role(ctx, FXL_ROLE_ADMIN, "deactivating a user")) != 0)
         return rc;
+    if ((rc = fxl_sign_require(ctx, "deactivating a user")) != 0)
+        return rc;
     if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT id, role, active FROM users WHERE login = :login")) != 0)
         goto cleanup;
     fxl_stmt_bind_text(&s, ":login", login);
@@ -285,6 +307,8 @@ int fxl_user_deactivate(fxl_ctx *ctx, const char *login)
     cJSON_AddStringToObject(audit, "login", login);
     cJSON_AddBoolToObject(audit, "active", 0);
     if ((rc = fxl_audit_append(ctx, "deactivate", "users", id, audit)) != 0)
+        goto cleanup;
+    if ((rc = fxl_signature_add(ctx, "users", id, "user deactivated")) != 0)
         goto cleanup;
     rc = fxl_commit(ctx);
 cleanup:

@@ -86,17 +86,15 @@ def build_department(fx, patients):
 
 
 def env_for(fx, user):
-    e = dict(os.environ)
-    e.pop("FXLEDGER_DB", None)
-    e["FXLEDGER_NOW"] = fx.now
-    e["FXLEDGER_USER"] = user
-    e["NO_COLOR"] = "1"
-    return e
+    """The environment of `user`, logged in (their session, fxlcli.py)."""
+    fx.ensure_session(user)
+    return fx.env(user)
 
 
 def popen(fx, args, user):
     """Starts fxledger on fx's database without waiting."""
-    return subprocess.Popen([BIN, "--db", fx.db] + [str(a) for a in args], env=env_for(fx, user),
+    env = env_for(fx, user)
+    return subprocess.Popen(fx.argv(*args, user=user), env=env,
                             stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
                             stderr=subprocess.PIPE, text=True)
 

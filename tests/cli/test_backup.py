@@ -21,12 +21,18 @@ class BackupTest(ReviewCase):
     def test_backup_copy_verifies(self):
         self.record("P-1", "2026-11-02T08:00:00Z", ("AP", 6.0), ("PA", 0.0))
         copy = self.fx.path("copy.db")
+        # Logged in before the copy: their logins are audit rows, and the copy
+        # holds their own passwords, not the one-time ones (fxlcli.py).
+        self.fx.ensure_session("phys")
+        self.fx.ensure_session("aud")
         audit_before = self.count(self.fx.db, "audit_log")
         out = self.fx.json("backup", copy, user="phys")
         self.assertEqual(out["file"], copy)
         self.assertTrue(out["quick_check_ok"])
         self.assertEqual(out["audit_rows"], audit_before)
         self.assertEqual(oct(os.stat(copy).st_mode & 0o777), "0o600")
+        copied_audit_rows = self.count(copy, "audit_log")
+        # No session on the copy: the password authenticates (an audit row in the copy).
         v = self.fx.run("--db", copy, "--json", "verify", user="aud")
         self.assertEqual(v.returncode, 0, v.stderr)
         self.assertTrue(json.loads(v.stdout)["ok"])
@@ -38,7 +44,7 @@ class BackupTest(ReviewCase):
         con.close()
         self.assertEqual(row[:3], ("phys", "backup", "database"))
         self.assertEqual(json.loads(row[3])["file"], copy)
-        self.assertEqual(self.count(copy, "audit_log"), audit_before)
+        self.assertEqual(copied_audit_rows, audit_before)
         self.assertTrue(self.fx.json("verify")["ok"])
 
     def test_refuses_existing_file_and_other_roles(self):
@@ -79,6 +85,8 @@ class BackupTest(ReviewCase):
                 if r.returncode not in (0, 10, 11, 12):
                     errors.append(r.stderr)
 
+        self.fx.ensure_session("phys", "2026-12-01T09:00:00Z")
+        self.fx.ensure_session("aud")
         t = threading.Thread(target=writer)
         t.start()
         copies = []

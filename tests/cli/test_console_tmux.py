@@ -52,8 +52,10 @@ class ConsoleTmuxTest(RecordTestCase):
 
     def start(self, args, now):
         """Runs fxledger in a detached tmux session of WIDTH columns."""
-        env = "FXLEDGER_NOW=%s FXLEDGER_USER=tina NO_COLOR=1" % now
-        cmd = "env -u FXLEDGER_DB %s %s --db %s %s; echo EXIT=$?; sleep 600" % (
+        self.fx.ensure_session("tina", now)       # tina's session (fxlcli.py)
+        env = "FXLEDGER_NOW=%s XDG_STATE_HOME=%s NO_COLOR=1" % (
+            now, shlex.quote(self.fx.state_dir("tina")))
+        cmd = "env -u FXLEDGER_DB -u FXLEDGER_USER %s %s --db %s --user tina %s; echo EXIT=$?; sleep 600" % (
             env, shlex.quote(self.fx.bin), shlex.quote(self.fx.db), " ".join(shlex.quote(a) for a in args))
         subprocess.run([TMUX, "new-session", "-d", "-s", self.session, "-x", str(WIDTH), "-y", "60",
                         cmd], check=True)

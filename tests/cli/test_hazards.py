@@ -79,9 +79,9 @@ class HazardTest(RecordTestCase):
     def test_plan_replaced_while_logging_interactively(self):
         """The interactive session shows plan REC-1; a plan change imported
         while the therapist types is not silently logged on the old plan."""
-        env = dict(os.environ, FXLEDGER_NOW="2026-11-02T11:00:00Z", FXLEDGER_USER="tina", NO_COLOR="1")
-        env.pop("FXLEDGER_DB", None)
-        p = subprocess.Popen([BIN, "--db", self.fx.db, "record", "--patient", MRN, "--interactive"],
+        self.fx.ensure_session("tina", "2026-11-02T11:00:00Z")
+        env = self.fx.env("tina", "2026-11-02T11:00:00Z")
+        p = subprocess.Popen(self.fx.argv("record", "--patient", MRN, "--interactive", user="tina"),
                              stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=env)
         seen = b""
         deadline = time.monotonic() + 20
@@ -211,9 +211,10 @@ class HazardTest(RecordTestCase):
         """A listing whose output is lost (a full disk) does not end with
         success."""
         with open("/dev/full", "w") as full:
-            r = subprocess.run([BIN, "--db", self.fx.db, "patient", "list"], stdout=full,
+            self.fx.ensure_session("admin")
+            r = subprocess.run(self.fx.argv("patient", "list", user="admin"), stdout=full,
                                stderr=subprocess.PIPE, text=True, timeout=30,
-                               env=dict(os.environ, FXLEDGER_USER="admin", FXLEDGER_NOW=self.fx.now))
+                               env=self.fx.env("admin"))
         self.assertNotEqual(r.returncode, 0)
         self.assertIn("could not write output", r.stderr)
 

@@ -48,7 +48,18 @@ class InitTest(FxlTestCase):
         self.assertIn("newer", r.stderr)
 
     def test_unknown_user_refused(self):
-        self.assertFailsUnchanged("verify", user="nobody", expect_in="unknown user 'nobody'")
+        # No such account: refused with the same message as a wrong password
+        # (no user enumeration), and the attempt is an audit row.
+        r = self.fx.run("verify", user="nobody", password="an invented guess")
+        self.assertEqual(r.returncode, 4, r.stderr)
+        self.assertIn("login failed: unknown login or wrong password", r.stderr)
+        con = sqlite3.connect(self.fx.db)
+        n = con.execute("SELECT count(*) FROM audit_log WHERE action = 'login_failed' "
+                        "AND json_extract(content, '$.login') = 'nobody'").fetchone()[0]
+        con.close()
+        self.assertEqual(n, 1)
+        # With no password at all nothing is tried and nothing written.
+        self.assertFailsUnchanged("verify", user="nobody", password=False, expect_code=4)
 
     def test_unknown_command_is_usage_error(self):
         r = self.fx.run("frobnicate")

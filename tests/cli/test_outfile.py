@@ -90,10 +90,8 @@ class OutfileTest(FxlTestCase):
         link = self.fx.path("new.db")
         os.symlink(self.fx.path("elsewhere.db"), link)
         # the harness names its own database, so call the program directly
-        env = dict(os.environ, FXLEDGER_USER="admin", NO_COLOR="1")
-        r = subprocess.run([self.fx.bin, "--db", link, "init", "--department", "Invented",
-                            "--admin-name", "Invented Admin"], capture_output=True, text=True,
-                           env=env, timeout=60)
+        r = self.fx.run("--db", link, "init", "--department", "Invented", "--admin", "admin",
+                        "--admin-name", "Invented Admin")
         self.assertEqual(r.returncode, 2, r.stderr)
         self.assertIn("symbolic link", r.stderr)
         self.assertFalse(os.path.exists(self.fx.path("elsewhere.db")))

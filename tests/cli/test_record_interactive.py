@@ -26,6 +26,7 @@ CONTINUE = "continue treatment as planned"
 class RecordInteractiveTest(RecordTestCase):
     def interactive(self, lines, *args, now=None, patient=True, **kw):
         stdin = "\n".join(lines) + "\n"
+        self.fx.ensure_session(kw.get("user", "tina"), now)   # logged in before any digest
         if patient:
             return self.record("--interactive", *args, stdin=stdin, now=now, **kw)
         return self.fx.run("record", "--interactive", *args, stdin=stdin, now=now,
@@ -114,10 +115,10 @@ class RecordInteractiveTest(RecordTestCase):
     def test_kill_mid_fraction_loses_nothing_entered(self):
         """The session is killed (SIGKILL, no chance to clean up) while the
         second field is asked: the first field is in the database."""
-        env = dict(os.environ, FXLEDGER_NOW=self.fx.now, FXLEDGER_USER="tina", NO_COLOR="1")
-        env.pop("FXLEDGER_DB", None)
-        p = subprocess.Popen([self.fx.bin, "--db", self.fx.db, "record", "--patient", MRN,
-                              "--interactive"], stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+        self.fx.ensure_session("tina")
+        env = self.fx.env("tina")
+        p = subprocess.Popen(self.fx.argv("record", "--patient", MRN, "--interactive", user="tina"),
+                             stdin=subprocess.PIPE, stdout=subprocess.PIPE,
                              stderr=subprocess.PIPE, env=env)
         p.stdin.write(b"D-1001\n20.0\n20\n\n")
         p.stdin.flush()

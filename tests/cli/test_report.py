@@ -170,6 +170,7 @@ class ReportTestCase(FxlTestCase):
     GEN = "2026-11-02T09:00:00Z"
 
     def report(self, *args, expect_ok=True):
+        self.fx.ensure_session()         # a login is an audit row: before the digest
         before = self.fx.digest()
         r = self.fx.run("report", *args, "--generated-at", self.GEN)
         if expect_ok:
@@ -327,11 +328,8 @@ class PatientReportTest(ReportTestCase):
         self.assertFalse(os.path.exists(missing))
 
     def test_any_role_may_report(self):
-        con = sqlite3.connect(self.fx.db)
-        con.execute("INSERT INTO users (login, full_name, role, created_at) VALUES "
-                    "('aud', 'Invented Auditor', 'auditor', '2026-01-01T00:00:00Z')")
-        con.commit()
-        con.close()
+        self.fx.ok("user", "add", "aud", "--name", "Invented Auditor", "--role", "auditor")
+        self.fx.ensure_session("aud")
         before = self.fx.digest()
         r = self.fx.run("report", "patient", "MRN-1001", "--out", self.out, user="aud")
         self.assertEqual(r.returncode, 0, r.stderr)
@@ -603,8 +601,9 @@ class EndToEndTest(record_fixture.RecordTestCase, ReportTestCase):
 
 class MemoryTest(ReportTestCase):
     def peak_kib(self, *args):
-        e = dict(os.environ, FXLEDGER_USER="admin", NO_COLOR="1")
-        p = subprocess.Popen([BIN, "--db", self.fx.db] + list(args), env=e,
+        self.fx.ensure_session("admin")
+        e = self.fx.env("admin")
+        p = subprocess.Popen(self.fx.argv(*args, user="admin"), env=e,
                              stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
         _, status, usage = os.wait4(p.pid, 0)
         p.returncode = os.waitstatus_to_exitcode(status)

@@ -59,6 +59,7 @@ class StatsTest(FxlTestCase):
         self.pelvis = PELVIS + [0.5]
 
     def stats(self, *args, user="qa"):
+        self.fx.ensure_session(user)     # a login is an audit row: before the digest
         before = self.fx.digest()
         out = self.fx.json("stats", *args, user=user)
         self.assertEqual(self.fx.digest(), before, "stats changed the database")

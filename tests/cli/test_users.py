@@ -33,7 +33,10 @@ class UserTest(FxlTestCase):
         self.fx.ok("user", "deactivate", "tina")
         users = {u["login"]: u for u in self.fx.json("user", "list")}
         self.assertFalse(users["tina"]["active"])
-        self.assertFailsUnchanged("user", "list", user="tina", expect_in="deactivated")
+        # Refused (exit 4); the attempt itself is an audit row (docs/security.md).
+        r = self.fx.run("user", "list", user="tina")
+        self.assertEqual(r.returncode, 4, r.stderr)
+        self.assertIn("deactivated", r.stderr)
         self.assertFailsUnchanged("user", "deactivate", "tina", expect_in="already deactivated")
         con = sqlite3.connect(self.fx.db)
         n = con.execute("SELECT count(*) FROM audit_log WHERE action = 'deactivate'").fetchone()[0]

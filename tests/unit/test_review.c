@@ -22,6 +22,7 @@
 #include "fxl/rules.h"
 #include "fxl/users.h"
 #include "store/ctx.h"
+#include "sign_helper.h"
 #include "store/review_store.h"
 #include "store/rules_hook.h"
 
@@ -111,7 +112,8 @@ static int setup(void **state)
     snprintf(f->path, sizeof f->path, "%s/t.db", f->dir);
     setenv("FXLEDGER_NOW", "2026-11-02T09:00:00Z", 1);
     if (fxl_open(&f->ctx, f->path, FXL_OPEN_CREATE) != 0 ||
-        fxl_init_department(f->ctx, "Invented Department", "UTC", "admin", "A. Admin") != 0)
+        fxl_init_department(f->ctx, "Invented Department", "UTC", "admin", "A. Admin") != 0 ||
+        test_sign_as(f->ctx, "admin") != 0)
         return -1;
     if (sqlite3_exec(f->ctx->db, FIXTURE_SQL, NULL, NULL, &err) != SQLITE_OK) {
         fprintf(stderr, "fixture: %s\n", err);
@@ -127,6 +129,7 @@ static int teardown(void **state)
     fixture *f = *state;
     char cmd[160];
 
+    test_sign_forget(f->ctx);
     fxl_close(f->ctx);
     snprintf(cmd, sizeof cmd, "rm -rf %s", f->dir);
     if (system(cmd) != 0)
@@ -137,7 +140,7 @@ static int teardown(void **state)
 
 static void as(fixture *f, const char *login)
 {
-    assert_int_equal(fxl_set_user(f->ctx, login), 0);
+    assert_int_equal(test_sign_as(f->ctx, login), 0);
 }
 
 /* Logs fraction `number` of plan `plan` at `at` (id = plan * 100 + number)

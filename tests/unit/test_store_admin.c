@@ -22,6 +22,7 @@
 #include "fxl/settings.h"
 #include "fxl/users.h"
 #include "store/ctx.h"
+#include "sign_helper.h"
 
 static void assert_near_at(double got, double want, double eps, const char *expr,
                            const char *file, int line)
@@ -58,6 +59,7 @@ static int setup(void **state)
     setenv("FXLEDGER_NOW", "2026-11-02T09:00:00Z", 1);
     assert_int_equal(fxl_open(&f->ctx, f->path, FXL_OPEN_CREATE), 0);
     assert_int_equal(fxl_init_department(f->ctx, "Invented", "UTC", "admin", "Test Admin"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "admin"), 0);
     *state = f;
     return 0;
 }
@@ -67,6 +69,7 @@ static int teardown(void **state)
     fixture *f = *state;
     char cmd[128];
 
+    test_sign_forget(f->ctx);
     fxl_close(f->ctx);
     snprintf(cmd, sizeof cmd, "rm -rf '%s'", f->dir);
     if (system(cmd) != 0)
@@ -105,7 +108,7 @@ static void add_basics(fixture *f)
     assert_int_equal(fxl_user_add(f->ctx, NULL, "phil", "Phil Physicist", FXL_ROLE_PHYSICIST), 0);
     assert_int_equal(fxl_user_add(f->ctx, NULL, "tina", "Tina Therapist", FXL_ROLE_THERAPIST), 0);
     assert_int_equal(fxl_user_add(f->ctx, NULL, "otto", "Otto Auditor", FXL_ROLE_AUDITOR), 0);
-    assert_int_equal(fxl_set_user(f->ctx, "phil"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "phil"), 0);
     assert_int_equal(fxl_machine_add(f->ctx, NULL, "LINAC-A", 100), 0);
     assert_int_equal(fxl_beam_add(f->ctx, NULL, &b), 0);
 }
@@ -164,10 +167,10 @@ static void test_store_admin_user_add_list_deactivate(void **state)
     assert_int_equal(count(f, "SELECT active FROM users WHERE login = 'phil'"), 0);
     assert_int_equal(fxl_user_deactivate(f->ctx, "phil"), FXL_ECONFLICT);
     /* a deactivated user can no longer act */
-    assert_int_equal(fxl_set_user(f->ctx, "phil"), FXL_EPERM);
-    assert_int_equal(fxl_set_user(f->ctx, "admin"), 0);
-    /* audit: init (2 rows) + create + deactivate */
-    assert_int_equal(count(f, "SELECT count(*) FROM audit_log"), 4);
+    assert_int_equal(test_sign_as(f->ctx, "phil"), FXL_EPERM);
+    assert_int_equal(test_sign_as(f->ctx, "admin"), 0);
+    /* audit: init (2 rows) + create + deactivate + its signature */
+    assert_int_equal(count(f, "SELECT count(*) FROM audit_log"), 5);
     assert_int_equal(count(f, "SELECT count(*) FROM audit_log WHERE action = 'deactivate' "
                               "AND content LIKE '%\"login\":\"phil\"%'"), 1);
 }
@@ -183,7 +186,7 @@ static void test_store_admin_user_refusals(void **state)
     assert_int_equal(fxl_user_deactivate(f->ctx, "admin"), FXL_EINVAL);
     assert_int_equal(fxl_user_deactivate(f->ctx, "nobody"), FXL_ENOTFOUND);
     assert_int_equal(fxl_user_add(f->ctx, NULL, "phil", "Phil Physicist", FXL_ROLE_PHYSICIST), 0);
-    assert_int_equal(fxl_set_user(f->ctx, "phil"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "phil"), 0);
     assert_int_equal(fxl_user_add(f->ctx, NULL, "tina", "Tina", FXL_ROLE_THERAPIST), FXL_EPERM);
     assert_int_equal(fxl_user_deactivate(f->ctx, "admin"), FXL_EPERM);
     assert_int_equal(count(f, "SELECT count(*) FROM users"), 2);
@@ -238,7 +241,7 @@ static void test_store_admin_setting_ranges(void **state)
     assert_int_equal(fxl_setting_get_int(f->ctx, &v, "calibration_interval_days", 90), 0);
     assert_int_equal(v, 90);
     assert_int_equal(fxl_user_add(f->ctx, NULL, "tina", "Tina", FXL_ROLE_THERAPIST), 0);
-    assert_int_equal(fxl_set_user(f->ctx, "tina"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "tina"), 0);
     assert_int_equal(fxl_setting_change(f->ctx, "skin_temp_c", "30"), FXL_EPERM);
 }
 
@@ -276,7 +279,7 @@ static void test_store_admin_machine_and_beams(void **state)
     assert_int_equal(fxl_beam_find(f->ctx, &id, "LINAC-A", "9E"), 0);
     assert_int_equal(fxl_beam_find(f->ctx, &id, "LINAC-A", "18X"), FXL_ENOTFOUND);
 
-    assert_int_equal(fxl_set_user(f->ctx, "tina"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "tina"), 0);
     assert_int_equal(fxl_machine_add(f->ctx, NULL, "LINAC-C", 100), FXL_EPERM);
     assert_int_equal(count(f, "SELECT count(*) FROM machines"), 1);
     assert_int_equal(count(f, "SELECT count(*) FROM beams"), 2);
@@ -313,9 +316,9 @@ static void test_store_admin_detector_add_and_refusals(void **state)
     assert_int_equal(fxl_detector_add(f->ctx, NULL, &d), FXL_EINVAL);
 
     d = diode("D-1003");
-    assert_int_equal(fxl_set_user(f->ctx, "tina"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "tina"), 0);
     assert_int_equal(fxl_detector_add(f->ctx, NULL, &d), FXL_EPERM);
-    assert_int_equal(fxl_set_user(f->ctx, "otto"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "otto"), 0);
     assert_int_equal(fxl_detector_add(f->ctx, NULL, &d), FXL_EPERM);
     assert_int_equal(count(f, "SELECT count(*) FROM detectors"), 1);
 }
@@ -474,9 +477,9 @@ static void test_store_admin_calib_refusals(void **state)
     c.temp_c = 50;
     assert_int_equal(fxl_calib_add(f->ctx, NULL, &c), FXL_EINVAL);
     c = calib("D-1001", r, 3);
-    assert_int_equal(fxl_set_user(f->ctx, "tina"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "tina"), 0);
     assert_int_equal(fxl_calib_add(f->ctx, NULL, &c), FXL_EPERM);
-    assert_int_equal(fxl_set_user(f->ctx, "phil"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "phil"), 0);
     assert_int_equal(fxl_detector_set_status(f->ctx, "D-1001", "retired", "worn out", NULL), 0);
     assert_int_equal(fxl_calib_add(f->ctx, NULL, &c), FXL_EINVAL);
     assert_msg(f->ctx, "retired");
@@ -626,9 +629,9 @@ static void test_store_admin_corrections_store_and_list(void **state)
     assert_int_equal(parse_text(f, &file, GOOD_FILE), 0);
 
     /* refused for a therapist, nothing written */
-    assert_int_equal(fxl_set_user(f->ctx, "tina"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "tina"), 0);
     assert_int_equal(fxl_corr_store(f->ctx, &ids, &file), FXL_EPERM);
-    assert_int_equal(fxl_set_user(f->ctx, "phil"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "phil"), 0);
     /* an unknown beam in the second table: nothing of the first is written */
     snprintf(file.tables[1].beam, sizeof file.tables[1].beam, "18X");
     assert_int_equal(fxl_corr_store(f->ctx, &ids, &file), FXL_ENOTFOUND);

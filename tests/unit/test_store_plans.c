@@ -21,6 +21,7 @@
 #include "fxl/thresholds.h"
 #include "fxl/users.h"
 #include "store/ctx.h"
+#include "sign_helper.h"
 
 typedef struct fixture {
     char dir[64];
@@ -61,7 +62,8 @@ static int setup(void **state)
     snprintf(f->path, sizeof f->path, "%s/test.db", f->dir);
     setenv("FXLEDGER_NOW", "2026-11-02T09:00:00Z", 1);
     if (fxl_open(&f->ctx, f->path, FXL_OPEN_CREATE) != 0 ||
-        fxl_init_department(f->ctx, "Invented Department", NULL, "admin", "Test Admin") != 0)
+        fxl_init_department(f->ctx, "Invented Department", NULL, "admin", "Test Admin") != 0 ||
+        test_sign_as(f->ctx, "admin") != 0)
         return -1;
     /* Invented machine and beams, users of the other roles. */
     sql(f->ctx,
@@ -81,6 +83,7 @@ static int teardown(void **state)
     fixture *f = *state;
     char p[128];
 
+    test_sign_forget(f->ctx);
     fxl_close(f->ctx);
     snprintf(p, sizeof p, "%s-wal", f->path);
     unlink(p);
@@ -355,9 +358,9 @@ static void test_store_plans_levels_refusals(void **state)
     c.effective_from = "2026-02-30";
     assert_int_equal(fxl_thresholds_save(f->ctx, NULL, &c), FXL_EINVAL);
     c.effective_from = NULL;
-    assert_int_equal(fxl_set_user(f->ctx, "ther"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "ther"), 0);
     assert_int_equal(fxl_thresholds_save(f->ctx, NULL, &c), FXL_EPERM);
-    assert_int_equal(fxl_set_user(f->ctx, "phys"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "phys"), 0);
     assert_int_equal(fxl_thresholds_save(f->ctx, NULL, &c), 0);
     assert_int_equal(count(f->ctx, "threshold_sets"), 2);
 }
@@ -393,7 +396,7 @@ static void test_store_plans_patient_add_and_refusals(void **state)
     assert_int_equal(fxl_patient_add(f->ctx, NULL, "T-2", "Later", NULL, "2026-11-03"), FXL_EINVAL);
     assert_int_equal(fxl_patient_add(f->ctx, NULL, "", "X", NULL, NULL), FXL_EINVAL);
     assert_int_equal(fxl_patient_get(f->ctx, &p, "T-2"), FXL_ENOTFOUND);
-    assert_int_equal(fxl_set_user(f->ctx, "ther"), 0);       /* therapists may add patients */
+    assert_int_equal(test_sign_as(f->ctx, "ther"), 0);       /* therapists may add patients */
     assert_int_equal(fxl_patient_add(f->ctx, NULL, "T-3", "Invented", NULL, NULL), 0);
     assert_int_equal(count(f->ctx, "patients"), 2);
 }
@@ -461,7 +464,7 @@ static void test_store_plans_refused_import_writes_nothing(void **state)
     spec.fields[0].mu = -5;                                          /* a library caller's bad value */
     assert_int_equal(fxl_plan_import(f->ctx, NULL, &spec), FXL_EINVAL);
     spec.fields[0].mu = 130;
-    assert_int_equal(fxl_set_user(f->ctx, "ther"), 0);
+    assert_int_equal(test_sign_as(f->ctx, "ther"), 0);
     assert_int_equal(fxl_plan_import(f->ctx, NULL, &spec), FXL_EPERM);
     fxl_plan_spec_release(&spec);
 
