@@ -432,10 +432,14 @@ def console_day():
     for field, point in (("MED", "entrance"), ("LAT", "entrance")):
         answers += [str(reading_for("DEMO-1002", field, point, "PD-0101", 0.8, 32.0)), "32"]
     stdin = "\n".join(["2"] + answers) + "\n"
-    env = dict(os.environ, FXLEDGER_DB=DB, FXLEDGER_USER="rpatel", FXLEDGER_NOW=at, NO_COLOR="1")
+    # The therapist works in her login session (opened once, as at the console).
+    ensure_session("rpatel", at)
+    env = dict(os.environ, FXLEDGER_DB=DB, FXLEDGER_NOW=at, NO_COLOR="1",
+               XDG_STATE_HOME=os.path.join(OUT, "state", "rpatel"))
+    env.pop("FXLEDGER_USER", None)
     print("$ fxledger record        (line 2 of the worklist, then the readings as they come)")
-    r = subprocess.run([BIN, "record", "--interactive"], input=stdin, capture_output=True, text=True,
-                       env=env)
+    r = subprocess.run([BIN, "--user", "rpatel", "record", "--interactive"], input=stdin,
+                       capture_output=True, text=True, env=env)
     if r.returncode not in (0, 10, 11, 12):
         sys.stderr.write("demo step failed (%d): record\n%s%s" % (r.returncode, r.stdout, r.stderr))
         sys.exit(1)
