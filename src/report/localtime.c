@@ -3,82 +3,28 @@
 #include "report/localtime.h"
 
 #include <stdio.h>
-#include <stdlib.h>
 #include <string.h>
-#include <unistd.h>
 
-#include "core/civil.h"
-
-static int valid_zone_name(const char *name)
-{
-    const char *p;
-
-    if (!name || !*name || strlen(name) > 100 || name[0] == '/' || strstr(name, ".."))
-        return 0;
-    for (p = name; *p; p++)
-        if (!((*p >= 'A' && *p <= 'Z') || (*p >= 'a' && *p <= 'z') || (*p >= '0' && *p <= '9') ||
-              *p == '/' || *p == '_' || *p == '-' || *p == '+'))
-            return 0;
-    return 1;
-}
-
+/* The zone switch and the stored-time conversions are the store's
+ * (store/zone.c), shared with the console. */
 int rpt_tz_enter(rpt_tz *tz, fxl_ctx *ctx, const char *name)
 {
-    const char *dir = getenv("TZDIR"), *old = getenv("TZ");
-    char path[512];
-
-    memset(tz, 0, sizeof *tz);
-    if (!name || !*name)
-        name = "UTC";
-    if (strcmp(name, "UTC") != 0) {
-        /* glibc quietly falls back to UTC for a zone it cannot find; a report
-         * for the wrong month boundaries must not pass silently. */
-        snprintf(path, sizeof path, "%s/%s", dir && *dir ? dir : "/usr/share/zoneinfo", name);
-        if (!valid_zone_name(name) || access(path, R_OK) != 0)
-            return fxl_fail(ctx, FXL_EINVAL,
-                            "setting 'timezone' is '%s', which is not a known time zone "
-                            "(an IANA name such as 'Europe/Paris', or 'UTC')", name);
-    }
-    snprintf(tz->name, sizeof tz->name, "%s", name);
-    if (old) {
-        tz->had_saved = 1;
-        snprintf(tz->saved, sizeof tz->saved, "%s", old);
-    }
-    /* "UTC0" is the POSIX form and needs no zone file. */
-    setenv("TZ", strcmp(name, "UTC") == 0 ? "UTC0" : name, 1);
-    tzset();
-    tz->active = 1;
-    return 0;
+    return fxl_zone_enter_named(ctx, tz, name);
 }
 
 void rpt_tz_leave(rpt_tz *tz)
 {
-    if (!tz->active)
-        return;
-    if (tz->had_saved)
-        setenv("TZ", tz->saved, 1);
-    else
-        unsetenv("TZ");
-    tzset();
-    tz->active = 0;
+    fxl_zone_leave(tz);
 }
 
 int rpt_epoch_from_stored(time_t *out, const char *stored)
 {
-    int y, mo, d, h, mi, s;
-
-    if (!stored || sscanf(stored, "%4d-%2d-%2dT%2d:%2d:%2d", &y, &mo, &d, &h, &mi, &s) != 6)
-        return FXL_EINVAL;
-    *out = (time_t)fxl_days_from_civil(y, mo, d) * 86400 + h * 3600 + mi * 60 + s;
-    return 0;
+    return fxl_zone_epoch(out, stored);
 }
 
 void rpt_stored_from_epoch(char out[FXL_TIME_LEN], time_t t)
 {
-    struct tm tm;
-
-    gmtime_r(&t, &tm);
-    strftime(out, FXL_TIME_LEN, "%Y-%m-%dT%H:%M:%SZ", &tm);
+    fxl_zone_stored(out, t);
 }
 
 void rpt_local(char *out, size_t n, const char *stored, const char *fmt)

@@ -9,15 +9,11 @@
 #include <time.h>
 
 #include "fxl/fxl.h"
+#include "store/zone.h"
 
 /* While a report is drawn, TZ is set to the department's zone; the previous
  * value of TZ is put back by rpt_tz_leave. */
-typedef struct rpt_tz {
-    char name[128];
-    char saved[256];
-    int had_saved;
-    int active;
-} rpt_tz;
+typedef fxl_zone rpt_tz;
 
 /* Checks that `name` is "UTC" or a zone present in the zone database
  * (FXL_EINVAL naming it otherwise) and makes it the process's local zone. */

@@ -26,19 +26,27 @@ static int valid_zone_name(const char *name)
 
 int fxl_zone_enter(fxl_ctx *ctx, fxl_zone *z)
 {
-    const char *dir = getenv("TZDIR"), *old = getenv("TZ");
-    char name[128] = "", path[512];
+    char name[128] = "";
     int rc;
 
     memset(z, 0, sizeof *z);
     rc = fxl_setting_get(ctx, "timezone", name, sizeof name);
     if (rc != 0 && rc != FXL_ENOTFOUND)
         return rc;
-    if (!name[0])
-        snprintf(name, sizeof name, "UTC");
+    return fxl_zone_enter_named(ctx, z, name);
+}
+
+int fxl_zone_enter_named(fxl_ctx *ctx, fxl_zone *z, const char *name)
+{
+    const char *dir = getenv("TZDIR"), *old = getenv("TZ");
+    char path[512];
+
+    memset(z, 0, sizeof *z);
+    if (!name || !*name)
+        name = "UTC";
     if (strcmp(name, "UTC") != 0) {
         /* glibc falls back to UTC for a zone it cannot find: a wrong "today"
-         * must not pass silently. */
+         * or wrong month boundaries must not pass silently. */
         snprintf(path, sizeof path, "%s/%s", dir && *dir ? dir : "/usr/share/zoneinfo", name);
         if (!valid_zone_name(name) || access(path, R_OK) != 0)
             return fxl_fail(ctx, FXL_EINVAL,
@@ -50,6 +58,7 @@ int fxl_zone_enter(fxl_ctx *ctx, fxl_zone *z)
         z->had_saved = 1;
         snprintf(z->saved, sizeof z->saved, "%s", old);
     }
+    /* "UTC0" is the POSIX form and needs no zone file. */
     setenv("TZ", strcmp(name, "UTC") == 0 ? "UTC0" : name, 1);
     tzset();
     z->active = 1;

@@ -22,6 +22,8 @@ typedef struct fxl_zone {
 /* Reads setting 'timezone' and makes it the process's zone; an unknown zone
  * is FXL_EINVAL naming it. */
 int fxl_zone_enter(fxl_ctx *ctx, fxl_zone *z);
+/* The same for a zone named by the caller ("" or NULL is UTC). */
+int fxl_zone_enter_named(fxl_ctx *ctx, fxl_zone *z, const char *name);
 void fxl_zone_leave(fxl_zone *z);
 
 /* Stored UTC text to seconds since 1970 and back. */
