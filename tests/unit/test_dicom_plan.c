@@ -576,13 +576,15 @@ static void test_dicom_plan_part10_cut_anywhere_refused(void **state)
 {
     static const char *const files[] = {"three_field.explicit.dcm", "three_field.implicit.dcm",
                                         "three_field.deflated.dcm"};
-    fxl_ctx *ctx = message_ctx();
+    fxl_ctx *ctx;
     char path[2048];
     size_t f, cut, total = 0;
 
     (void)state;
+    /* skip() leaves the test at once: decide before opening anything. */
     if (getenv("FXLEDGER_DICOM_DIR"))
         skip();
+    ctx = message_ctx();
     for (f = 0; f < sizeof files / sizeof files[0]; f++) {
         FILE *fp;
         unsigned char *buf;
