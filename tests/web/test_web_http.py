@@ -325,8 +325,9 @@ class ConsoleLogin(unittest.TestCase):
 
     @classmethod
     def tearDownClass(cls):
-        cls.server.stop()
+        err = cls.server.stop()
         cls.fx.close()
+        assert "AddressSanitizer" not in err and "runtime error" not in err, err
 
     def test_lockout_and_unlock(self):
         c = Client(self.server)
