@@ -305,10 +305,39 @@ class ConsoleHttp(unittest.TestCase):
         self.assertEqual(api.get("/users", headers=auth).status, 303)      # pages need a session
         self.assertEqual(api.get("/api/v1/verify", headers=auth).status, 200)
         # revoked: refused
-        tid = re.findall(r'name="token" value="(\d+)"', a.get("/users").text)[-1]
+        tid = re.findall(r'name="token" value="(\d+)"', a.get("/users").text)[0]   # newest first
         r = a.post("/users", {"action": "token_revoke", "token": tid})
         self.assertEqual(r.status, 303)
         self.assertEqual(api.get("/api/v1/me", headers=auth).status, 401)
+
+    def test_api_records_a_fraction(self):
+        a = self.c["admin"]
+        a.get("/users")
+        r = a.post("/users", {"action": "token_issue", "login": "ther", "label": "invented console bridge"})
+        token = re.search(r"<pre>([0-9a-f]{64})</pre>", r.text).group(1)
+        api = self.anon()
+        auth = {"Authorization": "Bearer " + token}
+        before = self.fx.digest()
+        bad = api.request("POST", "/api/v1/record", headers=auth, json_body={
+            "mrn": "P-2", "readings": [{"field": "AP", "detector": "D-1", "reading": -1}]})
+        self.assertEqual(bad.status, 422, bad.text)
+        self.assertEqual(self.fx.digest(), before)
+        readings = [{"field": f, "point": "entrance", "detector": "D-1", "reading": float(reading_for(d))}
+                    for f, d in (("AP", 0.0), ("PA", 6.0), ("LAT", -3.0))]
+        r = api.request("POST", "/api/v1/record", headers=auth, json_body={"mrn": "P-2", "readings": readings})
+        self.assertEqual(r.status, 201, r.text)
+        res = r.json()["results"]
+        # D = M x N = 20 nC x 10 cGy/nC = 200 cGy (webfixture.reading_for); 6 % is
+        # outside the 5 % tolerance and inside the 8 % action level
+        self.assertEqual([x["verdict"] for x in res], ["within_tolerance", "outside_tolerance", "within_tolerance"])
+        self.assertAlmostEqual(res[0]["corrected_dose_cgy"], 200.0, places=2)
+        self.assertAlmostEqual(res[1]["deviation_pct"], 6.0, places=2)
+        self.assertIsNotNone(res[1]["review_item_id"])
+        hist = api.get("/api/v1/patient/history?mrn=P-2", headers=auth).json()
+        self.assertEqual(len(hist), 3)
+        page = self.c["ther"].get("/patient?mrn=P-2").text
+        self.assertIn("<svg", page)
+        self.assertEqual(page.count('class="verdict v-outside_tolerance"'), 1)
 
 
 class ConsoleLogin(unittest.TestCase):
