@@ -44,6 +44,7 @@ static const cli_command commands[] = {
     {"export", cmd_export, "export the measurement record as CSV or JSON", CLI_READONLY | CLI_NEEDS_USER},
     {"audit", cmd_audit, "list and show rows of the audit trail", CLI_READONLY | CLI_NEEDS_USER},
     {"backup", cmd_backup, "copy the database online to a file", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"serve", cmd_serve, "run the department's web console on the database (docs/console.md)", 0},
     {"verify", cmd_verify, "check the audit chain and the database's integrity", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"restore", cmd_restore, "restore drill: copy a backup into a new file, verify it, say what it holds", 0},
 };
