@@ -56,7 +56,7 @@ class PackageTest(unittest.TestCase):
         # From dpkg-shlibdeps: the libraries the program links (ldd of the
         # program), and the fonts named by hand.
         for lib in ("libsqlite3-0", "libsodium23", "libcjson1", "libhpdf-2.3.0", "libutf8proc2",
-                    "fonts-dejavu-core", "libc6"):
+                    "libmicrohttpd12", "fonts-dejavu-core", "libc6"):
             self.assertIn(lib, depends)
         listing = subprocess.run(["dpkg-deb", "-c", self.deb], capture_output=True, text=True,
                                  check=True).stdout
