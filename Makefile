@@ -4,6 +4,7 @@
 #   make test   build fxledger and run every test (ctest)
 #   make bench  build fxledger and run the benchmark on synthetic databases (docs/performance.md)
 #   make install  build, then install fxledger into PREFIX (default /usr/local)
+#   make package  build, then the Debian package build/fxledger_VERSION-1_ARCH.deb (CPack DEB)
 # Both first install the Debian packages the project needs when they are missing.
 # Robustness (docs/robustness.md):
 #   make sanitize   AddressSanitizer + UBSan build in build-asan, every test there
@@ -20,7 +21,7 @@ FUZZ_BUILD ?= build-fuzz
 FUZZ_SECONDS ?= 60
 FUZZ_PARSERS ?= plan_json readings_json corrections_json beam_json dicom_json dicom_part10
 
-.PHONY: all deps build test demo console clean sanitize valgrind fuzz install uninstall
+.PHONY: all deps build test demo console clean sanitize valgrind fuzz install uninstall package
 
 all: build
 
@@ -41,6 +42,11 @@ test: build
 # under $(PREFIX)/share/doc/fxledger; DESTDIR=... stages the same tree.
 install: build
 	cmake --install $(BUILD) --prefix $(PREFIX)
+
+# The Debian package (cmake/packaging.cmake, docs/deployment.md): CPack's DEB
+# generator, dependencies by dpkg-shlibdeps; the .deb lands in $(BUILD)/.
+package: build
+	cd $(BUILD) && cpack -G DEB
 
 # Removes what 'make install' put in place (the list CMake wrote).
 uninstall:

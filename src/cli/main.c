@@ -46,6 +46,7 @@ static const cli_command commands[] = {
     {"backup", cmd_backup, "copy the database online to a file", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"serve", cmd_serve, "run the department's web console on the database (docs/console.md)", 0},
     {"verify", cmd_verify, "check the audit chain and the database's integrity", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"restore", cmd_restore, "restore drill: copy a backup into a new file, verify it, say what it holds", 0},
 };
 
 /* The global options, for --help and fxledger(1). */
