@@ -51,6 +51,8 @@ class ConsoleHttp(unittest.TestCase):
         for u in ("ther", "phys", "aud"):
             r = fx.login(u)
             assert r.returncode == 0, r.stderr
+        with sqlite3.connect("file:%s?mode=ro" % fx.db, uri=True) as db:
+            cls.last_cli_row = db.execute("SELECT max(id) FROM audit_log").fetchone()[0]
         cls.server = Server(fx, ["--login-rate", "100"])
         cls.c = {}
         for u in ("ther", "phys", "aud", "admin"):
@@ -215,6 +217,15 @@ class ConsoleHttp(unittest.TestCase):
         r = self.c["phys"].get("/queue?mrn=" + q)
         self.assertIn(r.status, (400, 404, 422))
         self.assertIn("bidirectional", r.text)
+
+    def test_every_console_write_is_audited_with_the_client_address(self):
+        with sqlite3.connect("file:%s?mode=ro" % self.fx.db, uri=True) as db:
+            rows = db.execute("SELECT action, client FROM audit_log WHERE id > ?", (self.last_cli_row,)).fetchall()
+        actions = [a for a, _c in rows]
+        # the logins, the fraction begun, three readings and the close, at least
+        for a in ("login", "record", "close"):
+            self.assertIn(a, actions)
+        self.assertEqual([r for r in rows if r[1] != "127.0.0.1"], [])
 
     def test_bidi_comment_is_refused_and_writes_nothing(self):
         p = self.c["phys"]
