@@ -185,6 +185,12 @@ class BrowserScenario(unittest.TestCase):
         page = d.find_element(By.TAG_NAME, "main").text
         self.assertIn("Verified", page)
         self.assertIn("fxledger-anchor rows=", page)
+        # a tablet in portrait: the same page without sideways scrolling
+        d.set_window_size(820, 1180)
+        d.get(self.base + "/queue?status=all")
+        self.shot("10-queue-tablet")
+        self.assertLessEqual(d.execute_script("return document.documentElement.scrollWidth"),
+                             d.execute_script("return window.innerWidth") + 1)
 
 
 if __name__ == "__main__":

@@ -10,6 +10,7 @@ Data invented (webfixture.py)."""
 import os
 import re
 import sqlite3
+import subprocess
 import sys
 import unittest
 import urllib.parse
@@ -50,6 +51,8 @@ class ConsoleHttp(unittest.TestCase):
         for u in ("ther", "phys", "aud"):
             r = fx.login(u)
             assert r.returncode == 0, r.stderr
+        with sqlite3.connect("file:%s?mode=ro" % fx.db, uri=True) as db:
+            cls.last_cli_row = db.execute("SELECT max(id) FROM audit_log").fetchone()[0]
         cls.server = Server(fx, ["--login-rate", "100"])
         cls.c = {}
         for u in ("ther", "phys", "aud", "admin"):
@@ -215,6 +218,15 @@ class ConsoleHttp(unittest.TestCase):
         self.assertIn(r.status, (400, 404, 422))
         self.assertIn("bidirectional", r.text)
 
+    def test_every_console_write_is_audited_with_the_client_address(self):
+        with sqlite3.connect("file:%s?mode=ro" % self.fx.db, uri=True) as db:
+            rows = db.execute("SELECT action, client FROM audit_log WHERE id > ?", (self.last_cli_row,)).fetchall()
+        actions = [a for a, _c in rows]
+        # the logins, the fraction begun, three readings and the close, at least
+        for a in ("login", "record", "close"):
+            self.assertIn(a, actions)
+        self.assertEqual([r for r in rows if r[1] != "127.0.0.1"], [])
+
     def test_bidi_comment_is_refused_and_writes_nothing(self):
         p = self.c["phys"]
         p.get("/item?id=" + self.item)
@@ -375,6 +387,28 @@ class ConsoleHttp(unittest.TestCase):
         self.assertIn("Verified", page)
         self.assertIn("fxledger-anchor rows=", page)
 
+    def test_reports_on_request(self):
+        a = self.c["aud"]
+        before = self.fx.digest()
+        for query, name in (("kind=month&month=2026-11", "fxledger-month-2026-11.pdf"),
+                            ("kind=patient&mrn=P-1", "fxledger-patient-P-1.pdf")):
+            with self.subTest(query=query):
+                r = a.get("/report?" + query)
+                self.assertEqual(r.status, 200, r.text[:300] if r.status != 200 else "")
+                self.assertEqual(r.header("Content-Type"), "application/pdf")
+                self.assertIn(name, r.header("Content-Disposition"))
+                self.assertTrue(r.body.startswith(b"%PDF-"))
+                pdf = self.fx.path(name)
+                with open(pdf, "wb") as f:
+                    f.write(r.body)
+                # qpdf --check exits 0 for a well-formed file (qpdf manual)
+                q = subprocess.run(["qpdf", "--check", pdf], capture_output=True, text=True)
+                self.assertEqual(q.returncode, 0, q.stdout + q.stderr)
+        self.assertEqual(a.get("/report?kind=month&month=2026-13").status, 422)
+        self.assertEqual(a.get("/report?kind=patient&mrn=NOPE").status, 404)
+        self.assertEqual(self.c["ther"].get("/report?kind=month&month=2026-11").status, 403)
+        self.assertEqual(self.fx.digest(), before, "a report wrote to the database")
+
     def test_levels_saved_with_signature(self):
         p = self.c["phys"]
         p.get("/levels")
@@ -497,6 +531,39 @@ class ConsoleLogin(unittest.TestCase):
             self.assertEqual(codes, [401, 401, 401, 429])
         finally:
             s.stop()
+
+
+
+class ConsoleTls(unittest.TestCase):
+    """HTTPS with --tls-cert/--tls-key: cookies get Secure, HSTS is sent."""
+
+    def test_tls_cookies_are_secure(self):
+        fx = Fxl().init()
+        try:
+            cert, key = fx.path("cert.pem"), fx.path("key.pem")
+            # a throw-away self-signed certificate for 127.0.0.1 (openssl req(1))
+            r = subprocess.run(["openssl", "req", "-x509", "-newkey", "ec", "-pkeyopt",
+                                "ec_paramgen_curve:prime256v1", "-nodes", "-keyout", key, "-out", cert,
+                                "-days", "2", "-subj", "/CN=127.0.0.1", "-addext", "subjectAltName=IP:127.0.0.1"],
+                               capture_output=True, text=True)
+            self.assertEqual(r.returncode, 0, r.stderr)
+            s = Server(fx, ["--tls-cert", cert, "--tls-key", key])
+            try:
+                c = Client(s, tls_ca=cert)
+                page = c.get("/login")
+                self.assertIn("Secure", page.header("Set-Cookie"))
+                self.assertIn("max-age=", page.header("Strict-Transport-Security"))
+                r = c.post("/login", {"login": "admin", "password": fx.passwords["admin"]})
+                self.assertEqual(r.status, 303)
+                cookie = r.header("Set-Cookie")
+                self.assertTrue(cookie.startswith("fxl_session="), cookie)
+                for attr in ("Secure", "HttpOnly", "SameSite=Strict"):
+                    self.assertIn(attr, cookie)
+                self.assertEqual(c.get("/users").status, 200)
+            finally:
+                s.stop()
+        finally:
+            fx.close()
 
 
 if __name__ == "__main__":
