@@ -572,6 +572,15 @@ class ConsoleTls(unittest.TestCase):
                 self.assertEqual(c.get("/users").status, 200)
             finally:
                 s.stop()
+            # behind a TLS reverse proxy on the same host: plain HTTP on
+            # loopback, cookies marked Secure all the same
+            s = Server(fx, ["--behind-tls-proxy"])
+            try:
+                page = Client(s).get("/login")
+                self.assertIn("; Secure", page.header("Set-Cookie"))
+                self.assertIsNotNone(page.header("Strict-Transport-Security"))
+            finally:
+                s.stop()
         finally:
             fx.close()
 
