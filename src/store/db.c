@@ -371,8 +371,15 @@ int fxl_setting_set(fxl_ctx *ctx, const char *key, const char *value)
 
     if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "changing settings")) != 0)
         return rc;
+    /* The audit row first: the settings guard (sql/011) accepts a new value
+     * only when the newest audit row names it. */
     if ((rc = fxl_begin(ctx)) != 0)
         return rc;
+    content = cJSON_CreateObject();
+    cJSON_AddStringToObject(content, "key", key);
+    cJSON_AddStringToObject(content, "value", value);
+    if ((rc = fxl_audit_append(ctx, "set", "settings", 0, content)) != 0)
+        goto cleanup;
     if ((rc = fxl_stmt_prepare(&s, ctx,
                                "INSERT INTO settings (key, value) VALUES (:key, :value) "
                                "ON CONFLICT (key) DO UPDATE SET value = excluded.value")) != 0)
@@ -380,11 +387,6 @@ int fxl_setting_set(fxl_ctx *ctx, const char *key, const char *value)
     fxl_stmt_bind_text(&s, ":key", key);
     fxl_stmt_bind_text(&s, ":value", value);
     if ((rc = fxl_stmt_exec(&s)) != 0)
-        goto cleanup;
-    content = cJSON_CreateObject();
-    cJSON_AddStringToObject(content, "key", key);
-    cJSON_AddStringToObject(content, "value", value);
-    if ((rc = fxl_audit_append(ctx, "set", "settings", 0, content)) != 0)
         goto cleanup;
     rc = fxl_commit(ctx);
 cleanup:
