@@ -227,6 +227,16 @@ class ConsoleHttp(unittest.TestCase):
             self.assertIn(a, actions)
         self.assertEqual([r for r in rows if r[1] != "127.0.0.1"], [])
 
+    def test_worklist_after_treatment(self):
+        text = self.c["ther"].get("/worklist").text
+        p1 = text[text.index('<span class="mrn">P-1</span>'):]
+        p1 = p1[:p1.index("/patient?mrn=P-1")]
+        self.assertIn("treated today", p1)
+        self.assertIn("HOLD", p1)
+        # no focused "log" button for a patient already treated today
+        self.assertNotIn("autofocus", p1)
+        self.assertIn("Log a second fraction today (2)", p1)
+
     def test_bidi_comment_is_refused_and_writes_nothing(self):
         p = self.c["phys"]
         p.get("/item?id=" + self.item)
