@@ -309,7 +309,10 @@ static int rule_calibration(fxl_ctx *ctx, const hook_fraction *fr, const hook_de
             "SELECT c.id, c.valid_until, b.name, c.point "
             "FROM (SELECT DISTINCT f.beam_id AS beam_id, f.point AS point FROM measurements m "
             "      JOIN fields f ON f.id = m.field_id "
-            "      WHERE m.fraction_id = :fr AND m.detector_id = :d) u "
+            /* "+" keeps the detector's indexes out: the fraction's rows are
+             * found through measurements_by_fraction, whatever the
+             * detector's age (docs/performance.md; tests/cli/test_query_plans.py). */
+            "      WHERE m.fraction_id = :fr AND +m.detector_id = :d) u "
             "JOIN calibrations c ON c.id = (SELECT c2.id FROM calibrations c2 "
             "     WHERE c2.detector_id = :d AND c2.beam_id = u.beam_id AND c2.point = u.point "
             "     ORDER BY c2.calibrated_at DESC, c2.id DESC LIMIT 1) "
@@ -432,37 +435,69 @@ void fxl_drift_series_key(char *buf, size_t size, int64_t detector_id, int64_t b
              (long long)beam_id, point ? point : "");
 }
 
+/* The restart point of a drift series: its latest calibration or the
+ * latest close of a drift item on it, '' when neither. For one series
+ * (all == 0) both halves are searches on an index (calibrations_by_detector
+ * to its last column, review_items_by_rule_key on the key's prefix), so the
+ * cost does not grow with the detector's history (docs/performance.md). */
+static int drift_since(fxl_ctx *ctx, char since[FXL_TIME_LEN], int64_t detector_id,
+                       int64_t beam_id, const char *point, int all)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    char key[128];
+    int rc;
+
+    since[0] = '\0';
+    fxl_drift_series_key(key, sizeof key, detector_id, beam_id, point);
+    if (all)
+        rc = fxl_stmt_prepare(&s, ctx,
+            "SELECT coalesce(max(t), '') FROM ("
+            "  SELECT max(calibrated_at) AS t FROM calibrations WHERE detector_id = :d "
+            "  UNION ALL "
+            "  SELECT max(e.created_at) FROM review_events e JOIN review_items i ON i.id = e.item_id "
+            "  WHERE i.detector_id = :d AND i.rule = '" FXL_RULE_DRIFT "' AND e.kind = 'close')");
+    else
+        /* rule_key starts with key ':' exactly when key ':' <= rule_key <
+         * key ';' (';' follows ':' in ASCII; text compares bytewise); the
+         * substr test is kept, the range only lets the index find them. */
+        rc = fxl_stmt_prepare(&s, ctx,
+            "SELECT coalesce(max(t), '') FROM ("
+            "  SELECT max(calibrated_at) AS t FROM calibrations WHERE detector_id = :d "
+            "  AND beam_id = :b AND point = :p "
+            "  UNION ALL "
+            "  SELECT max(e.created_at) FROM review_events e JOIN review_items i ON i.id = e.item_id "
+            "  WHERE i.detector_id = :d AND i.rule = '" FXL_RULE_DRIFT "' AND e.kind = 'close' "
+            "  AND i.rule_key >= :key || ':' AND i.rule_key < :key || ';' "
+            "  AND substr(i.rule_key, 1, length(:key) + 1) = :key || ':')");
+    if (rc != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":d", detector_id);
+    if (!all) {
+        fxl_stmt_bind_int(&s, ":b", beam_id);
+        fxl_stmt_bind_text(&s, ":p", point);
+        fxl_stmt_bind_text(&s, ":key", key);
+    }
+    if ((rc = fxl_stmt_step(&s)) < 0)
+        goto cleanup;
+    snprintf(since, FXL_TIME_LEN, "%s", rc == 1 ? fxl_stmt_text(&s, 0) : "");
+    rc = 0;
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
 int fxl_drift_series(fxl_ctx *ctx, fxl_drift_point **out, size_t *n, char since[FXL_TIME_LEN],
                      int64_t detector_id, int64_t beam_id, const char *point)
 {
     fxl_stmt s = FXL_STMT_INIT;
     fxl_drift_point *list = NULL;
-    char key[128];
     size_t cap = 0, count = 0;
     int rc, all = beam_id == 0 || !point;
 
     *out = NULL;
     *n = 0;
-    since[0] = '\0';
-    fxl_drift_series_key(key, sizeof key, detector_id, beam_id, point);
-    if ((rc = fxl_stmt_prepare(&s, ctx,
-            "SELECT coalesce(max(t), '') FROM ("
-            "  SELECT max(calibrated_at) AS t FROM calibrations WHERE detector_id = :d "
-            "  AND (:all OR (beam_id = :b AND point = :p)) "
-            "  UNION ALL "
-            "  SELECT max(e.created_at) FROM review_events e JOIN review_items i ON i.id = e.item_id "
-            "  WHERE i.detector_id = :d AND i.rule = '" FXL_RULE_DRIFT "' AND e.kind = 'close' "
-            "  AND (:all OR substr(i.rule_key, 1, length(:key) + 1) = :key || ':'))")) != 0)
+    if ((rc = drift_since(ctx, since, detector_id, beam_id, point, all)) != 0)
         goto cleanup;
-    fxl_stmt_bind_int(&s, ":d", detector_id);
-    fxl_stmt_bind_int(&s, ":all", all);
-    fxl_stmt_bind_int(&s, ":b", beam_id);
-    fxl_stmt_bind_text(&s, ":p", point ? point : "");
-    fxl_stmt_bind_text(&s, ":key", key);
-    if ((rc = fxl_stmt_step(&s)) < 0)
-        goto cleanup;
-    snprintf(since, FXL_TIME_LEN, "%s", rc == 1 ? fxl_stmt_text(&s, 0) : "");
-    fxl_stmt_finalize(&s);
 
     if ((rc = fxl_stmt_prepare(&s, ctx,
             "SELECT m.id, fr.number, fr.treated_at, p.mrn, f.name, m.verdict, m.deviation_pct "
@@ -511,28 +546,72 @@ cleanup:
     return rc;
 }
 
+/* The deviations of one series since its restart point, in the order and
+ * with the conditions of fxl_drift_series, and nothing else: the rule uses
+ * only the deviations, so no patient, plan or field name is read or copied
+ * (docs/performance.md). *out is NULL when n is 0. */
+static int drift_deviations(fxl_ctx *ctx, double **out, size_t *n, char since[FXL_TIME_LEN],
+                            int64_t detector_id, int64_t beam_id, const char *point)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    double *list = NULL;
+    size_t cap = 0, count = 0;
+    int rc;
+
+    *out = NULL;
+    *n = 0;
+    if ((rc = drift_since(ctx, since, detector_id, beam_id, point, 0)) != 0)
+        goto cleanup;
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+            "SELECT m.deviation_pct "
+            "FROM measurements m "
+            "JOIN fractions fr ON fr.id = m.fraction_id "
+            "JOIN fields f ON f.id = m.field_id "
+            "WHERE m.detector_id = :d AND m.deviation_pct IS NOT NULL "
+            "  AND m.verdict IN ('within_tolerance', 'outside_tolerance', 'outside_action') "
+            "  AND m.gross = 0 "
+            "  AND f.beam_id = :b AND f.point = :p "
+            "  AND NOT EXISTS (SELECT 1 FROM measurements n WHERE n.supersedes_id = m.id) "
+            "  AND (:since = '' OR fr.treated_at > :since) "
+            "  AND m.created_at > :since "
+            "ORDER BY fr.treated_at, m.id")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":d", detector_id);
+    fxl_stmt_bind_int(&s, ":b", beam_id);
+    fxl_stmt_bind_text(&s, ":p", point);
+    fxl_stmt_bind_text(&s, ":since", since);
+    while ((rc = fxl_stmt_step(&s)) == 1) {
+        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list,
+                           "reading a detector's deviations")) != 0)
+            goto cleanup;
+        list[count++] = fxl_stmt_double(&s, 0);
+    }
+    if (rc == 0) {
+        *out = list;
+        *n = count;
+        list = NULL;
+    }
+cleanup:
+    fxl_stmt_finalize(&s);
+    free(list);
+    return rc;
+}
+
 /* The standardised CUSUM of one series (detector, beam, point); a signal
  * opens one item on the detector per series and restart point. */
 static int drift_series_rule(fxl_ctx *ctx, const hook_detector *d, const fxl_rule_settings *rs,
                              int64_t beam_id, const char *beam, const char *point)
 {
-    fxl_drift_point *pts = NULL;
     double *dev = NULL;
     fxl_drift_params p;
     fxl_drift_result r;
     fxl_review_open_spec spec;
     char since[FXL_TIME_LEN], series[128], key[200], summary[720];
-    size_t n = 0, i;
+    size_t n = 0;
     int rc;
 
-    if ((rc = fxl_drift_series(ctx, &pts, &n, since, d->id, beam_id, point)) != 0 || n == 0)
+    if ((rc = drift_deviations(ctx, &dev, &n, since, d->id, beam_id, point)) != 0 || n == 0)
         goto cleanup;
-    if (!(dev = calloc(n, sizeof *dev))) {
-        rc = fxl_fail(ctx, FXL_EIO, "out of memory evaluating detector drift");
-        goto cleanup;
-    }
-    for (i = 0; i < n; i++)
-        dev[i] = pts[i].deviation_pct;
     p.target_pct = rs->cusum_target_pct;
     p.k_sigma = rs->cusum_k_sd;
     p.h_sigma = rs->cusum_h_sd;
@@ -555,7 +634,6 @@ static int drift_series_rule(fxl_ctx *ctx, const hook_detector *d, const fxl_rul
     spec.summary = summary;
     rc = fxl_review_open_item(ctx, NULL, &spec);
 cleanup:
-    free(pts);
     free(dev);
     return rc;
 }
@@ -575,7 +653,8 @@ static int rule_drift(fxl_ctx *ctx, const hook_detector *d, const fxl_rule_setti
             "SELECT DISTINCT f.beam_id, mc.name || ' ' || b.name, f.point FROM measurements m "
             "JOIN fields f ON f.id = m.field_id JOIN beams b ON b.id = f.beam_id "
             "JOIN machines mc ON mc.id = b.machine_id "
-            "WHERE m.fraction_id = :fr AND m.detector_id = :d ORDER BY f.beam_id, f.point")) != 0)
+            /* the fraction's index, as in rule_calibration */
+            "WHERE m.fraction_id = :fr AND +m.detector_id = :d ORDER BY f.beam_id, f.point")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&s, ":fr", fraction_id);
     fxl_stmt_bind_int(&s, ":d", d->id);

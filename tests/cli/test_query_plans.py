@@ -1,0 +1,169 @@
+"""The rules over history that `record` runs cost what the fraction costs,
+not the detector's history (issue 16, docs/performance.md): SQLite's own
+EXPLAIN QUERY PLAN (Python's sqlite3, on a database made by fxledger init
+through the harness) for each statement, read from the C source itself so
+the test checks the program's SQL and not a copy.
+
+FXL_PLAN_SOURCE=path/to/rules_hook.c points the test at another version of
+the file (the old one must fail: docs/performance.md says how that was
+checked). The database has no sqlite_stat1 (fxledger never runs ANALYZE),
+so the plans are the ones the program gets in service."""
+import glob
+import os
+import re
+import sqlite3
+
+from fxlcli import FxlTestCase, main
+
+ROOT = os.path.normpath(os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", ".."))
+SOURCE = os.environ.get("FXL_PLAN_SOURCE") or os.path.join(ROOT, "src", "store", "rules_hook.c")
+
+TOKEN = re.compile(r'"((?:[^"\\]|\\.)*)"|([A-Za-z_][A-Za-z_0-9]*)|(/\*.*?\*/)|(\s+)|(\))', re.S)
+
+
+def string_macros():
+    """Simple string #defines of the headers (FXL_RULE_DRIFT and the like)."""
+    out = {}
+    for h in glob.glob(os.path.join(ROOT, "include", "fxl", "*.h")) + \
+            glob.glob(os.path.join(ROOT, "src", "store", "*.h")):
+        for m in re.finditer(r'^#define\s+(\w+)\s+"([^"]*)"\s*$', open(h).read(), re.M):
+            out[m.group(1)] = m.group(2)
+    return out
+
+
+def statements(function):
+    """Each SQL text prepared (fxl_stmt_prepare) in the body of `function`
+    of SOURCE, in order: the concatenated string literals and string
+    macros up to the closing parenthesis."""
+    text = open(SOURCE).read()
+    m = re.search(r"^(?:static\s+)?int\s+" + re.escape(function) + r"\s*\(", text, re.M)
+    if not m:
+        raise AssertionError("%s not found in %s" % (function, SOURCE))
+    end = text.find("\n}\n", m.end())
+    body = text[m.end():end]
+    macros = string_macros()
+    out = []
+    for p in re.finditer(r"fxl_stmt_prepare\(&\w+,\s*ctx,", body):
+        pos, sql = p.end(), []
+        while True:
+            t = TOKEN.match(body, pos)
+            if not t:
+                raise AssertionError("unexpected text in %s near %r" % (function, body[pos:pos + 40]))
+            pos = t.end()
+            if t.group(1) is not None:
+                sql.append(t.group(1).encode().decode("unicode_escape"))
+            elif t.group(2):
+                if t.group(2) not in macros:
+                    raise AssertionError("unknown macro %s in %s" % (t.group(2), function))
+                sql.append(macros[t.group(2)])
+            elif t.group(5):
+                break
+        out.append("".join(sql))
+    return out
+
+
+def has_function(function):
+    return re.search(r"^(?:static\s+)?int\s+" + re.escape(function) + r"\s*\(", open(SOURCE).read(),
+                     re.M) is not None
+
+
+PARAMS = {"fr": 1, "d": 1, "all": 0, "b": 1, "p": "entrance", "since": "", "key": "k"}
+
+
+class QueryPlanTest(FxlTestCase):
+    @classmethod
+    def setUpClass(cls):
+        from fxlcli import Fxl
+        cls.fxc = Fxl()
+        cls.fxc.init()
+        cls.con = sqlite3.connect(cls.fxc.db)
+
+    @classmethod
+    def tearDownClass(cls):
+        cls.con.close()
+        cls.fxc.close()
+
+    def plan(self, sql):
+        names = set(re.findall(r":(\w+)", sql))
+        rows = self.con.execute("EXPLAIN QUERY PLAN " + sql, {k: PARAMS[k] for k in names})
+        return [r[3] for r in rows]
+
+    def assertNoFullScan(self, plan):
+        for line in plan:
+            # a SCAN of a table (not of a materialised subquery) reads all of it
+            self.assertNotRegex(line, r"^SCAN (measurements|fractions|m|fr|n|calibrations|c2?)\b",
+                                "\n".join(plan))
+
+    def uses(self, plan, alias, index):
+        lines = [ln for ln in plan if re.match(r"SEARCH %s USING .*INDEX %s \(" % (alias, index), ln)]
+        self.assertTrue(lines, "%s not searched through %s:\n%s" % (alias, index, "\n".join(plan)))
+        return lines
+
+    def test_calibration_due_uses_the_fractions_index(self):
+        [sql] = statements("rule_calibration")
+        plan = self.plan(sql)
+        # the fraction's measurements, not the detector's whole history
+        self.uses(plan, "m", "measurements_by_fraction")
+        self.assertFalse([ln for ln in plan if "measurements_by_detector" in ln], "\n".join(plan))
+        # the latest calibration of the series: the index to its last column
+        self.uses(plan, "c2", r"calibrations_by_detector")
+        self.assertTrue([ln for ln in plan if "calibrations_by_detector (detector_id=? AND "
+                         "beam_id=? AND point=?)" in ln], "\n".join(plan))
+        self.assertNoFullScan(plan)
+
+    def test_drift_series_of_the_fraction_use_the_fractions_index(self):
+        [sql] = statements("rule_drift")
+        plan = self.plan(sql)
+        self.uses(plan, "m", "measurements_by_fraction")
+        self.assertFalse([ln for ln in plan if "measurements_by_detector" in ln], "\n".join(plan))
+        self.assertNoFullScan(plan)
+
+    def test_drift_rule_reads_only_the_deviations_since_the_restart(self):
+        if has_function("drift_deviations"):
+            [devs] = statements("drift_deviations")
+            # the text for one series (the other is the whole detector's,
+            # for the review screen)
+            [since] = [q for q in statements("drift_since") if ":b" in q]
+        else:   # the version before issue 16: the rule read fxl_drift_series
+            [since, devs] = statements("fxl_drift_series")
+        plan = self.plan(devs)
+        # one column read; no patient, plan or name joined
+        self.assertRegex(devs, r"^SELECT m\.deviation_pct FROM")
+        for table in ("patients", "plans"):
+            self.assertNotIn(table, devs)
+        # the rows after the restart point, found by the detector's index
+        self.uses(plan, "m", r"measurements_by_detector\w*")
+        self.assertTrue([ln for ln in plan if "detector_id=? AND created_at>?" in ln],
+                        "\n".join(plan))
+        self.assertNoFullScan(plan)
+
+        plan = self.plan(since)
+        # the latest calibration of the one series, and the drift items of
+        # that series by their key's prefix
+        self.assertTrue([ln for ln in plan if "calibrations_by_detector (detector_id=? AND "
+                         "beam_id=? AND point=?)" in ln], "\n".join(plan))
+        self.assertTrue([ln for ln in plan if re.search(
+            r"review_items_by_rule_key \(rule=\? AND rule_key>\? AND rule_key<\?\)", ln)],
+            "\n".join(plan))
+        self.assertNoFullScan(plan)
+
+    def test_prefix_range_equals_substr(self):
+        """The key range that lets the index find a series' drift items
+        selects exactly the keys the substr test selects (SQLite's bytewise
+        text comparison; ';' follows ':' in ASCII)."""
+        key = "detector:1:beam:2:point:entrance"
+        keys = [key + ":since:start", key + ":since:2026-01-01T00:00:00Z", key, key + ";",
+                key + "x:since:start", "detector:1:beam:2:point:exit:since:start",
+                "detector:1:beam:22:point:entrance:since:start", key + ":", key + ":\u00e9"]
+        got = {}
+        for k in keys:
+            a, b = self.con.execute(
+                "SELECT (:k >= :key || ':' AND :k < :key || ';'), "
+                "substr(:k, 1, length(:key) + 1) = :key || ':'", {"k": k, "key": key}).fetchone()
+            got[k] = (a, b)
+            self.assertEqual(a, b, k)
+        self.assertEqual(sum(a for a, _ in got.values()), 4)
+
+
+if __name__ == "__main__":
+    main()
