@@ -13,7 +13,8 @@ int cmd_backup(cli_env *env, int argc, char **argv)
                    "Copies the database, while it stays in use, into FILE (which must not exist)\n"
                    "through SQLite's online backup API: one consistent snapshot, copied in steps,\n"
                    "checked with SQLite's quick_check. Other users may keep logging meanwhile.\n"
-                   "The backup is recorded in the audit log. Physicist or admin.",
+                   "The backup is recorded in the audit log. Physicist, admin or auditor\n"
+                   "(the scheduled backup logs in as an auditor account: docs/deployment.md).",
                    opts, argc, argv, pos, 1, &npos);
     if (rc != 0)
         return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;

@@ -1,6 +1,7 @@
 """fxledger backup: an online copy through SQLite's backup API, made in steps
 while another process keeps logging fractions; every copy opens and
-verifies. Refuses to overwrite a file, and is for physicists and admins.
+verifies. Refuses to overwrite a file, and is for physicists, admins and
+auditors (the scheduled backup logs in as an auditor: docs/deployment.md).
 Data are invented (review_scenario.py)."""
 import json
 import os
@@ -55,7 +56,7 @@ class BackupTest(ReviewCase):
             self.assertEqual(f.read(), "keep me\n")
         target = self.fx.path("new.db")
         self.assertFailsUnchanged("backup", target, user="ther", expect_code=4,
-                                  expect_in="backing up the database needs the role physicist or admin")
+                                  expect_in="backing up the database needs the role physicist or auditor or admin")
         self.assertFalse(os.path.exists(target))
         self.assertFailsUnchanged("backup", self.fx.path("no/such/dir/x.db"), user="phys", expect_code=3,
                                   expect_in="directory '%s' does not exist" % self.fx.path("no/such/dir"))
