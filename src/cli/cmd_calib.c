@@ -306,7 +306,7 @@ static int calib_list(cli_env *env, int argc, char **argv)
             cells[1] = list[i].serial;
             cells[2] = list[i].machine;
             cells[3] = list[i].beam;
-            cells[4] = strcmp(list[i].point, "entrance") == 0 ? "ent" : list[i].point;
+            cells[4] = list[i].point;
             cells[5] = date;
             cells[6] = until;
             cells[7] = factor;

@@ -107,16 +107,17 @@ static int plan_list(cli_env *env, int argc, char **argv)
     if (n == 0) {
         printf("no plans%s%s\n", npos ? " for patient " : "", npos ? pos[0] : "");
     } else {
-        /* 80 columns: site, technique and status wrap at words */
+        /* 80 columns: site and technique wrap at words; the measured points
+         * are in 'plan show' and --json */
         static const char *const head[] = {"MRN", "plan", "site", "technique", "fx", "cGy/fx",
-                                           "points", "logged", "status", NULL};
+                                           "logged", "status", NULL};
         cli_table tab;
         cli_table_init(&tab, head);
-        tab.right[4] = tab.right[5] = tab.right[6] = tab.right[7] = 1;
-        tab.wrap[2] = tab.wrap[3] = tab.wrap[8] = 1;
+        tab.right[4] = tab.right[5] = tab.right[6] = 1;
+        tab.wrap[2] = tab.wrap[3] = 1;
         for (i = 0; i < n; i++) {
-            char dose[24], status[100], fx[16], pts[16], logged[16];
-            const char *cells[9];
+            char dose[24], status[100], fx[16], logged[16];
+            const char *cells[8];
             const fxl_plan *p = &list[i];
             if (isnan(p->dose_per_fraction_cgy))
                 snprintf(dose, sizeof dose, "-");
@@ -127,7 +128,6 @@ static int plan_list(cli_env *env, int argc, char **argv)
             else
                 snprintf(status, sizeof status, "current");
             snprintf(fx, sizeof fx, "%d", p->fractions);
-            snprintf(pts, sizeof pts, "%zu", p->n_fields);
             snprintf(logged, sizeof logged, "%d", p->fractions_logged);
             cells[0] = p->mrn;
             cells[1] = p->label;
@@ -135,9 +135,8 @@ static int plan_list(cli_env *env, int argc, char **argv)
             cells[3] = p->technique;
             cells[4] = fx;
             cells[5] = dose;
-            cells[6] = pts;
-            cells[7] = logged;
-            cells[8] = status;
+            cells[6] = logged;
+            cells[7] = status;
             cli_table_add(&tab, cells);
         }
         cli_table_print(stdout, &tab, CLI_WIDTH, 0);

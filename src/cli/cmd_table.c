@@ -227,12 +227,12 @@ static int table_show(cli_env *env, int argc, char **argv)
         printf("  %12s  %.4f\n", x, t.points[i].factor);
     }
     if (strcmp(t.parameter, "wedge") == 0 || strcmp(t.parameter, "tray") == 0) {
-        cli_wrap(stdout, "", "only the values listed are commissioned (exact match); any other value "
-                 "is not evaluable", CLI_WIDTH);
+        cli_wrap(stdout, "", "only the values listed are commissioned (exact match); others are "
+                 "not evaluable", CLI_WIDTH);
     } else {
         char line[200];
-        snprintf(line, sizeof line, "linear interpolation from %g to %g %s; outside that range "
-                 "results are not evaluable", t.x_min, t.x_max, unit);
+        snprintf(line, sizeof line, "linear interpolation from %g to %g %s; not evaluable outside "
+                 "that range", t.x_min, t.x_max, unit);
         cli_wrap(stdout, "", line, CLI_WIDTH);
     }
     fxl_corr_table_release(&t);
