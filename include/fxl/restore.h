@@ -16,7 +16,8 @@
  * checked with PRAGMA quick_check and only then renamed to dest_path, which
  * must not exist (FXL_ECONFLICT): a failed restore leaves no file under that
  * name. The copy is then opened read-write, which applies the migrations
- * above its schema (never to the backup). No acting user is needed: it reads
+ * above its schema (never to the backup); a copy that does not open or
+ * upgrade is removed again. No acting user is needed: it reads
  * a file the caller can already read and writes only a new one.
  * *out is always set: on success the open copy, on failure a context holding
  * the message only (fxl_errmsg); fxl_close() it in both cases.

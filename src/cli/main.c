@@ -178,8 +178,13 @@ static int write_man_pages(cli_env *env, const char *dir, const char *date)
                  ".TP\n.B NO_COLOR\nwhen set and not empty, no colour in the output\n"
                  ".SH FILES\n.TP\n.I /var/lib/fxledger/fxledger.db\n"
                  "the database of a server installation (mode 0600, owned by the fxledger account)\n"
-                 ".TP\n.I /lib/systemd/system/fxledger.service\n"
-                 "the web console as a service, not enabled at installation\n");
+                 ".TP\n.I /usr/lib/systemd/system/fxledger.service\n"
+                 "the web console as a service, not enabled at installation\n"
+                 ".TP\n.I /usr/lib/systemd/system/fxledger\\-backup.timer\n"
+                 "the daily backup with rotation, not enabled at installation; it logs in as an\n"
+                 "auditor with the password in\n.I /etc/fxledger/backup.password\n"
+                 ".TP\n.I /var/backups/fxledger/\n"
+                 "where the scheduled backups go\n");
     man_footer(out, NULL);
     if (fclose(out) != 0)
         rc = CLI_EXIT_DB;

@@ -145,7 +145,8 @@ int fxl_restore_copy(fxl_ctx **out, const char *backup_path, const char *dest_pa
     /* The copy, read-write: migrations above its schema apply here. */
     free(ctx);
     *out = NULL;
-    rc = fxl_open(out, dest_path, 0);
+    if ((rc = fxl_open(out, dest_path, 0)) != 0)
+        fxl_restore_discard(dest_path);   /* ours: a copy that does not open is no restore */
     return rc;
 cleanup:
     if (src)

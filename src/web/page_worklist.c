@@ -96,7 +96,7 @@ int web_page_worklist(web_req *r)
             web_printf(&r->out, "<p><a class=\"button primary\" href=\"/fraction?id=%L\"%s>Resume fraction %d</a></p>\n",
                        e->open_fraction_id, focused ? "" : " data-focus", e->next_fraction);
             focused = 1;
-        } else if (!e->treated_today || e->next_fraction <= e->fractions) {
+        } else if (!e->treated_today) {
             web_printf(&r->out, "<form method=\"post\" action=\"/fraction/begin\">");
             web_csrf_field(r);
             web_printf(&r->out, "<input type=\"hidden\" name=\"mrn\" value=\"%a\"><input type=\"hidden\" name=\"plan\" "
@@ -104,6 +104,14 @@ int web_page_worklist(web_req *r)
                                 "</form>\n",
                        e->mrn, e->plan, focused ? "" : " autofocus", e->next_fraction, e->patient_name);
             focused = 1;
+        } else if (e->next_fraction <= e->fractions) {
+            /* Treated already today: a second fraction the same day (twice
+             * daily) stays possible, but is not the button the focus lands on. */
+            web_printf(&r->out, "<form method=\"post\" action=\"/fraction/begin\">");
+            web_csrf_field(r);
+            web_printf(&r->out, "<input type=\"hidden\" name=\"mrn\" value=\"%a\"><input type=\"hidden\" name=\"plan\" "
+                                "value=\"%a\"><button type=\"submit\">Log a second fraction today (%d)</button></form>\n",
+                       e->mrn, e->plan, e->next_fraction);
         }
         web_printf(&r->out, "<p><a href=\"/patient?mrn=%u\">History of %h</a></p></section>\n", e->mrn,
                    e->patient_name);

@@ -89,6 +89,13 @@ class RestoreDrillTest(ReviewCase):
         t.join()
         self.assertEqual(errors, [])
         self.assertEqual(len(results), 12)
+        # One more after the logging ended: it must hold every fraction.
+        backup = self.fx.path("backup-last.db")
+        self.assertEqual(self.fx.run("backup", backup, user="phys", now="2026-12-01T09:00:00Z").returncode, 0)
+        before = sha256_file(backup)
+        r, out = self.restore(backup, self.fx.path("restored-last.db"))
+        self.assertEqual(r.returncode, 0, r.stderr)
+        drills.append((backup, before, self.fx.path("restored-last.db"), out))
 
         for backup, before, dest, out in drills:
             # The backup is untouched and nothing was created beside it.
@@ -116,7 +123,7 @@ class RestoreDrillTest(ReviewCase):
             v = self.fx.run("--db", dest, "--json", "verify", user="aud")
             self.assertEqual(v.returncode, 0, v.stderr)
             self.assertTrue(json.loads(v.stdout)["ok"])
-        # Backups in flight saw fewer fractions than the end; the last saw all.
+        # Backups in flight saw some of the fractions; the one after saw all.
         self.assertEqual(drills[-1][3]["holds"]["fractions"], 13)
         self.assertTrue(self.fx.json("verify")["ok"])
 

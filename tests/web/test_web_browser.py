@@ -73,15 +73,16 @@ class BrowserScenario(unittest.TestCase):
     def focused(self):
         return self.driver.switch_to.active_element
 
-    def wait_path(self, prefix, timeout=10):
+    def wait_path(self, prefix, timeout=20):
         end = time.time() + timeout
         while time.time() < end:
-            if self.driver.current_url.startswith(self.base + prefix):
+            if (self.driver.current_url.startswith(self.base + prefix) and
+                    self.driver.execute_script("return document.readyState") == "complete"):
                 return
             time.sleep(0.05)
         self.fail("expected %s, at %s" % (prefix, self.driver.current_url))
 
-    def wait_change(self, before, timeout=10):
+    def wait_change(self, before, timeout=20):
         end = time.time() + timeout
         while d_url(self.driver) == before and time.time() < end:
             time.sleep(0.05)
@@ -149,11 +150,10 @@ class BrowserScenario(unittest.TestCase):
         self.assertEqual(len(chart.find_elements(By.CSS_SELECTOR, "g.pt.this rect")), 1)
         d.find_element(By.ID, "disp").send_keys("set-up error")
         d.find_element(By.ID, "clc").send_keys("Invented: bolus left off; re-measured next fraction.")
+        before = d.current_url
         d.find_element(By.ID, "clp").send_keys(self.fx.passwords["phys"], Keys.ENTER)
-        self.wait_path("/item")
-        end = time.time() + 10
-        while "done=" not in d.current_url and time.time() < end:
-            time.sleep(0.05)
+        self.wait_change(before)
+        self.assertIn("done=", d.current_url)
         page = d.find_element(By.TAG_NAME, "main").text
         self.shot("07-item-closed-signed")
         self.assertIn("closed, signed", page)
@@ -185,6 +185,12 @@ class BrowserScenario(unittest.TestCase):
         page = d.find_element(By.TAG_NAME, "main").text
         self.assertIn("Verified", page)
         self.assertIn("fxledger-anchor rows=", page)
+        # a tablet in portrait: the same page without sideways scrolling
+        d.set_window_size(820, 1180)
+        d.get(self.base + "/queue?status=all")
+        self.shot("10-queue-tablet")
+        self.assertLessEqual(d.execute_script("return document.documentElement.scrollWidth"),
+                             d.execute_script("return window.innerWidth") + 1)
 
 
 if __name__ == "__main__":

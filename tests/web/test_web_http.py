@@ -10,6 +10,7 @@ Data invented (webfixture.py)."""
 import os
 import re
 import sqlite3
+import subprocess
 import sys
 import unittest
 import urllib.parse
@@ -50,6 +51,8 @@ class ConsoleHttp(unittest.TestCase):
         for u in ("ther", "phys", "aud"):
             r = fx.login(u)
             assert r.returncode == 0, r.stderr
+        with sqlite3.connect("file:%s?mode=ro" % fx.db, uri=True) as db:
+            cls.last_cli_row = db.execute("SELECT max(id) FROM audit_log").fetchone()[0]
         cls.server = Server(fx, ["--login-rate", "100"])
         cls.c = {}
         for u in ("ther", "phys", "aud", "admin"):
@@ -215,6 +218,25 @@ class ConsoleHttp(unittest.TestCase):
         self.assertIn(r.status, (400, 404, 422))
         self.assertIn("bidirectional", r.text)
 
+    def test_every_console_write_is_audited_with_the_client_address(self):
+        with sqlite3.connect("file:%s?mode=ro" % self.fx.db, uri=True) as db:
+            rows = db.execute("SELECT action, client FROM audit_log WHERE id > ?", (self.last_cli_row,)).fetchall()
+        actions = [a for a, _c in rows]
+        # the logins, the fraction begun, three readings and the close, at least
+        for a in ("login", "record", "close"):
+            self.assertIn(a, actions)
+        self.assertEqual([r for r in rows if r[1] != "127.0.0.1"], [])
+
+    def test_worklist_after_treatment(self):
+        text = self.c["ther"].get("/worklist").text
+        p1 = text[text.index('<span class="mrn">P-1</span>'):]
+        p1 = p1[:p1.index("/patient?mrn=P-1")]
+        self.assertIn("treated today", p1)
+        self.assertIn("HOLD", p1)
+        # no focused "log" button for a patient already treated today
+        self.assertNotIn("autofocus", p1)
+        self.assertIn("Log a second fraction today (2)", p1)
+
     def test_bidi_comment_is_refused_and_writes_nothing(self):
         p = self.c["phys"]
         p.get("/item?id=" + self.item)
@@ -374,6 +396,43 @@ class ConsoleHttp(unittest.TestCase):
         page = self.c["aud"].get("/verify").text
         self.assertIn("Verified", page)
         self.assertIn("fxledger-anchor rows=", page)
+        # the anchor line kept from before checks out; a forged one does not
+        aud = self.c["aud"]
+        line = v["anchor"]
+        q = "/api/v1/verify?anchor=" + urllib.parse.quote(line)
+        held = aud.get(q).json()
+        self.assertTrue(held["ok"], held)
+        self.assertEqual(held["anchor_rows"], int(re.search(r"rows=(\d+)", line).group(1)))
+        self.assertIn("holds", aud.get("/verify?anchor=" + urllib.parse.quote(line)).text)
+        head = re.search(r"head=([0-9a-f]{64})", line).group(1)
+        forged = line.replace(head, ("0" if head[0] != "0" else "1") + head[1:])
+        bad = aud.get("/api/v1/verify?anchor=" + urllib.parse.quote(forged)).json()
+        self.assertFalse(bad["ok"])
+        self.assertTrue(bad["record_problems"], bad)
+        self.assertIn("FAILED", aud.get("/verify?anchor=" + urllib.parse.quote(forged)).text)
+        self.assertEqual(aud.get("/api/v1/verify?anchor=not%20an%20anchor").status, 422)
+
+    def test_reports_on_request(self):
+        a = self.c["aud"]
+        before = self.fx.digest()
+        for query, name in (("kind=month&month=2026-11", "fxledger-month-2026-11.pdf"),
+                            ("kind=patient&mrn=P-1", "fxledger-patient-P-1.pdf")):
+            with self.subTest(query=query):
+                r = a.get("/report?" + query)
+                self.assertEqual(r.status, 200, r.text[:300] if r.status != 200 else "")
+                self.assertEqual(r.header("Content-Type"), "application/pdf")
+                self.assertIn(name, r.header("Content-Disposition"))
+                self.assertTrue(r.body.startswith(b"%PDF-"))
+                pdf = self.fx.path(name)
+                with open(pdf, "wb") as f:
+                    f.write(r.body)
+                # qpdf --check exits 0 for a well-formed file (qpdf manual)
+                q = subprocess.run(["qpdf", "--check", pdf], capture_output=True, text=True)
+                self.assertEqual(q.returncode, 0, q.stdout + q.stderr)
+        self.assertEqual(a.get("/report?kind=month&month=2026-13").status, 422)
+        self.assertEqual(a.get("/report?kind=patient&mrn=NOPE").status, 404)
+        self.assertEqual(self.c["ther"].get("/report?kind=month&month=2026-11").status, 403)
+        self.assertEqual(self.fx.digest(), before, "a report wrote to the database")
 
     def test_levels_saved_with_signature(self):
         p = self.c["phys"]
@@ -497,6 +556,48 @@ class ConsoleLogin(unittest.TestCase):
             self.assertEqual(codes, [401, 401, 401, 429])
         finally:
             s.stop()
+
+
+
+class ConsoleTls(unittest.TestCase):
+    """HTTPS with --tls-cert/--tls-key: cookies get Secure, HSTS is sent."""
+
+    def test_tls_cookies_are_secure(self):
+        fx = Fxl().init()
+        try:
+            cert, key = fx.path("cert.pem"), fx.path("key.pem")
+            # a throw-away self-signed certificate for 127.0.0.1 (openssl req(1))
+            r = subprocess.run(["openssl", "req", "-x509", "-newkey", "ec", "-pkeyopt",
+                                "ec_paramgen_curve:prime256v1", "-nodes", "-keyout", key, "-out", cert,
+                                "-days", "2", "-subj", "/CN=127.0.0.1", "-addext", "subjectAltName=IP:127.0.0.1"],
+                               capture_output=True, text=True)
+            self.assertEqual(r.returncode, 0, r.stderr)
+            s = Server(fx, ["--tls-cert", cert, "--tls-key", key])
+            try:
+                c = Client(s, tls_ca=cert)
+                page = c.get("/login")
+                self.assertIn("Secure", page.header("Set-Cookie"))
+                self.assertIn("max-age=", page.header("Strict-Transport-Security"))
+                r = c.post("/login", {"login": "admin", "password": fx.passwords["admin"]})
+                self.assertEqual(r.status, 303)
+                cookie = r.header("Set-Cookie")
+                self.assertTrue(cookie.startswith("fxl_session="), cookie)
+                for attr in ("Secure", "HttpOnly", "SameSite=Strict"):
+                    self.assertIn(attr, cookie)
+                self.assertEqual(c.get("/users").status, 200)
+            finally:
+                s.stop()
+            # behind a TLS reverse proxy on the same host: plain HTTP on
+            # loopback, cookies marked Secure all the same
+            s = Server(fx, ["--behind-tls-proxy"])
+            try:
+                page = Client(s).get("/login")
+                self.assertIn("; Secure", page.header("Set-Cookie"))
+                self.assertIsNotNone(page.header("Strict-Transport-Security"))
+            finally:
+                s.stop()
+        finally:
+            fx.close()
 
 
 if __name__ == "__main__":
