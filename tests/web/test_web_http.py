@@ -396,6 +396,21 @@ class ConsoleHttp(unittest.TestCase):
         page = self.c["aud"].get("/verify").text
         self.assertIn("Verified", page)
         self.assertIn("fxledger-anchor rows=", page)
+        # the anchor line kept from before checks out; a forged one does not
+        aud = self.c["aud"]
+        line = v["anchor"]
+        q = "/api/v1/verify?anchor=" + urllib.parse.quote(line)
+        held = aud.get(q).json()
+        self.assertTrue(held["ok"], held)
+        self.assertEqual(held["anchor_rows"], int(re.search(r"rows=(\d+)", line).group(1)))
+        self.assertIn("holds", aud.get("/verify?anchor=" + urllib.parse.quote(line)).text)
+        head = re.search(r"head=([0-9a-f]{64})", line).group(1)
+        forged = line.replace(head, ("0" if head[0] != "0" else "1") + head[1:])
+        bad = aud.get("/api/v1/verify?anchor=" + urllib.parse.quote(forged)).json()
+        self.assertFalse(bad["ok"])
+        self.assertTrue(bad["record_problems"], bad)
+        self.assertIn("FAILED", aud.get("/verify?anchor=" + urllib.parse.quote(forged)).text)
+        self.assertEqual(aud.get("/api/v1/verify?anchor=not%20an%20anchor").status, 422)
 
     def test_reports_on_request(self):
         a = self.c["aud"]
