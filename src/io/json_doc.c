@@ -112,7 +112,7 @@ int fxl_jsondoc_check_text(const fxl_jsondoc *d, const char *text, size_t len, u
 
 /* 1 when the text ends inside a string that was never closed: a file cut
  * in the middle of a name or value (cJSON then points at the string start). */
-static int ends_inside_string(const char *text, size_t len)
+int fxl_jsondoc_ends_inside_string(const char *text, size_t len)
 {
     size_t i;
     int in_string = 0;
@@ -152,8 +152,15 @@ int fxl_jsondoc_syntax_error(const fxl_jsondoc *d, const char *text, size_t len,
     if ((flags & FXL_JSONDOC_CUT_AT_QUOTE) && pos < len && pos > 0 && text[pos - 1] == '"' &&
         !memchr(text + pos, '"', len - pos))
         pos = len;
-    if ((flags & FXL_JSONDOC_CUT_IN_STRING) && ends_inside_string(text, len))
-        pos = len;
+    /* Every reader: a file cut inside a string is truncated, whatever the
+     * flags (FXL_JSONDOC_CUT_IN_STRING is kept for the callers that name it). */
+    (void)FXL_JSONDOC_CUT_IN_STRING;
+    if (fxl_jsondoc_ends_inside_string(text, len)) {
+        fxl_jsondoc_line_col(text, len, &line, &col);
+        return fxl_fail(d->ctx, FXL_EINVAL,
+                        "%s '%s': malformed JSON: the file ends too early, inside a string, at line %d, "
+                        "column %d (truncated)", d->kind, d->name, line, col);
+    }
     if (pos >= len) {
         fxl_jsondoc_line_col(text, len, &line, &col);
         return fxl_fail(d->ctx, FXL_EINVAL,

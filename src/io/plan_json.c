@@ -281,6 +281,13 @@ static int parse_syntax(parser *p, cJSON **out, const char *buf, size_t len)
     for (i = pos; i < len; i++)
         if (buf[i] != ' ' && buf[i] != '\t' && buf[i] != '\r' && buf[i] != '\n')
             at_end = 0;
+    /* A file cut inside a string: cJSON points at the string's start. */
+    if (fxl_jsondoc_ends_inside_string(buf, len)) {
+        fxl_jsondoc_line_col(buf, len, &line, &col);
+        return fxl_fail(p->ctx, FXL_EINVAL,
+                        "plan file '%s' is not valid JSON: it ends too early, inside a string, at line %d, "
+                        "column %d (truncated file)", p->source, line, col);
+    }
     fxl_jsondoc_line_col(buf, pos, &line, &col);
     if (len == 0 || at_end)
         return fxl_fail(p->ctx, FXL_EINVAL,

@@ -333,6 +333,29 @@ class AlertHookTest(RecordTestCase):
         self.assertEqual(self.alert_audit()[0]["outcome"], "ok")
         self.fx.ok("verify")
 
+    def test_hook_output_never_reaches_the_terminal_raw(self):
+        """What the hook writes (stdout and stderr) is shown on our stderr
+        line by line, escape sequences and bidi controls as '?', so a hook
+        cannot clear the screen or recolour the verdict; --json output stays
+        valid JSON; more than 10 lines are cut with a note."""
+        self.fx.ok("setting", "set", "alert_command",
+                   "cat > /dev/null; printf '\\033[2J\\033[31mpaged\\n'; "
+                   "printf 'e\\342\\200\\256rr\\033]0;title\\007\\n' >&2; "
+                   "i=0; while [ $i -lt 20 ]; do echo line$i; i=$((i+1)); done")
+        r = self.fx.run("--json", "record", "--patient", MRN, "--field", "REF", "--detector", "D-1001",
+                        "--reading", "22.0", "--temp", "20", user="tina")
+        self.assertEqual(r.returncode, 12, r.stderr)
+        json.loads(r.stdout)
+        self.assertNotIn("\x1b", r.stdout + r.stderr)
+        self.assertNotIn("\u202e", r.stdout + r.stderr)
+        self.assertNotIn("\x07", r.stdout + r.stderr)
+        self.assertIn("fxledger: alert command: ?[2J?[31mpaged\n", r.stderr)
+        self.assertIn("fxledger: alert command: e???rr?]0;title?\n", r.stderr)
+        self.assertIn("fxledger: alert command: line7\n", r.stderr)
+        self.assertNotIn("line8", r.stderr)      # 2 lines above + 8 = the 10 shown
+        self.assertIn("fxledger: alert command: (more output not shown)", r.stderr)
+        self.assertEqual(self.alert_audit()[0]["outcome"], "ok")
+
     def test_failing_hook_keeps_the_record(self):
         self.fx.ok("setting", "set", "alert_command", "exit 3")
         r = self.action()
