@@ -329,6 +329,7 @@ static int one_field(cli_env *env, const fxl_fraction_state *st, const fxl_workl
         cli_error("out of memory");
         return CLI_EXIT_DB;
     }
+    cli_record_note_saved(env, &fo->all);
     if (one.items[0].verdict == FXL_VERDICT_OUTSIDE_ACTION) {
         fprintf(out, "\n%sHOLD TREATMENT: do not deliver the next field.%s Call the physicist now.\n",
                 cli_color(env, CLI_RED), cli_color(env, CLI_RESET));

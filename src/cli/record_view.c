@@ -332,9 +332,35 @@ void cli_record_alert(cli_env *env, const fxl_record_result *r)
     cJSON_Delete(json);
 }
 
+void cli_record_note_saved(cli_env *env, const fxl_record_result *r)
+{
+    int64_t lo = 0, hi = 0;
+    size_t i;
+
+    for (i = 0; i < r->n; i++) {
+        int64_t id = r->items[i].measurement_id;
+        if (!lo || id < lo)
+            lo = id;
+        if (id > hi)
+            hi = id;
+    }
+    if (lo == hi)
+        snprintf(env->saved, sizeof env->saved,
+                 "fraction %d of patient '%s' was saved (fraction id %lld, measurement id %lld; see "
+                 "'fxledger history --patient %s')", r->fraction_number, r->mrn, (long long)r->fraction_id,
+                 (long long)lo, r->mrn);
+    else
+        snprintf(env->saved, sizeof env->saved,
+                 "fraction %d of patient '%s' was saved (fraction id %lld, measurement ids %lld to %lld; "
+                 "see 'fxledger history --patient %s')", r->fraction_number, r->mrn,
+                 (long long)r->fraction_id, (long long)lo, (long long)hi, r->mrn);
+}
+
 int cli_record_finish(cli_env *env, const fxl_record_result *r)
 {
     int code = cli_record_exit_code(r);
+
+    cli_record_note_saved(env, r);
 
     if (env->json) {
         cJSON *json = fxl_record_result_json(r);

@@ -1013,8 +1013,8 @@ int fxl_dicom_plan_read(fxl_ctx *ctx, fxl_dicom_plan *out, const char *path)
     static const fxl_jsondoc_file spec = {
         .max_bytes = 16 * 1024 * 1024,
         .too_large_code = FXL_EINVAL,
-        .open_fail = "cannot open RT Plan file '%s'",
-        .read_fail = "cannot read RT Plan file '%s'",
+        .open_fail = "cannot open RT Plan file '%s': %s",
+        .read_fail = "cannot read RT Plan file '%s': %s",
         .too_large = "file '%s' is larger than %d bytes",
         .no_memory = "out of memory reading '%s'",
     };

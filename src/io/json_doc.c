@@ -25,7 +25,9 @@ int fxl_jsondoc_read_file(fxl_ctx *ctx, char **out, size_t *len, const char *pat
     *len = 0;
     if (!(fp = is_stdin ? stdin : fopen(path, "rb"))) {
         /* a missing input file is a data error (exit 2), like any wrong input */
-        rc = fxl_fail(ctx, errno == ENOENT || errno == ENOTDIR ? FXL_ENOTFOUND : FXL_EIO, spec->open_fail,
+        /* A missing or unreadable input file is a data error (exit 2), like
+         * any wrong input: the database is not involved. */
+        rc = fxl_fail(ctx, errno == ENOENT || errno == ENOTDIR ? FXL_ENOTFOUND : FXL_EINVAL, spec->open_fail,
                       path, strerror(errno));
         goto cleanup;
     }
@@ -49,7 +51,8 @@ int fxl_jsondoc_read_file(fxl_ctx *ctx, char **out, size_t *len, const char *pat
             break;
     }
     if (ferror(fp)) {
-        rc = fxl_fail(ctx, FXL_EIO, spec->read_fail, path, strerror(errno));
+        /* a directory (EISDIR) or an unreadable file: wrong input, exit 2 */
+        rc = fxl_fail(ctx, FXL_EINVAL, spec->read_fail, path, strerror(errno));
         goto cleanup;
     }
     if (n > spec->max_bytes) {

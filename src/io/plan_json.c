@@ -397,7 +397,7 @@ int fxl_plan_json_read(fxl_ctx *ctx, fxl_plan_spec *out, const char *path)
         .max_bytes = ((size_t)16 << 20) - 1,
         .too_large_code = FXL_EINVAL,
         .open_fail = "cannot read plan file '%s': %s",
-        .read_fail = "cannot read plan file '%s'",
+        .read_fail = "cannot read plan file '%s': %s",
         .too_large = "plan file '%s' is larger than 16 MB",
         .no_memory = "out of memory reading plan file '%s'",
     };

@@ -402,7 +402,8 @@ int fxl_daylist_import_file(fxl_ctx *ctx, fxl_daylist_result *out, const char *p
         return fxl_fail(ctx, FXL_EINVAL, "no day list file given");
     f = strcmp(path, "-") == 0 ? stdin : fopen(path, "rb");
     if (!f)
-        return fxl_fail(ctx, errno == ENOENT ? FXL_ENOTFOUND : FXL_EIO, "cannot open day list '%s': %s",
+        return fxl_fail(ctx, errno == ENOENT || errno == ENOTDIR ? FXL_ENOTFOUND : FXL_EINVAL,
+                        "cannot open day list '%s': %s",
                         path, strerror(errno));
     if (!(buf = malloc(DAYLIST_BYTES_MAX + 1))) {
         rc = fxl_fail(ctx, FXL_EIO, "out of memory reading a day list");
@@ -414,7 +415,7 @@ int fxl_daylist_import_file(fxl_ctx *ctx, fxl_daylist_result *out, const char *p
             break;
     }
     if (ferror(f)) {
-        rc = fxl_fail(ctx, FXL_EIO, "cannot read day list '%s'", path);
+        rc = fxl_fail(ctx, FXL_EINVAL, "cannot read day list '%s': %s", path, strerror(errno));
         goto cleanup;
     }
     buf[len] = '\0';
