@@ -126,5 +126,6 @@ int cmd_today(cli_env *env, int argc, char **argv);
 int cmd_stats(cli_env *env, int argc, char **argv);
 int cmd_export(cli_env *env, int argc, char **argv);
 int cmd_audit(cli_env *env, int argc, char **argv);
+int cmd_serve(cli_env *env, int argc, char **argv);
 
 #endif

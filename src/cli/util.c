@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/manpage.h"
 #include "fxl/number.h"
 #include "fxl/text.h"
 
@@ -50,6 +51,10 @@ static void print_usage(const char *synopsis, const char *about, const cli_opt *
 {
     const cli_opt *o;
 
+    if (cli_man_mode) {
+        cli_man_usage(synopsis, about, opts);
+        return;
+    }
     printf("usage: fxledger %s\n", synopsis);
     if (about)
         printf("\n%s\n", about);
@@ -170,6 +175,8 @@ int cli_dispatch_sub(cli_env *env, const cli_sub *subs, const char *about, int a
 {
     const cli_sub *s;
 
+    if (cli_man_mode && argc >= 2 && strcmp(argv[1], "--help") == 0)
+        return cli_man_family(env, subs, about, argv[0]);
     if (argc < 2 || strcmp(argv[1], "--help") == 0 || strcmp(argv[1], "-h") == 0) {
         printf("usage: fxledger %s <sub-command> [options]\n\n%s\n\nsub-commands:\n", argv[0], about);
         for (s = subs; s->name; s++)

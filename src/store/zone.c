@@ -3,6 +3,7 @@
  * with their UTC offset, and typed times (ISO 8601 with an offset, or local
  * wall-clock time) turned into the stored UTC form. */
 #include <ctype.h>
+#include <pthread.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -36,7 +37,34 @@ int fxl_zone_enter(fxl_ctx *ctx, fxl_zone *z)
     return fxl_zone_enter_named(ctx, z, name);
 }
 
+/* TZ is process-wide: in the web console several worker threads may need
+ * the zone at once, so one (recursive: a zoned function may call another)
+ * lock is held from entering the zone to leaving it. */
+static pthread_mutex_t g_zone_lock;
+static pthread_once_t g_zone_once = PTHREAD_ONCE_INIT;
+
+static void zone_lock_init(void)
+{
+    pthread_mutexattr_t a;
+    pthread_mutexattr_init(&a);
+    pthread_mutexattr_settype(&a, PTHREAD_MUTEX_RECURSIVE);
+    pthread_mutex_init(&g_zone_lock, &a);
+    pthread_mutexattr_destroy(&a);
+}
+
+static int zone_enter_locked(fxl_ctx *ctx, fxl_zone *z, const char *name);
+
 int fxl_zone_enter_named(fxl_ctx *ctx, fxl_zone *z, const char *name)
+{
+    int rc;
+    pthread_once(&g_zone_once, zone_lock_init);
+    pthread_mutex_lock(&g_zone_lock);
+    if ((rc = zone_enter_locked(ctx, z, name)) != 0 || !z->active)
+        pthread_mutex_unlock(&g_zone_lock);
+    return rc;
+}
+
+static int zone_enter_locked(fxl_ctx *ctx, fxl_zone *z, const char *name)
 {
     const char *dir = getenv("TZDIR"), *old = getenv("TZ");
     char path[512];
@@ -75,6 +103,7 @@ void fxl_zone_leave(fxl_zone *z)
         unsetenv("TZ");
     tzset();
     z->active = 0;
+    pthread_mutex_unlock(&g_zone_lock);
 }
 
 int fxl_zone_epoch(time_t *out, const char *stored)

@@ -88,6 +88,14 @@ typedef struct web_req {
     const char *download_name;   /* attachment file name, NULL if inline */
 } web_req;
 
+/* A request header or cookie; NULL when absent (server.c). */
+const char *web_header(web_req *r, const char *name);
+const char *web_cookie(web_req *r, const char *name);
+/* 1 while this address has made fewer login attempts than the limit in the
+ * last minute (and counts this one); 0: answer 429. */
+int web_login_rate_ok(const char *addr);
+void web_set_login_rate(unsigned per_minute);
+
 /* Query (GET) or form (POST) value; NULL when absent. */
 const char *web_arg(web_req *r, const char *name);
 /* Integer argument > 0, or 0 when absent or not a positive integer. */
@@ -162,8 +170,11 @@ void web_csrf_field(web_req *r);
 /* A verdict badge: shape + words, never colour alone. name is the schema
  * name ("within_tolerance", ...). */
 void web_verdict_badge(web_buf *b, const char *name);
-/* A stored UTC time for display ("2026-11-02 09:00 UTC"); "" stays "". */
-void web_time(web_buf *b, const char *stored);
+/* A stored UTC time shown in the department's zone ("2026-11-02 10:00
+ * +01:00") inside <time>; "" prints a dash. */
+void web_time(web_req *r, const char *stored);
+/* The caution every clinical screen keeps. */
+void web_caveat(web_req *r);
 
 /* ---- the SVG trend chart (chart.c) ------------------------------------------------ */
 
@@ -187,6 +198,8 @@ int web_page_home(web_req *r);
 int web_page_login(web_req *r);
 int web_do_login(web_req *r);
 int web_do_logout(web_req *r);
+int web_do_first_password(web_req *r);
+int web_do_users_deactivate(web_req *r);
 int web_page_password(web_req *r);
 int web_do_password(web_req *r);
 int web_page_queue(web_req *r);

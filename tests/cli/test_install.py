@@ -35,6 +35,10 @@ class InstallTest(unittest.TestCase):
             doc = os.path.join(prefix, "share", "doc", "fxledger")
             self.assertTrue(os.path.isfile(os.path.join(doc, "README.md")))
             self.assertTrue(os.path.isfile(os.path.join(doc, "docs", "record.md")))
+            # The manual pages the build wrote, gzipped (Debian policy 12.1).
+            man1 = os.path.join(prefix, "share", "man", "man1")
+            self.assertTrue(os.path.isfile(os.path.join(man1, "fxledger.1.gz")))
+            self.assertTrue(os.path.isfile(os.path.join(man1, "fxledger-record.1.gz")))
 
     def test_destdir_stages_under_the_prefix(self):
         with tempfile.TemporaryDirectory() as d:
