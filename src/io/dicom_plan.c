@@ -316,9 +316,15 @@ static int get_num(const parser *p, const char *where, const cJSON *ds, const ta
             return missing(p, where, t);
         return 0;
     }
-    if (as_number(cJSON_GetArrayItem(v, index), out) != 0)
-        return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: %s (%.4s,%.4s) must be a number", p->name, where,
-                        t->keyword, t->hex, t->hex + 4);
+    if (as_number(cJSON_GetArrayItem(v, index), out) != 0) {
+        const cJSON *x = cJSON_GetArrayItem(v, index);
+        char shown[40];
+        /* the text as written, made printable: "0x1.7b8p3" is not decimal (PS3.5 6.2) */
+        fxl_text_printable(shown, sizeof shown, cJSON_IsString(x) ? x->valuestring : "");
+        return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: %s (%.4s,%.4s)%s%s%s must be a plain decimal number",
+                        p->name, where, t->keyword, t->hex, t->hex + 4, cJSON_IsString(x) ? " '" : "",
+                        shown, cJSON_IsString(x) ? "'" : "");
+    }
     return 1;
 }
 

@@ -269,6 +269,10 @@ int fxl_open(fxl_ctx **out, const char *path, int flags)
                         "database '%s' does not exist (create it with 'fxledger init')", path);
     }
 
+    /* A write-protected file would be opened read-only without a word (and
+     * its -wal and -shm left beside it): refused before SQLite opens it. */
+    if (!ctx->readonly && !(flags & FXL_OPEN_CREATE) && access(path, W_OK) != 0 && errno == EACCES)
+        return fxl_fail(ctx, FXL_EIO, "database file '%s' is read-only; nothing was changed", path);
     sqlflags = ctx->readonly ? SQLITE_OPEN_READONLY
                              : SQLITE_OPEN_READWRITE | ((flags & FXL_OPEN_CREATE) ? SQLITE_OPEN_CREATE : 0);
     if (sqlite3_open_v2(path, &ctx->db, sqlflags, NULL) != SQLITE_OK)
