@@ -13,6 +13,7 @@
 #include "cli/cli.h"
 #include "cli/manpage.h"
 #include "cli/session.h"
+#include "fxl/number.h"
 #include "fxl/text.h"
 
 typedef struct cli_command {
@@ -245,8 +246,12 @@ static int take_global_options(cli_env *env, int *argc, char **argv, int *want_h
                 cli_error("option '--password-fd' needs a value N");
                 return -1;
             }
-            fd = strtol(v, &end, 10);
-            if (end == v || *end || fd < 0 || fd > 1024 || fcntl((int)fd, F_GETFD) < 0) {
+            {
+                double d = -1;
+                (void)end;
+                fd = fxl_number_in_range(&d, v, FXL_NUM_WHOLE, 0, 1024) == FXL_NUM_OK ? (long)d : -1;
+            }
+            if (fd < 0 || fcntl((int)fd, F_GETFD) < 0) {
                 cli_error("--password-fd '%s' is not an open file descriptor", v);
                 return -1;
             }

@@ -11,6 +11,7 @@
 #include "cli/record_view.h"
 #include "cli/table.h"
 #include "cli/worklist_view.h"
+#include "fxl/number.h"
 #include "fxl/fraction.h"
 #include "fxl/readings_json.h"
 #include "fxl/text.h"
@@ -247,9 +248,13 @@ static int alert_timeout(cli_env *env)
 
     if (fxl_setting_get(env->ctx, "alert_timeout_s", buf, sizeof buf) != 0)
         return ALERT_TIMEOUT_DEFAULT_S;
-    v = strtol(buf, &end, 10);
-    if (end == buf || *end != '\0' || v < 1 || v > ALERT_TIMEOUT_MAX_S)
-        return ALERT_TIMEOUT_DEFAULT_S;
+    {
+        double d = 0;
+        (void)end;
+        if (fxl_number_in_range(&d, buf, FXL_NUM_WHOLE, 1, ALERT_TIMEOUT_MAX_S) != FXL_NUM_OK)
+            return ALERT_TIMEOUT_DEFAULT_S;
+        v = (long)d;
+    }
     return (int)v;
 }
 

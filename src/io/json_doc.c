@@ -161,8 +161,8 @@ int fxl_jsondoc_syntax_error(const fxl_jsondoc *d, const char *text, size_t len,
     if (fxl_jsondoc_ends_inside_string(text, len)) {
         fxl_jsondoc_line_col(text, len, &line, &col);
         return fxl_fail(d->ctx, FXL_EINVAL,
-                        "%s '%s': malformed JSON: the file ends too early, inside a string, at line %d, "
-                        "column %d (truncated)", d->kind, d->name, line, col);
+                        "%s '%s': malformed JSON: the file ends too early at line %d, column %d, inside a "
+                        "string (truncated)", d->kind, d->name, line, col);
     }
     if (pos >= len) {
         fxl_jsondoc_line_col(text, len, &line, &col);

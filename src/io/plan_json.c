@@ -285,8 +285,8 @@ static int parse_syntax(parser *p, cJSON **out, const char *buf, size_t len)
     if (fxl_jsondoc_ends_inside_string(buf, len)) {
         fxl_jsondoc_line_col(buf, len, &line, &col);
         return fxl_fail(p->ctx, FXL_EINVAL,
-                        "plan file '%s' is not valid JSON: it ends too early, inside a string, at line %d, "
-                        "column %d (truncated file)", p->source, line, col);
+                        "plan file '%s' is not valid JSON: it ends too early at line %d, column %d, inside a "
+                        "string (truncated file)", p->source, line, col);
     }
     fxl_jsondoc_line_col(buf, pos, &line, &col);
     if (len == 0 || at_end)

@@ -321,6 +321,8 @@ class Department:
         d = good_readings()
         d["readings"][0]["detector"] = "D-1001\u200b"
         put("rd_detector_zero_width.json", json.dumps(d))
+        put("dl_dup_key.json", '{"date": "2026-11-02", "appointments": '
+                               '[{"time": "08:30", "mrn": "%s", "mrn": "TEST-0002"}]}' % rf.MRN)
         put("not_json.bin", bytes(range(256)) * 64)
         put("dl_no_header.csv", "08:30,P-1,plan\n")
         put("dl_many.csv", "time,mrn\n" + "".join("08:%02d,P-%d\n" % (i % 60, i) for i in range(501)))
@@ -960,6 +962,7 @@ def strict_cases(f):
         # Repeated DICOM tags, at the top and in a nested item.
         (M, dcm(f["dcm_dup_tag.json"]), dict(expect="tag (0010,0020) appears twice")),
         (M, dcm(f["dcm_dup_nested_tag.json"]), dict(expect="tag (300A,0086) appears twice")),
+        (M, ["today", "--day-list", f["dl_dup_key.json"]], dict(expect="key 'mrn' appears twice")),
         # Files cut inside a string: truncated, in every reader.
         (T, ["plan", "import", f["plan_cut_in_string.json"]], dict(expect="inside a string")),
         (T, ["record", "--file", f["rd_cut_in_string.json"]], dict(user="tina", expect="inside a string")),
