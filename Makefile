@@ -1,8 +1,10 @@
 # Thin wrapper around CMake: the two set-up commands from the README.
 #   make demo   build fxledger and run the invented demo scenario into demo/out/
+#   make console  the web console on the demo database (http://127.0.0.1:8617/)
 #   make test   build fxledger and run every test (ctest)
 #   make bench  build fxledger and run the benchmark on synthetic databases (docs/performance.md)
 #   make install  build, then install fxledger into PREFIX (default /usr/local)
+#   make package  build, then the Debian package build/fxledger_VERSION-1_ARCH.deb (CPack DEB)
 # Both first install the Debian packages the project needs when they are missing.
 # Robustness (docs/robustness.md):
 #   make sanitize   AddressSanitizer + UBSan build in build-asan, every test there
@@ -19,7 +21,7 @@ FUZZ_BUILD ?= build-fuzz
 FUZZ_SECONDS ?= 60
 FUZZ_PARSERS ?= plan_json readings_json corrections_json beam_json dicom_json dicom_part10
 
-.PHONY: all deps build test demo clean sanitize valgrind fuzz install uninstall
+.PHONY: all deps build test demo console clean sanitize valgrind fuzz install uninstall package
 
 all: build
 
@@ -41,6 +43,11 @@ test: build
 install: build
 	cmake --install $(BUILD) --prefix $(PREFIX)
 
+# The Debian package (cmake/packaging.cmake, docs/deployment.md): CPack's DEB
+# generator, dependencies by dpkg-shlibdeps; the .deb lands in $(BUILD)/.
+package: build
+	cd $(BUILD) && cpack -G DEB
+
 # Removes what 'make install' put in place (the list CMake wrote).
 uninstall:
 	@test -f $(BUILD)/install_manifest.txt || { echo "nothing installed from $(BUILD)" >&2; exit 1; }
@@ -48,6 +55,12 @@ uninstall:
 
 demo: build
 	/usr/bin/python3 demo/run_demo.py $(BUILD)/fxledger-testclock
+
+# The web console on the demo database (made first when missing), with the
+# program users run (real clock): http://127.0.0.1:8617/, logins in README.md.
+console: build
+	@test -f demo/out/demo.db || /usr/bin/python3 demo/run_demo.py $(BUILD)/fxledger-testclock
+	$(BUILD)/fxledger --db demo/out/demo.db serve --listen 127.0.0.1:8617
 
 # Sanitizer reports go to files (a report from a command that a test expects
 # to fail would otherwise pass unseen); any report fails the target.

@@ -32,6 +32,35 @@ int fxl_audit_anchor(fxl_ctx *ctx, char *buf, size_t size);
  * FXL_ECONFLICT with a message naming the first failing row or check. */
 int fxl_audit_verify(fxl_ctx *ctx, fxl_verify_report *out);
 
+/* ---- proving the record (docs/audit.md) -------------------------------- */
+
+#define FXL_RECORD_PROBLEMS_MAX 12
+#define FXL_RECORD_PROBLEM_LEN 400
+
+typedef struct fxl_record_report {
+    int64_t rows_checked;       /* clinical rows matched with their seals or audit rows */
+    int64_t seals_checked;      /* row seals matched with their audit rows */
+    int64_t objects_checked;    /* schema objects compared with the migrations' */
+    int anchor_given;           /* an anchor line was checked */
+    int64_t anchor_rows;        /* its row count */
+    int n_problems;             /* 0: the record holds */
+    char problem[FXL_RECORD_PROBLEMS_MAX][FXL_RECORD_PROBLEM_LEN];  /* first of each kind */
+} fxl_record_report;
+
+/* Proves the record beyond the chain: the schema and every trigger are
+ * exactly those of the migrations; every sealed row matches its latest
+ * seal and every seal its row; every audit row's seals match the hash the
+ * chain holds for them; users and settings match the audit rows that wrote
+ * them; every review item's status is that of its latest event; and, with
+ * `anchor` (a line of fxl_audit_anchor, or NULL), the chain still holds
+ * the anchored row with the anchored hash. Each kind of failure names its
+ * first row or object in out->problem. Returns 0 (also when problems were
+ * found: see n_problems) or a negative FXL_E code when it could not check. */
+int fxl_record_verify(fxl_ctx *ctx, const char *anchor, fxl_record_report *out);
+
+/* Parses an anchor line; 0 or FXL_EINVAL naming what is wrong. */
+int fxl_anchor_parse(fxl_ctx *ctx, const char *line, int64_t *rows, char at[32], char head[65]);
+
 /* ---- reading the trail (fxledger audit) ------------------------------- */
 
 /* Which rows to read; NULL / 0 members do not filter. */

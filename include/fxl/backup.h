@@ -18,7 +18,8 @@ typedef struct fxl_backup_report {
 } fxl_backup_report;
 
 /* Copies the database to `dest_path`, which must not exist yet (FXL_ECONFLICT
- * otherwise; it is created exclusively, mode 0600). Physicist or admin. The
+ * otherwise; it is created exclusively, mode 0600). Physicist, admin or auditor
+ * (the unattended backup logs in as an auditor: docs/deployment.md). The
  * copy is one consistent snapshot taken under a read transaction (WAL lets
  * writers go on meanwhile), made in steps of FXL_BACKUP_STEP_PAGES pages,
  * then checked with PRAGMA quick_check. After the copy an audit row

@@ -119,6 +119,7 @@ int cmd_verify(cli_env *env, int argc, char **argv);
 int cmd_queue(cli_env *env, int argc, char **argv);
 int cmd_amend(cli_env *env, int argc, char **argv);
 int cmd_backup(cli_env *env, int argc, char **argv);
+int cmd_restore(cli_env *env, int argc, char **argv);
 int cmd_report(cli_env *env, int argc, char **argv);
 int cmd_login(cli_env *env, int argc, char **argv);
 int cmd_logout(cli_env *env, int argc, char **argv);

@@ -15,7 +15,8 @@ int cmd_backup(cli_env *env, int argc, char **argv)
                    "checked with SQLite's quick_check and verified (fxledger verify) under a\n"
                    "temporary name before it takes the name FILE: a failed or killed backup leaves\n"
                    "no file under that name. Other users may keep logging meanwhile.\n"
-                   "The backup is recorded in the audit log. Physicist or admin.",
+                   "The backup is recorded in the audit log. Physicist, admin or auditor\n"
+                   "(the scheduled backup logs in as an auditor account: docs/deployment.md).",
                    opts, argc, argv, pos, 1, &npos);
     if (rc != 0)
         return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;

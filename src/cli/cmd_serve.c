@@ -45,6 +45,7 @@ int cmd_serve(cli_env *env, int argc, char **argv)
     cli_opt opts[] = {{"listen", "ADDR:PORT", "address and port to listen on (default 127.0.0.1:8617; port 0 picks one)", NULL},
                       {"tls-cert", "FILE", "PEM certificate: serve HTTPS (with --tls-key)", NULL},
                       {"tls-key", "FILE", "PEM private key of the certificate", NULL},
+                      {"behind-tls-proxy", NULL, "a TLS reverse proxy on this host forwards to us: mark cookies Secure, send HSTS", NULL},
                       {"threads", "N", "worker threads, each with its own database connection (default 4)", NULL},
                       {"login-rate", "N", "login attempts per minute per client address (default 10)", NULL},
                       {NULL, NULL, NULL, NULL}};
@@ -75,6 +76,7 @@ int cmd_serve(cli_env *env, int argc, char **argv)
     }
     o.tls_cert = cli_get(opts, "tls-cert");
     o.tls_key = cli_get(opts, "tls-key");
+    o.behind_tls_proxy = cli_get(opts, "behind-tls-proxy") != NULL;
     if (!o.tls_cert != !o.tls_key) {
         cli_error("--tls-cert and --tls-key go together");
         return CLI_EXIT_USAGE;

@@ -1,37 +1,74 @@
 /* fxledger verify: walk the audit chain, run SQLite's integrity and
- * foreign-key checks, and check every electronic signature. */
+ * foreign-key checks, check every electronic signature, and prove the
+ * record: schema and triggers, every row against its seal, users and
+ * settings against their audit rows, and the chain against an anchor
+ * (docs/audit.md). */
+#include <stdio.h>
+
 #include "cli/cli.h"
 #include "fxl/audit.h"
 #include "fxl/auth.h"
 
 int cmd_verify(cli_env *env, int argc, char **argv)
 {
-    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    cli_opt opts[] = {{"anchor", NULL, "print the anchor line of the verified record (no LINE), or check the record against LINE", NULL},
+                      {NULL, NULL, NULL, NULL}};
     fxl_verify_report r;
     fxl_signature_report sr;
-    const char *pos[1];
-    char chain_msg[512] = "";
-    int npos, rc, src;
+    fxl_record_report rr;
+    const char *pos[1] = {NULL}, *anchor = NULL;
+    char chain_msg[512] = "", line[FXL_ANCHOR_LEN] = "";
+    int npos, rc, src, rrc, i, ok;
 
     rc = cli_parse(env, "verify",
                    "Recomputes the SHA-256 hash chain of the audit log from its first row, runs\n"
                    "SQLite's integrity and foreign-key checks, and checks every electronic\n"
                    "signature against its signer's public key (as the audit chain recorded it)\n"
                    "over the signed row as it is now; a row that must be signed but is not is a\n"
-                   "failure too. Names the first row that does not match. Exit 0 when everything\n"
-                   "holds, 2 when something does not.",
-                   opts, argc, argv, pos, 0, &npos);
+                   "failure too. Then proves the record: the schema and every guard trigger are\n"
+                   "exactly those of the migrations, every clinical row matches the seal its audit\n"
+                   "row holds and every seal its row, users and settings match the audit rows\n"
+                   "that wrote them, and every review item's status is that of its latest event.\n"
+                   "--anchor alone prints one line (row count, time and hash of the chain head) to\n"
+                   "keep outside the database; --anchor LINE proves that the record since that\n"
+                   "line is intact and nothing before it was rewritten or removed. Names the\n"
+                   "first row or object that does not match. Exit 0 when everything holds, 2 when\n"
+                   "something does not. Without an anchor, whoever can write the file can still\n"
+                   "rewrite the whole record consistently (docs/audit.md).",
+                   opts, argc, argv, pos, 1, &npos);
     if (rc != 0)
         return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos > 0 && !cli_get(opts, "anchor")) {
+        cli_error("unexpected argument '%s' (an anchor LINE follows --anchor)", pos[0]);
+        return CLI_EXIT_USAGE;
+    }
+    anchor = npos > 0 ? pos[0] : NULL;
     if ((rc = fxl_require_role(env->ctx, FXL_ROLES_ANY, "verify")) != 0)
         return cli_fail(env, rc);
+    if (anchor) {
+        int64_t n;
+        char at[32], head[65];
+        if ((rc = fxl_anchor_parse(env->ctx, anchor, &n, at, head)) != 0) {
+            cli_error("%s", fxl_errmsg(env->ctx));
+            return CLI_EXIT_USAGE;
+        }
+    }
     rc = fxl_audit_verify(env->ctx, &r);
     if (rc != 0)
         snprintf(chain_msg, sizeof chain_msg, "%s", fxl_errmsg(env->ctx));
+    rrc = fxl_record_verify(env->ctx, anchor, &rr);
+    if (rrc != 0) {
+        snprintf(rr.problem[0], sizeof rr.problem[0], "record check failed: %s", fxl_errmsg(env->ctx));
+        rr.n_problems = 1;
+    }
     src = fxl_signature_verify(env->ctx, &sr);
+    ok = rc == 0 && src == 0 && rr.n_problems == 0;
+    if (ok && cli_get(opts, "anchor") && !anchor && fxl_audit_anchor(env->ctx, line, sizeof line) != 0)
+        return cli_fail(env, FXL_EDB);
     if (env->json) {
         cJSON *o = cJSON_CreateObject();
-        cJSON_AddBoolToObject(o, "ok", rc == 0 && src == 0);
+        cJSON *probs = cJSON_CreateArray();
+        cJSON_AddBoolToObject(o, "ok", ok);
         cJSON_AddNumberToObject(o, "rows_checked", (double)r.rows_checked);
         if (r.first_bad_row)
             cJSON_AddNumberToObject(o, "first_bad_row", (double)r.first_bad_row);
@@ -39,27 +76,54 @@ int cmd_verify(cli_env *env, int argc, char **argv)
         cJSON_AddBoolToObject(o, "foreign_keys_ok", r.foreign_keys_ok);
         cJSON_AddNumberToObject(o, "signatures_checked", (double)sr.checked);
         cJSON_AddBoolToObject(o, "signatures_ok", src == 0);
+        cJSON_AddNumberToObject(o, "record_rows_checked", (double)rr.rows_checked);
+        cJSON_AddNumberToObject(o, "seals_checked", (double)rr.seals_checked);
+        cJSON_AddNumberToObject(o, "schema_objects_checked", (double)rr.objects_checked);
+        if (rr.anchor_given)
+            cJSON_AddNumberToObject(o, "anchor_rows", (double)rr.anchor_rows);
+        if (line[0])
+            cJSON_AddStringToObject(o, "anchor", line);
+        for (i = 0; i < rr.n_problems; i++)
+            cJSON_AddItemToArray(probs, cJSON_CreateString(rr.problem[i]));
+        cJSON_AddItemToObject(o, "record_problems", probs);
         if (src != 0)
             cJSON_AddStringToObject(o, "signature_error", src == FXL_ECONFLICT ? sr.first_bad : fxl_errmsg(env->ctx));
         if (rc != 0)
             cJSON_AddStringToObject(o, "error", chain_msg);
         else if (src != 0)
             cJSON_AddStringToObject(o, "error", fxl_errmsg(env->ctx));
+        else if (rr.n_problems)
+            cJSON_AddStringToObject(o, "error", rr.problem[0]);
         cli_print_json(o);
-        return rc == 0 && src == 0 ? CLI_EXIT_OK : CLI_EXIT_DATA;
+        return ok ? CLI_EXIT_OK : CLI_EXIT_DATA;
     }
-    if (rc != 0) {
-        cli_error("verification failed: %s", chain_msg);
-        if (src != 0)
+    if (!ok) {
+        /* every kind of failure on its own line, each naming its first row */
+        if (rc != 0)
+            cli_error("verification failed: %s", chain_msg);
+        if (src != 0 && rc != 0)
             cli_error("signature check failed: %s", fxl_errmsg(env->ctx));
-        return rc == FXL_ECONFLICT ? CLI_EXIT_DATA : cli_exit_code(rc);
+        else if (src != 0)
+            cli_error("verification failed: %s", fxl_errmsg(env->ctx));
+        for (i = 0; i < rr.n_problems; i++)
+            cli_error("verification failed: %s", rr.problem[i]);
+        if (rc != 0 && rc != FXL_ECONFLICT)
+            return cli_exit_code(rc);
+        if (src != 0 && src != FXL_ECONFLICT)
+            return cli_exit_code(src);
+        return CLI_EXIT_DATA;
     }
-    if (src != 0) {
-        cli_error("verification failed: %s", fxl_errmsg(env->ctx));
-        return src == FXL_ECONFLICT ? CLI_EXIT_DATA : cli_exit_code(src);
+    if (line[0]) {
+        printf("%s\n", line);
+        return CLI_EXIT_OK;
     }
     printf("audit chain intact: %lld rows checked; integrity and foreign-key checks passed; "
            "%lld signature%s verified\n",
            (long long)r.rows_checked, (long long)sr.checked, sr.checked == 1 ? "" : "s");
+    printf("record proven: schema and %lld objects as the migrations create them; %lld rows match "
+           "their seals or audit rows; %lld seals match the chain\n",
+           (long long)rr.objects_checked, (long long)rr.rows_checked, (long long)rr.seals_checked);
+    if (rr.anchor_given)
+        printf("anchor holds: audit rows 1 to %lld are those the anchor names\n", (long long)rr.anchor_rows);
     return CLI_EXIT_OK;
 }

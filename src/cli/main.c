@@ -48,6 +48,7 @@ static const cli_command commands[] = {
     {"backup", cmd_backup, "copy the database online to a file", CLI_NEEDS_DB | CLI_NEEDS_USER},
     {"serve", cmd_serve, "run the department's web console on the database (docs/console.md)", 0},
     {"verify", cmd_verify, "check the audit chain and the database's integrity", CLI_NEEDS_DB | CLI_NEEDS_USER},
+    {"restore", cmd_restore, "restore drill: copy a backup into a new file, verify it, say what it holds", 0},
 };
 
 /* The global options, for --help and fxledger(1). */
@@ -179,8 +180,13 @@ static int write_man_pages(cli_env *env, const char *dir, const char *date)
                  ".TP\n.B NO_COLOR\nwhen set and not empty, no colour in the output\n"
                  ".SH FILES\n.TP\n.I /var/lib/fxledger/fxledger.db\n"
                  "the database of a server installation (mode 0600, owned by the fxledger account)\n"
-                 ".TP\n.I /lib/systemd/system/fxledger.service\n"
-                 "the web console as a service, not enabled at installation\n");
+                 ".TP\n.I /usr/lib/systemd/system/fxledger.service\n"
+                 "the web console as a service, not enabled at installation\n"
+                 ".TP\n.I /usr/lib/systemd/system/fxledger\\-backup.timer\n"
+                 "the daily backup with rotation, not enabled at installation; it logs in as an\n"
+                 "auditor with the password in\n.I /etc/fxledger/backup.password\n"
+                 ".TP\n.I /var/backups/fxledger/\n"
+                 "where the scheduled backups go\n");
     man_footer(out, NULL);
     if (fclose(out) != 0)
         rc = CLI_EXIT_DB;

@@ -7,6 +7,7 @@
 
 #include "fxl/audit.h"
 #include "store/audit.h"
+#include "store/seal.h"
 #include "store/stmt.h"
 
 static const char GENESIS[65] =
@@ -21,13 +22,15 @@ void fxl_sha256_hex(char hex[65], const void *data, size_t len)
 }
 
 /* The canonical text hashed for one row: the fields joined by '\n' in a
- * fixed order (docs/audit.md). entity_id is "" when NULL. */
+ * fixed order (docs/audit.md). entity_id is "" when NULL. A row that seals
+ * rows (version 11) appends "\nseal:" and the SHA-256 of its seals; a row
+ * without seals hashes exactly as before. */
 static void row_hash(char out[65], const char *prev_hash, int64_t id, const char *at,
                      const char *user, const char *action, const char *entity,
-                     const char *entity_id, const char *content)
+                     const char *entity_id, const char *content, const char *seal)
 {
     size_t len = strlen(prev_hash) + strlen(at) + strlen(user) + strlen(action) +
-                 strlen(entity) + strlen(entity_id) + strlen(content) + 64;
+                 strlen(entity) + strlen(entity_id) + strlen(content) + strlen(seal) + 80;
     char *buf = malloc(len);
     int n;
 
@@ -36,8 +39,8 @@ static void row_hash(char out[65], const char *prev_hash, int64_t id, const char
         out[64] = '\0';
         return;
     }
-    n = snprintf(buf, len, "%s\n%lld\n%s\n%s\n%s\n%s\n%s\n%s", prev_hash, (long long)id, at,
-                 user, action, entity, entity_id, content);
+    n = snprintf(buf, len, "%s\n%lld\n%s\n%s\n%s\n%s\n%s\n%s%s%s", prev_hash, (long long)id, at,
+                 user, action, entity, entity_id, content, seal[0] ? "\nseal:" : "", seal);
     fxl_sha256_hex(out, buf, (size_t)n);
     free(buf);
 }
@@ -46,7 +49,7 @@ int fxl_audit_append(fxl_ctx *ctx, const char *action, const char *entity,
                      int64_t entity_id, const cJSON *content)
 {
     fxl_stmt last = FXL_STMT_INIT, ins = FXL_STMT_INIT;
-    char prev[65], hash[65], at[FXL_TIME_LEN], idtext[24] = "";
+    char prev[65], hash[65], seal[65] = "", at[FXL_TIME_LEN], idtext[24] = "";
     char *text = NULL;
     int64_t id = 1;
     int rc;
@@ -67,15 +70,22 @@ int fxl_audit_append(fxl_ctx *ctx, const char *action, const char *entity,
     } else {
         memcpy(prev, GENESIS, sizeof prev);
     }
+    fxl_stmt_finalize(&last);
+    if ((rc = fxl_seal_pending(ctx, id, seal)) != 0)
+        goto cleanup;
     fxl_now(ctx, at);
     if (entity_id)
         snprintf(idtext, sizeof idtext, "%lld", (long long)entity_id);
-    row_hash(hash, prev, id, at, ctx->user_login, action, entity, idtext, text);
+    row_hash(hash, prev, id, at, ctx->user_login, action, entity, idtext, text, seal);
 
-    if ((rc = fxl_stmt_prepare(&ins, ctx,
-                               "INSERT INTO audit_log (id, at, user, action, entity, entity_id, content, prev_hash, hash, client) "
-                               "VALUES (:id, :at, :user, :action, :entity, :entity_id, :content, :prev, :hash, :client)")) != 0)
+    if ((rc = fxl_stmt_prepare(&ins, ctx, ctx->sealing
+            ? "INSERT INTO audit_log (id, at, user, action, entity, entity_id, content, prev_hash, hash, client, seal) "
+              "VALUES (:id, :at, :user, :action, :entity, :entity_id, :content, :prev, :hash, :client, :seal)"
+            : "INSERT INTO audit_log (id, at, user, action, entity, entity_id, content, prev_hash, hash, client) "
+              "VALUES (:id, :at, :user, :action, :entity, :entity_id, :content, :prev, :hash, :client)")) != 0)
         goto cleanup;
+    if (ctx->sealing)
+        fxl_stmt_bind_text(&ins, ":seal", seal[0] ? seal : NULL);
     fxl_stmt_bind_int(&ins, ":id", id);
     fxl_stmt_bind_text(&ins, ":at", at);
     fxl_stmt_bind_text(&ins, ":user", ctx->user_login);
@@ -113,12 +123,13 @@ int fxl_audit_verify(fxl_ctx *ctx, fxl_verify_report *out)
         return fxl_fail(ctx, FXL_EIO, "cannot initialise libsodium");
     if ((rc = fxl_stmt_prepare(&s, ctx,
                                "SELECT id, at, user, action, entity, coalesce(entity_id, ''), content, "
-                               "prev_hash, hash FROM audit_log ORDER BY id")) != 0)
+                               "prev_hash, hash, coalesce(seal, '') FROM audit_log ORDER BY id")) != 0)
         goto cleanup;
     while ((rc = fxl_stmt_step(&s)) == 1) {
         int64_t id = fxl_stmt_int(&s, 0);
         row_hash(hash, prev, id, fxl_stmt_text(&s, 1), fxl_stmt_text(&s, 2), fxl_stmt_text(&s, 3),
-                 fxl_stmt_text(&s, 4), fxl_stmt_text(&s, 5), fxl_stmt_text(&s, 6));
+                 fxl_stmt_text(&s, 4), fxl_stmt_text(&s, 5), fxl_stmt_text(&s, 6),
+                 fxl_stmt_text(&s, 9));
         if (id != expect_id || strcmp(prev, fxl_stmt_text(&s, 7)) != 0 ||
             strcmp(hash, fxl_stmt_text(&s, 8)) != 0) {
             out->first_bad_row = id != expect_id ? expect_id : id;

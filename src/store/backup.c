@@ -90,7 +90,7 @@ int fxl_backup(fxl_ctx *ctx, fxl_backup_report *out, const char *dest_path)
     int rc, src_rc, reading = 0, busy_run = 0, committed = 0;
 
     memset(out, 0, sizeof *out);
-    if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "backing up the database")) != 0)
+    if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS | FXL_ROLE_AUDITOR, "backing up the database")) != 0)
         return rc;
     if (!dest_path || !*dest_path)
         return fxl_fail(ctx, FXL_EINVAL, "a file name for the backup is required");

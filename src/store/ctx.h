@@ -21,6 +21,7 @@ struct fxl_ctx {
     int64_t sign_key_id;
     int64_t sign_user_id;
     char origin[64];       /* client address of a served request, "" if none */
+    int sealing;           /* 1: rows written are sealed by the next audit row (store/seal.c) */
 };
 
 /* Maps the connection's last SQLite error to FXL_EBUSY, FXL_ECONFLICT (a

@@ -15,6 +15,7 @@
 #include "store/audit.h"
 #include "store/ctx.h"
 #include "store/migrations.h"
+#include "store/seal.h"
 #include "store/stmt.h"
 
 /* How long a writer waits for another process's lock before "busy". */
@@ -100,6 +101,33 @@ int fxl_schema_version(fxl_ctx *ctx)
     return v;
 }
 
+/* The schema version from which rows are sealed (sql/011). */
+#define SEAL_VERSION 11
+
+/* In the migration to version 11: seals every row written before it, under
+ * one audit row of the migration (user "(migration)", which no login can
+ * be), so that verify proves them like any later row. Nothing when the
+ * database holds no sealed row yet (a new database). */
+static int seal_existing(fxl_ctx *ctx)
+{
+    char login[sizeof ctx->user_login];
+    cJSON *content = NULL;
+    int64_t n = 0;
+    int rc;
+
+    if ((rc = fxl_seal_attach(ctx)) != 0 || (rc = fxl_seal_mark_all(ctx, &n)) != 0 || n == 0)
+        return rc;
+    content = cJSON_CreateObject();
+    cJSON_AddStringToObject(content, "reason", "rows written before schema version 11");
+    cJSON_AddNumberToObject(content, "rows", (double)n);
+    memcpy(login, ctx->user_login, sizeof login);
+    snprintf(ctx->user_login, sizeof ctx->user_login, "(migration)");
+    rc = fxl_audit_append(ctx, "seal", "row_seals", 0, content);
+    memcpy(ctx->user_login, login, sizeof login);
+    cJSON_Delete(content);
+    return rc;
+}
+
 /* Applies every migration above the file's user_version, each in its own
  * transaction together with the version bump. */
 static int migrate(fxl_ctx *ctx, int from_version)
@@ -114,6 +142,8 @@ static int migrate(fxl_ctx *ctx, int from_version)
         if ((rc = fxl_exec(ctx, "BEGIN IMMEDIATE")) != 0)
             return rc;
         rc = fxl_exec(ctx, m->sql);
+        if (rc == 0 && m->version == SEAL_VERSION)
+            rc = seal_existing(ctx);
         if (rc == 0) {
             snprintf(sql, sizeof sql, "PRAGMA user_version = %d", m->version);
             rc = fxl_exec(ctx, sql);
@@ -320,6 +350,8 @@ int fxl_open(fxl_ctx **out, const char *path, int flags)
         }
         if (version < fxl_schema_latest() && (rc = migrate(ctx, version)) != 0)
             return rc;
+        if (fxl_schema_latest() >= SEAL_VERSION && (rc = fxl_seal_attach(ctx)) != 0)
+            return rc;
     } else if (version < fxl_schema_latest()) {
         return fxl_fail(ctx, FXL_EVERSION,
                         "database '%s' has schema version %d; open it once for writing to upgrade",
@@ -438,7 +470,21 @@ int fxl_begin(fxl_ctx *ctx)
 
 int fxl_commit(fxl_ctx *ctx)
 {
-    int rc = fxl_exec(ctx, "COMMIT");
+    int rc = 0;
+
+    /* Rows written after the last audit row of the transaction are sealed
+     * by one more audit row, so that no row is ever left unsealed. */
+    if (fxl_seal_has_pending(ctx)) {
+        cJSON *content = cJSON_CreateObject();
+        cJSON_AddStringToObject(content, "reason", "rows written after the last audit row of their transaction");
+        rc = fxl_audit_append(ctx, "seal", "row_seals", 0, content);
+        cJSON_Delete(content);
+        if (rc != 0) {
+            fxl_rollback(ctx);
+            return rc;
+        }
+    }
+    rc = fxl_exec(ctx, "COMMIT");
     if (rc != 0)
         fxl_rollback(ctx);
     return rc;
@@ -494,8 +540,15 @@ int fxl_setting_set(fxl_ctx *ctx, const char *key, const char *value)
 
     if ((rc = fxl_require_role(ctx, FXL_ROLES_PHYSICS, "changing settings")) != 0)
         return rc;
+    /* The audit row first: the settings guard (sql/011) accepts a new value
+     * only when the newest audit row names it. */
     if ((rc = fxl_begin(ctx)) != 0)
         return rc;
+    content = cJSON_CreateObject();
+    cJSON_AddStringToObject(content, "key", key);
+    cJSON_AddStringToObject(content, "value", value);
+    if ((rc = fxl_audit_append(ctx, "set", "settings", 0, content)) != 0)
+        goto cleanup;
     if ((rc = fxl_stmt_prepare(&s, ctx,
                                "INSERT INTO settings (key, value) VALUES (:key, :value) "
                                "ON CONFLICT (key) DO UPDATE SET value = excluded.value")) != 0)
@@ -503,11 +556,6 @@ int fxl_setting_set(fxl_ctx *ctx, const char *key, const char *value)
     fxl_stmt_bind_text(&s, ":key", key);
     fxl_stmt_bind_text(&s, ":value", value);
     if ((rc = fxl_stmt_exec(&s)) != 0)
-        goto cleanup;
-    content = cJSON_CreateObject();
-    cJSON_AddStringToObject(content, "key", key);
-    cJSON_AddStringToObject(content, "value", value);
-    if ((rc = fxl_audit_append(ctx, "set", "settings", 0, content)) != 0)
         goto cleanup;
     rc = fxl_commit(ctx);
 cleanup:

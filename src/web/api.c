@@ -403,22 +403,42 @@ int web_api_verify(web_req *r)
 {
     fxl_verify_report vr;
     fxl_signature_report sr;
-    char anchor[FXL_ANCHOR_LEN] = "";
-    cJSON *o;
-    int rc, src;
+    fxl_record_report rr;
+    char anchor[FXL_ANCHOR_LEN] = "", at[32], head[65];
+    const char *given = web_arg(r, "anchor");
+    int64_t rows;
+    cJSON *o, *probs;
+    int rc, src, rrc, i;
 
+    if (given && !*given)
+        given = NULL;
+    if (given && (rc = fxl_anchor_parse(r->ctx, given, &rows, at, head)) != 0)
+        return web_fail_store(r, rc);
     if ((rc = fxl_begin_read(r->ctx)) != 0)
         return web_fail_store(r, rc);
     memset(&vr, 0, sizeof vr);
     memset(&sr, 0, sizeof sr);
+    memset(&rr, 0, sizeof rr);
     rc = fxl_audit_verify(r->ctx, &vr);
     src = fxl_signature_verify(r->ctx, &sr);
+    rrc = fxl_record_verify(r->ctx, given, &rr);
+    if (rrc != 0) {
+        snprintf(rr.problem[0], sizeof rr.problem[0], "record check failed: %s", fxl_errmsg(r->ctx));
+        rr.n_problems = 1;
+    }
     if (fxl_audit_anchor(r->ctx, anchor, sizeof anchor) != 0)
         anchor[0] = '\0';
     fxl_rollback(r->ctx);
     o = cJSON_CreateObject();
-    cJSON_AddBoolToObject(o, "ok", rc == 0 && src == 0);
+    cJSON_AddBoolToObject(o, "ok", rc == 0 && src == 0 && rr.n_problems == 0);
     cJSON_AddNumberToObject(o, "rows_checked", (double)vr.rows_checked);
+    cJSON_AddNumberToObject(o, "record_rows_checked", (double)rr.rows_checked);
+    cJSON_AddNumberToObject(o, "seals_checked", (double)rr.seals_checked);
+    if (rr.anchor_given)
+        cJSON_AddNumberToObject(o, "anchor_rows", (double)rr.anchor_rows);
+    probs = cJSON_AddArrayToObject(o, "record_problems");
+    for (i = 0; i < rr.n_problems; i++)
+        cJSON_AddItemToArray(probs, cJSON_CreateString(rr.problem[i]));
     cJSON_AddBoolToObject(o, "integrity_ok", vr.integrity_ok);
     cJSON_AddBoolToObject(o, "foreign_keys_ok", vr.foreign_keys_ok);
     cJSON_AddNumberToObject(o, "signatures_checked", (double)sr.checked);

@@ -35,7 +35,7 @@ void web_chart(web_buf *b, const char *title, const web_chart_point *pts, size_t
         ylim = action_pct * 1.25;
     if (isfinite(tolerance_pct) && tolerance_pct * 1.25 > ylim)
         ylim = tolerance_pct * 1.25;
-    ylim = ceil(ylim);
+    ylim = ceil(ylim * 1.1);
     if (xmax <= xmin)
         xmax = xmin + 1;
 

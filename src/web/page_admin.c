@@ -110,29 +110,43 @@ int web_page_verify(web_req *r)
 {
     fxl_verify_report vr;
     fxl_signature_report sr;
-    char anchor[FXL_ANCHOR_LEN], chain_msg[512] = "", sig_msg[512] = "";
-    int rc, src, arc;
+    fxl_record_report rr;
+    const char *given = web_arg(r, "anchor");
+    char anchor[FXL_ANCHOR_LEN], chain_msg[512] = "", sig_msg[512] = "", at[32], head[65];
+    int64_t rows;
+    int rc, src, arc, rrc, i;
 
+    if (given && !*given)
+        given = NULL;
+    if (given && (rc = fxl_anchor_parse(r->ctx, given, &rows, at, head)) != 0)
+        return web_fail_store(r, rc);
     if ((rc = fxl_begin_read(r->ctx)) != 0)
         return web_fail_store(r, rc);
     memset(&vr, 0, sizeof vr);
     memset(&sr, 0, sizeof sr);
+    memset(&rr, 0, sizeof rr);
     rc = fxl_audit_verify(r->ctx, &vr);
     if (rc != 0)
         snprintf(chain_msg, sizeof chain_msg, "%s", fxl_errmsg(r->ctx));
     src = fxl_signature_verify(r->ctx, &sr);
     if (src != 0)
         snprintf(sig_msg, sizeof sig_msg, "%s", src == FXL_ECONFLICT ? sr.first_bad : fxl_errmsg(r->ctx));
+    rrc = fxl_record_verify(r->ctx, given, &rr);
+    if (rrc != 0) {
+        snprintf(rr.problem[0], sizeof rr.problem[0], "record check failed: %s", fxl_errmsg(r->ctx));
+        rr.n_problems = 1;
+    }
     arc = fxl_audit_anchor(r->ctx, anchor, sizeof anchor);
     fxl_rollback(r->ctx);
-    if (rc == FXL_EBUSY || src == FXL_EBUSY)
+    if (rc == FXL_EBUSY || src == FXL_EBUSY || rrc == FXL_EBUSY)
         return web_fail_store(r, FXL_EBUSY);
     web_page_begin(r, "Verify the record");
-    if (rc == 0 && src == 0)
+    if (rc == 0 && src == 0 && rr.n_problems == 0)
         web_printf(&r->out, "<div class=\"notice done big\" role=\"status\">Verified: the audit chain of %L rows is "
-                            "intact, SQLite's integrity and foreign-key checks pass, and all %L signatures are valid."
-                            "</div>\n",
-                   vr.rows_checked, sr.checked);
+                            "intact, the record matches it (%L rows, %L seals, %L schema objects), SQLite's integrity "
+                            "and foreign-key checks pass, and all %L signatures are valid.%s</div>\n",
+                   vr.rows_checked, rr.rows_checked, rr.seals_checked, rr.objects_checked, sr.checked,
+                   rr.anchor_given ? " The anchor line given holds." : "");
     else {
         web_printf(&r->out, "<div class=\"notice refusal big\" role=\"alert\">\xE2\x9C\x95 Verification FAILED.");
         if (rc != 0)
@@ -140,17 +154,34 @@ int web_page_verify(web_req *r)
         if (src != 0)
             web_printf(&r->out, " Signatures: %h.", sig_msg);
         web_printf(&r->out, " Tell the physicist in charge and keep the file as it is.</div>\n");
+        if (rr.n_problems) {
+            web_printf(&r->out, "<ul class=\"stop\">");
+            for (i = 0; i < rr.n_problems; i++)
+                web_printf(&r->out, "<li>%h</li>", rr.problem[i]);
+            web_printf(&r->out, "</ul>\n");
+        }
     }
     web_printf(&r->out, "<table class=\"facts\"><tbody><tr><th>Audit rows checked</th><td>%L</td></tr><tr><th>"
+                        "Record rows and seals matched</th><td>%L, %L</td></tr><tr><th>"
                         "Integrity check</th><td>%s</td></tr><tr><th>Foreign keys</th><td>%s</td></tr><tr><th>"
-                        "Signatures checked</th><td>%L</td></tr></tbody></table>\n",
-               vr.rows_checked, vr.integrity_ok ? "\xE2\x9C\x93 ok" : "\xE2\x9C\x95 failed",
+                        "Signatures checked</th><td>%L</td></tr>",
+               vr.rows_checked, rr.rows_checked, rr.seals_checked, vr.integrity_ok ? "\xE2\x9C\x93 ok" : "\xE2\x9C\x95 failed",
                vr.foreign_keys_ok ? "\xE2\x9C\x93 ok" : "\xE2\x9C\x95 failed", sr.checked);
+    if (rr.anchor_given)
+        web_printf(&r->out, "<tr><th>Anchor given</th><td>%s rows 1 to %L</td></tr>",
+                   rr.n_problems ? "checked:" : "\xE2\x9C\x93 holds for", rr.anchor_rows);
+    web_printf(&r->out, "</tbody></table>\n");
     if (arc == 0)
         web_printf(&r->out, "<h2>Anchor line</h2><p>Keep this line outside the database (on paper, in an e-mail, on "
-                            "another machine): <code>fxledger verify --anchor 'LINE'</code> later proves that rows 1 "
-                            "to N are unchanged and none was removed.</p><pre class=\"anchor\">%h</pre>\n",
+                            "another machine): checking it here later, or with <code>fxledger verify --anchor "
+                            "'LINE'</code>, proves that rows 1 to N are unchanged and none was removed.</p>"
+                            "<pre class=\"anchor\">%h</pre>\n",
                    anchor);
+    web_printf(&r->out, "<form class=\"card\" method=\"get\" action=\"/verify\"><h2>Check a kept anchor line</h2>"
+                        "<label for=\"anc\">Anchor line</label><input id=\"anc\" name=\"anchor\" value=\"%a\" "
+                        "placeholder=\"fxledger-anchor rows=N at=... head=...\"><button type=\"submit\">Verify against "
+                        "it</button></form>\n",
+               given ? given : "");
     web_page_end(r);
     return 0;
 }

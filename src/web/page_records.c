@@ -8,6 +8,7 @@
 #include "fxl/calibrations.h"
 #include "fxl/core.h"
 #include "fxl/detectors.h"
+#include "fxl/fraction.h"
 #include "fxl/patients.h"
 #include "fxl/record.h"
 #include "fxl/thresholds.h"
@@ -194,8 +195,11 @@ int web_page_levels(web_req *r)
     if ((rc = fxl_thresholds_list(r->ctx, &t, &n, NULL, 0)) != 0)
         return web_fail_store(r, rc);
     web_page_begin(r, "Levels in force");
+    if (web_arg(r, "done"))
+        web_printf(&r->out, "<div class=\"notice done\" role=\"status\">Saved and signed: a new version is in "
+                            "force from its date.</div>\n");
     web_printf(&r->out, "<p>Tolerance and action levels are local policy. The most specific set in force judges each "
-                        "result. Levels are set with <code>fxledger levels set</code>, signed.</p>\n");
+                        "result (docs/levels.md). A change saves a new version; no version is ever edited.</p>\n");
     web_printf(&r->out, "<table class=\"list\"><thead><tr><th>Set</th><th>Version</th><th>In force from</th><th>Scope"
                         "</th><th>Tolerance</th><th>Action</th><th>Floor</th><th>Saved by</th></tr></thead><tbody>\n");
     for (i = 0; i < n; i++) {
@@ -210,7 +214,93 @@ int web_page_levels(web_req *r)
     if (!n)
         web_printf(&r->out, "<p class=\"warn\">\xE2\x9A\xA0 No levels are in force: every result is not evaluable "
                             "until a physicist sets them.</p>\n");
+    if (r->role & FXL_ROLES_PHYSICS) {
+        web_printf(&r->out, "<form class=\"card sign narrow\" method=\"post\" action=\"/levels\"><h2>Save a new version "
+                            "(signed)</h2><p class=\"small\">A field left blank keeps the previous version's value; "
+                            "\"any\" opens a scope column. A new set needs tolerance and action.</p>");
+        web_csrf_field(r);
+        web_printf(&r->out,
+                   "<label for=\"ln\">Set name</label><input id=\"ln\" name=\"name\" required maxlength=\"64\" "
+                   "list=\"sets\"><datalist id=\"sets\">");
+        for (i = 0; i < n; i++)
+            web_printf(&r->out, "<option value=\"%a\">", t[i].name);
+        web_printf(&r->out,
+                   "</datalist><label for=\"lt\">Tolerance, \xC2\xB1%%</label><input id=\"lt\" name=\"tolerance\" "
+                   "inputmode=\"decimal\"><label for=\"la\">Action level, \xC2\xB1%%</label><input id=\"la\" "
+                   "name=\"action\" inputmode=\"decimal\"><label for=\"lf\">Floor, cGy</label><input id=\"lf\" "
+                   "name=\"floor\" inputmode=\"decimal\"><label for=\"ls\">Site</label><input id=\"ls\" "
+                   "name=\"site\"><label for=\"lq\">Technique</label><input id=\"lq\" name=\"technique\">"
+                   "<label for=\"lm\">Modality (photon, electron or any)</label><input id=\"lm\" name=\"modality\">"
+                   "<label for=\"le\">Energy, MV or MeV (or any)</label><input id=\"le\" name=\"energy\">"
+                   "<label for=\"lp\">Point (entrance, exit or any)</label><input id=\"lp\" name=\"point\">"
+                   "<label for=\"lk\">Detector kind (or any)</label><input id=\"lk\" name=\"detector_kind\">"
+                   "<label for=\"lw\">In force from (department time; blank: now)</label><input id=\"lw\" "
+                   "name=\"effective\" placeholder=\"2026-11-02 08:00\">"
+                   "<label for=\"lpw\">Your password (signature)</label><input id=\"lpw\" name=\"password\" "
+                   "type=\"password\" required autocomplete=\"current-password\"><p class=\"meaning\">Signing as %h "
+                   "(%h). Meaning: \"levels in force\": these levels judge every matching result from the date "
+                   "given.</p><button class=\"primary\" type=\"submit\">Sign and save</button></form>\n",
+                   r->full_name, r->login);
+    }
     web_page_end(r);
     free(t);
+    return 0;
+}
+
+/* A number typed in a form: blank keeps the previous value (NaN). */
+static int form_number(web_req *r, double *out, const char *name)
+{
+    const char *s = web_arg(r, name);
+    char *end;
+    *out = NAN;
+    if (!s || !*s)
+        return 0;
+    *out = strtod(s, &end);
+    return *end || !isfinite(*out) ? -1 : 0;
+}
+
+/* A scope column: blank keeps it (NULL), "any" opens it (""). */
+static const char *form_scope(web_req *r, const char *name)
+{
+    const char *s = web_arg(r, name);
+    if (!s || !*s)
+        return NULL;
+    return strcmp(s, "any") == 0 ? "" : s;
+}
+
+int web_do_levels(web_req *r)
+{
+    fxl_threshold_change chg;
+    char effective[FXL_TIME_LEN];
+    const char *energy = web_arg(r, "energy"), *eff = web_arg(r, "effective");
+    int rc;
+
+    fxl_threshold_change_init(&chg);
+    chg.name = web_arg(r, "name");
+    if (!chg.name || !*chg.name)
+        return web_fail(r, 400, "Name the level set.");
+    if (form_number(r, &chg.tolerance_pct, "tolerance") != 0 || form_number(r, &chg.action_pct, "action") != 0 ||
+        form_number(r, &chg.floor_cgy, "floor") != 0)
+        return web_fail(r, 400, "Tolerance, action level and floor must be numbers (or blank to keep them). "
+                                "Nothing was saved.");
+    if (energy && *energy) {
+        if (strcmp(energy, "any") == 0)
+            chg.clear_energy = 1;
+        else if (form_number(r, &chg.energy, "energy") != 0)
+            return web_fail(r, 400, "The energy must be a number in MV or MeV, or any. Nothing was saved.");
+    }
+    chg.site = form_scope(r, "site");
+    chg.technique = form_scope(r, "technique");
+    chg.modality = form_scope(r, "modality");
+    chg.point = form_scope(r, "point");
+    chg.detector_kind = form_scope(r, "detector_kind");
+    if (eff && *eff) {
+        if ((rc = fxl_time_parse_local(r->ctx, effective, eff)) != 0)
+            return web_fail_store(r, rc);
+        chg.effective_from = effective;
+    }
+    if ((rc = fxl_thresholds_save(r->ctx, NULL, &chg)) != 0)
+        return web_fail_store(r, rc);
+    web_redirect(r, "/levels?done=1");
     return 0;
 }

@@ -8,6 +8,7 @@
 #include <string.h>
 
 #include "fxl/core.h"
+#include "fxl/detectors.h"
 #include "fxl/fraction.h"
 #include "fxl/record.h"
 #include "fxl/worklist.h"
@@ -95,7 +96,7 @@ int web_page_worklist(web_req *r)
             web_printf(&r->out, "<p><a class=\"button primary\" href=\"/fraction?id=%L\"%s>Resume fraction %d</a></p>\n",
                        e->open_fraction_id, focused ? "" : " data-focus", e->next_fraction);
             focused = 1;
-        } else if (!e->treated_today || e->next_fraction <= e->fractions) {
+        } else if (!e->treated_today) {
             web_printf(&r->out, "<form method=\"post\" action=\"/fraction/begin\">");
             web_csrf_field(r);
             web_printf(&r->out, "<input type=\"hidden\" name=\"mrn\" value=\"%a\"><input type=\"hidden\" name=\"plan\" "
@@ -103,6 +104,14 @@ int web_page_worklist(web_req *r)
                                 "</form>\n",
                        e->mrn, e->plan, focused ? "" : " autofocus", e->next_fraction, e->patient_name);
             focused = 1;
+        } else if (e->next_fraction <= e->fractions) {
+            /* Treated already today: a second fraction the same day (twice
+             * daily) stays possible, but is not the button the focus lands on. */
+            web_printf(&r->out, "<form method=\"post\" action=\"/fraction/begin\">");
+            web_csrf_field(r);
+            web_printf(&r->out, "<input type=\"hidden\" name=\"mrn\" value=\"%a\"><input type=\"hidden\" name=\"plan\" "
+                                "value=\"%a\"><button type=\"submit\">Log a second fraction today (%d)</button></form>\n",
+                       e->mrn, e->plan, e->next_fraction);
         }
         web_printf(&r->out, "<p><a href=\"/patient?mrn=%u\">History of %h</a></p></section>\n", e->mrn,
                    e->patient_name);
@@ -232,7 +241,7 @@ int web_page_fraction(web_req *r)
                        "<span><label for=\"r%d\">Reading%s%h%s</label><input id=\"r%d\" name=\"reading\" "
                        "inputmode=\"decimal\" autocomplete=\"off\" required%s></span>"
                        "<span><label for=\"d%d\">Detector</label><input id=\"d%d\" name=\"detector\" value=\"%a\" "
-                       "required size=\"10\"></span>"
+                       "required size=\"10\" list=\"detectors\" autocomplete=\"off\"></span>"
                        "<span><label for=\"t%d\">Temperature \xC2\xB0" "C (blank: %.1f)</label><input id=\"t%d\" "
                        "name=\"temp\" inputmode=\"decimal\" size=\"6\"></span>"
                        "<button type=\"submit\">Commit %h</button></form>\n",
@@ -246,6 +255,19 @@ int web_page_fraction(web_req *r)
         web_printf(&r->out, "</li>\n");
     }
     web_printf(&r->out, "</ol>\n");
+    if (open == 1) {
+        /* Suggestions for the detector field: the detectors in service. */
+        fxl_detector *dets = NULL;
+        size_t nd = 0;
+        if (fxl_detector_list(r->ctx, &dets, &nd, NULL) == 0) {
+            web_printf(&r->out, "<datalist id=\"detectors\">");
+            for (k = 0; k < nd; k++)
+                if (strcmp(dets[k].status, "in_service") == 0)
+                    web_printf(&r->out, "<option value=\"%a\">%h</option>", dets[k].serial, dets[k].label);
+            web_printf(&r->out, "</datalist>\n");
+        }
+        free(dets);
+    }
     if (open == 1) {
         web_printf(&r->out, "<form method=\"post\" action=\"/fraction/close\">");
         web_csrf_field(r);
@@ -306,7 +328,7 @@ int web_do_fraction_field(web_req *r)
         return web_fail(r, 400, "The background must be a number, or left blank. Nothing was written.");
     if ((rc = fxl_fraction_log_field(r->ctx, &res, id, &e)) != 0)
         return web_fail_store(r, rc);
-    web_redirect(r, "/fraction?id=%L&just=%L#f0", id, res.n ? res.items[0].measurement_id : (int64_t)0);
+    web_redirect(r, "/fraction?id=%L&just=%L", id, res.n ? res.items[0].measurement_id : (int64_t)0);
     fxl_record_result_release(&res);
     return 0;
 }

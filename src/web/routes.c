@@ -42,6 +42,7 @@ static const web_route g_routes[] = {
     {"GET", "/detectors", web_page_detectors, ANY, 0},
     {"GET", "/calibrations", web_page_calibrations, ANY, 0},
     {"GET", "/levels", web_page_levels, ANY, 0},
+    {"POST", "/levels", web_do_levels, PHYS, WEB_WRITE | WEB_SIGN},
 
     {"GET", "/reports", web_page_reports, AUDIT, 0},
     {"GET", "/report", web_get_report, AUDIT, WEB_NOTXN},

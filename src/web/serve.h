@@ -10,6 +10,7 @@ typedef struct web_options {
     unsigned threads;        /* worker threads, each with its own database connection */
     const char *tls_cert;    /* PEM files, both or neither */
     const char *tls_key;
+    int behind_tls_proxy;    /* a TLS reverse proxy on this host: cookies Secure, HSTS */
     int quiet;               /* no start-up line on stderr */
 } web_options;
 

@@ -243,7 +243,7 @@ static void security_headers(struct MHD_Response *resp, int cacheable)
     MHD_add_response_header(resp, "Referrer-Policy", "no-referrer");
     MHD_add_response_header(resp, "Cross-Origin-Opener-Policy", "same-origin");
     MHD_add_response_header(resp, "Cache-Control", cacheable ? "private, max-age=600" : "no-store");
-    if (g_opts && g_opts->tls_cert)
+    if (g_opts && (g_opts->tls_cert || g_opts->behind_tls_proxy))
         MHD_add_response_header(resp, "Strict-Transport-Security", "max-age=31536000");
 }
 
@@ -354,7 +354,7 @@ static enum MHD_Result on_request(void *cls, struct MHD_Connection *conn, const 
     r->method = method;
     r->path = url;
     r->conn = conn;
-    r->tls = g_opts->tls_cert != NULL;
+    r->tls = g_opts->tls_cert != NULL || g_opts->behind_tls_proxy;
     r->status = 200;
     client_address(r, conn);
     r->content_type = MHD_lookup_connection_value(conn, MHD_HEADER_KIND, "Content-Type");

@@ -10,6 +10,7 @@ Data invented (webfixture.py)."""
 import os
 import re
 import sqlite3
+import subprocess
 import sys
 import unittest
 import urllib.parse
@@ -50,6 +51,8 @@ class ConsoleHttp(unittest.TestCase):
         for u in ("ther", "phys", "aud"):
             r = fx.login(u)
             assert r.returncode == 0, r.stderr
+        with sqlite3.connect("file:%s?mode=ro" % fx.db, uri=True) as db:
+            cls.last_cli_row = db.execute("SELECT max(id) FROM audit_log").fetchone()[0]
         cls.server = Server(fx, ["--login-rate", "100"])
         cls.c = {}
         for u in ("ther", "phys", "aud", "admin"):
@@ -215,6 +218,25 @@ class ConsoleHttp(unittest.TestCase):
         self.assertIn(r.status, (400, 404, 422))
         self.assertIn("bidirectional", r.text)
 
+    def test_every_console_write_is_audited_with_the_client_address(self):
+        with sqlite3.connect("file:%s?mode=ro" % self.fx.db, uri=True) as db:
+            rows = db.execute("SELECT action, client FROM audit_log WHERE id > ?", (self.last_cli_row,)).fetchall()
+        actions = [a for a, _c in rows]
+        # the logins, the fraction begun, three readings and the close, at least
+        for a in ("login", "record", "close"):
+            self.assertIn(a, actions)
+        self.assertEqual([r for r in rows if r[1] != "127.0.0.1"], [])
+
+    def test_worklist_after_treatment(self):
+        text = self.c["ther"].get("/worklist").text
+        p1 = text[text.index('<span class="mrn">P-1</span>'):]
+        p1 = p1[:p1.index("/patient?mrn=P-1")]
+        self.assertIn("treated today", p1)
+        self.assertIn("HOLD", p1)
+        # no focused "log" button for a patient already treated today
+        self.assertNotIn("autofocus", p1)
+        self.assertIn("Log a second fraction today (2)", p1)
+
     def test_bidi_comment_is_refused_and_writes_nothing(self):
         p = self.c["phys"]
         p.get("/item?id=" + self.item)
@@ -305,10 +327,152 @@ class ConsoleHttp(unittest.TestCase):
         self.assertEqual(api.get("/users", headers=auth).status, 303)      # pages need a session
         self.assertEqual(api.get("/api/v1/verify", headers=auth).status, 200)
         # revoked: refused
-        tid = re.findall(r'name="token" value="(\d+)"', a.get("/users").text)[-1]
+        tid = re.findall(r'name="token" value="(\d+)"', a.get("/users").text)[0]   # newest first
         r = a.post("/users", {"action": "token_revoke", "token": tid})
         self.assertEqual(r.status, 303)
         self.assertEqual(api.get("/api/v1/me", headers=auth).status, 401)
+
+    def test_api_records_a_fraction(self):
+        a = self.c["admin"]
+        a.get("/users")
+        r = a.post("/users", {"action": "token_issue", "login": "ther", "label": "invented console bridge"})
+        token = re.search(r"<pre>([0-9a-f]{64})</pre>", r.text).group(1)
+        api = self.anon()
+        auth = {"Authorization": "Bearer " + token}
+        before = self.fx.digest()
+        bad = api.request("POST", "/api/v1/record", headers=auth, json_body={
+            "mrn": "P-2", "readings": [{"field": "AP", "detector": "D-1", "reading": -1}]})
+        self.assertEqual(bad.status, 422, bad.text)
+        self.assertEqual(self.fx.digest(), before)
+        readings = [{"field": f, "point": "entrance", "detector": "D-1", "reading": float(reading_for(d))}
+                    for f, d in (("AP", 0.0), ("PA", 6.0), ("LAT", -3.0))]
+        r = api.request("POST", "/api/v1/record", headers=auth, json_body={"mrn": "P-2", "readings": readings})
+        self.assertEqual(r.status, 201, r.text)
+        res = r.json()["results"]
+        # D = M x N = 20 nC x 10 cGy/nC = 200 cGy (webfixture.reading_for); 6 % is
+        # outside the 5 % tolerance and inside the 8 % action level
+        self.assertEqual([x["verdict"] for x in res], ["within_tolerance", "outside_tolerance", "within_tolerance"])
+        self.assertAlmostEqual(res[0]["corrected_dose_cgy"], 200.0, places=2)
+        self.assertAlmostEqual(res[1]["deviation_pct"], 6.0, places=2)
+        self.assertIsNotNone(res[1]["review_item_id"])
+        hist = api.get("/api/v1/patient/history?mrn=P-2", headers=auth).json()
+        self.assertEqual(len(hist), 3)
+        page = self.c["ther"].get("/patient?mrn=P-2").text
+        self.assertIn("<svg", page)
+        self.assertEqual(page.count('class="verdict v-outside_tolerance"'), 1)
+
+    def test_item_workflow_acknowledge_close_reopen(self):
+        t, p = self.c["ther"], self.c["phys"]
+        me = t.get("/api/v1/me").json()
+        readings = [{"field": "PA", "point": "entrance", "detector": "D-1", "reading": float(reading_for(6.5))}]
+        r = t.request("POST", "/api/v1/record", headers={"X-CSRF-Token": me["csrf"]},
+                      json_body={"mrn": "P-2", "readings": readings})
+        self.assertEqual(r.status, 201, r.text)
+        item = str(r.json()["results"][0]["review_item_id"])
+        t.get("/item?id=" + item)
+        r = t.post("/item/event", {"id": item, "action": "acknowledge", "comment": "invented: seen at the unit"})
+        self.assertEqual(r.status, 303)
+        p.get("/item?id=" + item)
+        r = p.post("/item/sign", {"id": item, "action": "close", "disposition": "detector placement",
+                                  "comment": "invented", "password": "not the password"})
+        self.assertEqual(r.status, 403)
+        self.assertIn("Signature refused", r.text)
+        r = p.post("/item/sign", {"id": item, "action": "close", "disposition": "detector placement",
+                                  "comment": "invented", "password": self.fx.passwords["phys"]})
+        self.assertEqual(r.status, 303, r.text[:400])
+        page = p.get(r.header("Location")).text
+        self.assertIn("closed, signed", page)
+        self.assertIn("Signed by Invented Physicist", page)
+        r = p.post("/item/sign", {"id": item, "action": "reopen", "comment": "invented: re-check",
+                                  "password": self.fx.passwords["phys"]})
+        self.assertEqual(r.status, 303, r.text[:400])
+        ev = p.get("/api/v1/item?id=" + item).json()
+        self.assertEqual([e["kind"] for e in ev["events"]], ["open", "acknowledge", "close", "reopen"])
+        self.assertEqual(ev["status"], "open")
+        v = self.c["aud"].get("/api/v1/verify").json()
+        self.assertTrue(v["ok"], v)
+        self.assertGreaterEqual(v["signatures_checked"], 2)
+        self.assertTrue(v["anchor"].startswith("fxledger-anchor rows="))
+        page = self.c["aud"].get("/verify").text
+        self.assertIn("Verified", page)
+        self.assertIn("fxledger-anchor rows=", page)
+        # the anchor line kept from before checks out; a forged one does not
+        aud = self.c["aud"]
+        line = v["anchor"]
+        q = "/api/v1/verify?anchor=" + urllib.parse.quote(line)
+        held = aud.get(q).json()
+        self.assertTrue(held["ok"], held)
+        self.assertEqual(held["anchor_rows"], int(re.search(r"rows=(\d+)", line).group(1)))
+        self.assertIn("holds", aud.get("/verify?anchor=" + urllib.parse.quote(line)).text)
+        head = re.search(r"head=([0-9a-f]{64})", line).group(1)
+        forged = line.replace(head, ("0" if head[0] != "0" else "1") + head[1:])
+        bad = aud.get("/api/v1/verify?anchor=" + urllib.parse.quote(forged)).json()
+        self.assertFalse(bad["ok"])
+        self.assertTrue(bad["record_problems"], bad)
+        self.assertIn("FAILED", aud.get("/verify?anchor=" + urllib.parse.quote(forged)).text)
+        self.assertEqual(aud.get("/api/v1/verify?anchor=not%20an%20anchor").status, 422)
+
+    def test_reports_on_request(self):
+        a = self.c["aud"]
+        before = self.fx.digest()
+        for query, name in (("kind=month&month=2026-11", "fxledger-month-2026-11.pdf"),
+                            ("kind=patient&mrn=P-1", "fxledger-patient-P-1.pdf")):
+            with self.subTest(query=query):
+                r = a.get("/report?" + query)
+                self.assertEqual(r.status, 200, r.text[:300] if r.status != 200 else "")
+                self.assertEqual(r.header("Content-Type"), "application/pdf")
+                self.assertIn(name, r.header("Content-Disposition"))
+                self.assertTrue(r.body.startswith(b"%PDF-"))
+                pdf = self.fx.path(name)
+                with open(pdf, "wb") as f:
+                    f.write(r.body)
+                # qpdf --check exits 0 for a well-formed file (qpdf manual)
+                q = subprocess.run(["qpdf", "--check", pdf], capture_output=True, text=True)
+                self.assertEqual(q.returncode, 0, q.stdout + q.stderr)
+        self.assertEqual(a.get("/report?kind=month&month=2026-13").status, 422)
+        self.assertEqual(a.get("/report?kind=patient&mrn=NOPE").status, 404)
+        self.assertEqual(self.c["ther"].get("/report?kind=month&month=2026-11").status, 403)
+        self.assertEqual(self.fx.digest(), before, "a report wrote to the database")
+
+    def test_levels_saved_with_signature(self):
+        p = self.c["phys"]
+        p.get("/levels")
+        fields = {"name": "web-electron", "tolerance": "4", "action": "6", "modality": "electron"}
+        before = self.fx.digest()
+        r = p.post("/levels", fields)
+        self.assertEqual(r.status, 403)
+        self.assertEqual(self.fx.digest(), before)
+        r = p.post("/levels", dict(fields, password=self.fx.passwords["phys"]))
+        self.assertEqual(r.status, 303, r.text[:500])
+        sets = {x["name"]: x for x in p.get("/api/v1/levels").json()}
+        self.assertEqual(sets["web-electron"]["tolerance_pct"], 4)
+        self.assertEqual(sets["web-electron"]["action_pct"], 6)
+        self.assertEqual(sets["web-electron"]["modality"], "electron")
+        # action below tolerance is refused by the store, nothing written
+        p.get("/levels")
+        before = self.fx.digest()
+        r = p.post("/levels", {"name": "web-bad", "tolerance": "6", "action": "4",
+                               "password": self.fx.passwords["phys"]})
+        self.assertIn(r.status, (400, 409, 422), r.text[:300])
+        self.assertNotIn("web-bad", [x["name"] for x in p.get("/api/v1/levels").json()])
+
+    def test_busy_database_asks_to_retry(self):
+        p = self.c["phys"]
+        p.get("/item?id=" + self.item)
+        before = self.fx.digest()
+        # another writer holds the write lock past the busy timeout (5 s, src/store/db.c)
+        db = sqlite3.connect(self.fx.db, isolation_level=None, timeout=1)
+        try:
+            db.execute("BEGIN IMMEDIATE")
+            r = p.post("/item/event", {"id": self.item, "action": "comment", "comment": "invented, waits"})
+        finally:
+            db.execute("ROLLBACK")
+            db.close()
+        self.assertEqual(r.status, 503, r.text[:300])
+        self.assertIn("busy", r.text)
+        self.assertIn("Nothing was written", r.text)
+        self.assertEqual(r.header("Retry-After"), "2")
+        self.assertEqual(self.fx.digest(), before)
 
 
 class ConsoleLogin(unittest.TestCase):
@@ -325,8 +489,9 @@ class ConsoleLogin(unittest.TestCase):
 
     @classmethod
     def tearDownClass(cls):
-        cls.server.stop()
+        err = cls.server.stop()
         cls.fx.close()
+        assert "AddressSanitizer" not in err and "runtime error" not in err, err
 
     def test_lockout_and_unlock(self):
         c = Client(self.server)
@@ -391,6 +556,48 @@ class ConsoleLogin(unittest.TestCase):
             self.assertEqual(codes, [401, 401, 401, 429])
         finally:
             s.stop()
+
+
+
+class ConsoleTls(unittest.TestCase):
+    """HTTPS with --tls-cert/--tls-key: cookies get Secure, HSTS is sent."""
+
+    def test_tls_cookies_are_secure(self):
+        fx = Fxl().init()
+        try:
+            cert, key = fx.path("cert.pem"), fx.path("key.pem")
+            # a throw-away self-signed certificate for 127.0.0.1 (openssl req(1))
+            r = subprocess.run(["openssl", "req", "-x509", "-newkey", "ec", "-pkeyopt",
+                                "ec_paramgen_curve:prime256v1", "-nodes", "-keyout", key, "-out", cert,
+                                "-days", "2", "-subj", "/CN=127.0.0.1", "-addext", "subjectAltName=IP:127.0.0.1"],
+                               capture_output=True, text=True)
+            self.assertEqual(r.returncode, 0, r.stderr)
+            s = Server(fx, ["--tls-cert", cert, "--tls-key", key])
+            try:
+                c = Client(s, tls_ca=cert)
+                page = c.get("/login")
+                self.assertIn("Secure", page.header("Set-Cookie"))
+                self.assertIn("max-age=", page.header("Strict-Transport-Security"))
+                r = c.post("/login", {"login": "admin", "password": fx.passwords["admin"]})
+                self.assertEqual(r.status, 303)
+                cookie = r.header("Set-Cookie")
+                self.assertTrue(cookie.startswith("fxl_session="), cookie)
+                for attr in ("Secure", "HttpOnly", "SameSite=Strict"):
+                    self.assertIn(attr, cookie)
+                self.assertEqual(c.get("/users").status, 200)
+            finally:
+                s.stop()
+            # behind a TLS reverse proxy on the same host: plain HTTP on
+            # loopback, cookies marked Secure all the same
+            s = Server(fx, ["--behind-tls-proxy"])
+            try:
+                page = Client(s).get("/login")
+                self.assertIn("; Secure", page.header("Set-Cookie"))
+                self.assertIsNotNone(page.header("Strict-Transport-Security"))
+            finally:
+                s.stop()
+        finally:
+            fx.close()
 
 
 if __name__ == "__main__":

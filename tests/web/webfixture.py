@@ -12,6 +12,7 @@ import json
 import os
 import re
 import signal
+import ssl
 import subprocess
 import sys
 import time
@@ -100,7 +101,7 @@ class Server:
                                      env=env, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
                                      stderr=subprocess.PIPE, text=True)
         line = self.proc.stderr.readline()
-        m = re.search(r"listening on http://127\.0\.0\.1:(\d+)/", line)
+        m = re.search(r"listening on https?://127\.0\.0\.1:(\d+)/", line)
         if not m:
             self.proc.kill()
             raise AssertionError("serve did not start: %r %s" % (line, self.proc.stderr.read()))
@@ -151,10 +152,13 @@ class Response:
 class Client:
     """One browser: its cookies, the last CSRF token seen on a page."""
 
-    def __init__(self, server):
+    def __init__(self, server, tls_ca=None):
         self.server = server
         self.cookies = {}
         self.csrf = None
+        self.tls = None
+        if tls_ca:
+            self.tls = ssl.create_default_context(cafile=tls_ca)
 
     def request(self, method, path, body=None, headers=None, json_body=None):
         h = dict(headers or {})
@@ -167,7 +171,10 @@ class Client:
         elif body is not None:
             data = urllib.parse.urlencode(body).encode() if isinstance(body, dict) else body
             h.setdefault("Content-Type", "application/x-www-form-urlencoded")
-        c = http.client.HTTPConnection("127.0.0.1", self.server.port, timeout=30)
+        if self.tls:
+            c = http.client.HTTPSConnection("127.0.0.1", self.server.port, timeout=30, context=self.tls)
+        else:
+            c = http.client.HTTPConnection("127.0.0.1", self.server.port, timeout=30)
         try:
             c.request(method, path, body=data, headers=h)
             r = c.getresponse()

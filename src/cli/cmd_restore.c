@@ -1,0 +1,125 @@
+/* fxledger restore: the restore drill. A backup copied into a new file,
+ * checked as 'verify' checks a database, and described (docs/deployment.md). */
+#include "cli/cli.h"
+#include "fxl/audit.h"
+#include "fxl/auth.h"
+#include "fxl/restore.h"
+
+int cmd_restore(cli_env *env, int argc, char **argv)
+{
+    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    fxl_ctx *copy = NULL;
+    fxl_verify_report vr;
+    fxl_signature_report sr;
+    fxl_holdings h;
+    const char *pos[2];
+    char chain_msg[512] = "", sig_msg[512] = "", anchor[FXL_ANCHOR_LEN] = "";
+    int npos, rc, vrc, src, pages = 0, schema_backup = 0, code;
+
+    rc = cli_parse(env, "restore BACKUP NEWFILE",
+                   "The restore drill: copies the backup file BACKUP into NEWFILE (which must not\n"
+                   "exist; never the database in use), upgrades the copy when its schema is older,\n"
+                   "then checks it as 'verify' does: the SHA-256 audit chain from its first row,\n"
+                   "SQLite's integrity and foreign-key checks and every electronic signature. It\n"
+                   "prints the copy's anchor line, to compare with the one the auditor keeps, and\n"
+                   "what the copy holds (counts only, no patient data). The backup is opened\n"
+                   "read-only and never changed. No login: it reads a file you can already read\n"
+                   "and writes only NEWFILE. A copy that fails a check is removed. Exit 0 when\n"
+                   "every check holds, 2 when one does not.",
+                   opts, argc, argv, pos, 2, &npos);
+    if (rc != 0)
+        return rc > 0 ? CLI_EXIT_OK : CLI_EXIT_USAGE;
+    if (npos != 2) {
+        cli_error("restore needs the backup file and the name of a new file (see 'fxledger restore --help')");
+        return CLI_EXIT_USAGE;
+    }
+    if ((rc = fxl_restore_copy(&copy, pos[0], pos[1], &pages, &schema_backup)) != 0) {
+        cli_error("%s", fxl_errmsg(copy));
+        fxl_close(copy);
+        return cli_exit_code(rc);
+    }
+    if ((vrc = fxl_audit_verify(copy, &vr)) != 0)
+        snprintf(chain_msg, sizeof chain_msg, "%s", fxl_errmsg(copy));
+    if ((src = fxl_signature_verify(copy, &sr)) != 0)
+        snprintf(sig_msg, sizeof sig_msg, "%s", src == FXL_ECONFLICT ? sr.first_bad : fxl_errmsg(copy));
+    if ((rc = fxl_audit_anchor(copy, anchor, sizeof anchor)) == 0)
+        rc = fxl_holdings_get(copy, &h);
+    if (rc != 0) {
+        cli_error("cannot read the restored copy '%s': %s", pos[1], fxl_errmsg(copy));
+        fxl_close(copy);
+        fxl_restore_discard(pos[1]);
+        return cli_exit_code(rc);
+    }
+    fxl_close(copy);
+    code = vrc == 0 && src == 0 ? CLI_EXIT_OK : CLI_EXIT_DATA;
+    if (code != CLI_EXIT_OK)
+        fxl_restore_discard(pos[1]);
+
+    if (env->json) {
+        cJSON *o = cJSON_CreateObject(), *hj = cJSON_CreateObject();
+        cJSON_AddBoolToObject(o, "ok", code == CLI_EXIT_OK);
+        cJSON_AddStringToObject(o, "backup", pos[0]);
+        cJSON_AddStringToObject(o, "file", pos[1]);
+        cJSON_AddBoolToObject(o, "kept", code == CLI_EXIT_OK);
+        cJSON_AddNumberToObject(o, "pages", pages);
+        cJSON_AddNumberToObject(o, "schema_backup", schema_backup);
+        cJSON_AddNumberToObject(o, "schema", h.schema);
+        cJSON_AddNumberToObject(o, "rows_checked", (double)vr.rows_checked);
+        if (vr.first_bad_row)
+            cJSON_AddNumberToObject(o, "first_bad_row", (double)vr.first_bad_row);
+        cJSON_AddBoolToObject(o, "chain_ok", vrc == 0);
+        cJSON_AddBoolToObject(o, "integrity_ok", vr.integrity_ok);
+        cJSON_AddBoolToObject(o, "foreign_keys_ok", vr.foreign_keys_ok);
+        cJSON_AddNumberToObject(o, "signatures_checked", (double)sr.checked);
+        cJSON_AddBoolToObject(o, "signatures_ok", src == 0);
+        if (vrc != 0)
+            cJSON_AddStringToObject(o, "chain_error", chain_msg);
+        if (src != 0)
+            cJSON_AddStringToObject(o, "signature_error", sig_msg);
+        cJSON_AddStringToObject(o, "anchor", anchor);
+        cJSON_AddStringToObject(hj, "department", h.department);
+        cJSON_AddStringToObject(hj, "first_audit_at", h.first_audit_at);
+        cJSON_AddStringToObject(hj, "last_audit_at", h.last_audit_at);
+        cJSON_AddNumberToObject(hj, "audit_rows", (double)h.audit_rows);
+        cJSON_AddNumberToObject(hj, "users", (double)h.users);
+        cJSON_AddNumberToObject(hj, "active_users", (double)h.active_users);
+        cJSON_AddNumberToObject(hj, "machines", (double)h.machines);
+        cJSON_AddNumberToObject(hj, "detectors", (double)h.detectors);
+        cJSON_AddNumberToObject(hj, "patients", (double)h.patients);
+        cJSON_AddNumberToObject(hj, "plans", (double)h.plans);
+        cJSON_AddNumberToObject(hj, "fractions", (double)h.fractions);
+        cJSON_AddNumberToObject(hj, "measurements", (double)h.measurements);
+        cJSON_AddNumberToObject(hj, "review_items", (double)h.review_items);
+        cJSON_AddNumberToObject(hj, "review_items_open", (double)h.review_items_open);
+        cJSON_AddNumberToObject(hj, "signatures", (double)h.signatures);
+        cJSON_AddItemToObject(o, "holds", hj);
+        cli_print_json(o);
+        return code;
+    }
+    if (code != CLI_EXIT_OK) {
+        if (vrc != 0)
+            cli_error("restored copy failed verification: %s", chain_msg);
+        if (src != 0)
+            cli_error("restored copy failed the signature check: %s", sig_msg);
+        cli_error("the copy '%s' was removed; the backup '%s' is unchanged: try an older backup",
+                  pos[1], pos[0]);
+        return code;
+    }
+    printf("restored %s into %s: %d pages, schema %d%s\n", pos[0], pos[1], pages, h.schema,
+           schema_backup < h.schema ? " (upgraded from the backup's older schema)" : "");
+    printf("audit chain intact: %lld rows checked; integrity and foreign-key checks passed; "
+           "%lld signature%s verified\n",
+           (long long)vr.rows_checked, (long long)sr.checked, sr.checked == 1 ? "" : "s");
+    printf("%s\n", anchor);
+    printf("  compare with the anchor line the auditor keeps: rows up to theirs must be in this copy\n");
+    printf("holds: department '%s'; audit trail %s to %s (UTC)\n", h.department,
+           h.first_audit_at[0] ? h.first_audit_at : "-", h.last_audit_at[0] ? h.last_audit_at : "-");
+    printf("  users %lld (%lld active), machines %lld, detectors %lld\n", (long long)h.users,
+           (long long)h.active_users, (long long)h.machines, (long long)h.detectors);
+    printf("  patients %lld, plans %lld, fractions %lld, measurements %lld\n", (long long)h.patients,
+           (long long)h.plans, (long long)h.fractions, (long long)h.measurements);
+    printf("  review items %lld (%lld still open), signatures %lld\n", (long long)h.review_items,
+           (long long)h.review_items_open, (long long)h.signatures);
+    printf("the backup was not changed; putting a copy into service: docs/deployment.md, \"Restoring\"\n");
+    return CLI_EXIT_OK;
+}

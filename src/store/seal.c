@@ -1,0 +1,315 @@
+/* Row seals (docs/audit.md): every clinical row the program writes or
+ * changes is marked by a temporary trigger of the connection; the next
+ * audit row of the transaction seals the marked rows (the SHA-256 of each
+ * row's canonical content, kept in row_seals) and carries the SHA-256 of
+ * its seals in its own hash. Nothing here is stored in the file except the
+ * seals: the marks live in the connection's temporary database. */
+#include <sodium.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include "fxl/audit.h"
+#include "store/seal.h"
+#include "store/stmt.h"
+
+const char *const fxl_sealed_tables[] = {
+    "machines", "beams", "beam_data", "detectors", "detector_status", "calibrations",
+    "correction_tables", "patients", "patient_corrections", "plans", "fields",
+    "threshold_sets", "fractions", "fraction_marks", "measurements", "review_items",
+    "review_events", "daylist_imports", "daylist_lines", "signing_keys", "api_tokens",
+    NULL};
+
+/* The canonical content of a row of `tbl` (aliased t) as an SQL expression:
+ * a JSON object of its columns in declared order, NULL columns left out
+ * (so a column added later as NULL leaves older rows' content unchanged);
+ * a correction table carries its points as [[x, factor], ...] by x. SQLite
+ * prints a REAL with 15 significant digits, the same every time. */
+static int canon_expr(fxl_ctx *ctx, const char *tbl, char **out)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    size_t cap = 256, len = 0;
+    char *buf = malloc(cap);
+    int rc, n = 0;
+
+    *out = NULL;
+    if (!buf)
+        return fxl_fail(ctx, FXL_EIO, "out of memory sealing rows");
+    len = (size_t)snprintf(buf, cap, "json_patch('{}', json_object(");
+    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT name FROM pragma_table_info(:t) ORDER BY cid")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_text(&s, ":t", tbl);
+    while ((rc = fxl_stmt_step(&s)) == 1) {
+        const char *col = fxl_stmt_text(&s, 0);
+        size_t need = len + 2 * strlen(col) + 32;
+        if (strchr(col, '"') || strchr(col, '\'')) {
+            rc = fxl_fail(ctx, FXL_EDB, "column '%s' of table '%s' has an unexpected name", col, tbl);
+            goto cleanup;
+        }
+        if (need > cap) {
+            char *nb;
+            cap = need * 2;
+            if (!(nb = realloc(buf, cap))) {
+                rc = fxl_fail(ctx, FXL_EIO, "out of memory sealing rows");
+                goto cleanup;
+            }
+            buf = nb;
+        }
+        len += (size_t)snprintf(buf + len, cap - len, "%s'%s', t.\"%s\"", n++ ? ", " : "", col, col);
+    }
+    if (rc < 0)
+        goto cleanup;
+    if (n == 0) {
+        rc = fxl_fail(ctx, FXL_EDB, "table '%s' is missing", tbl);
+        goto cleanup;
+    }
+    {
+        const char *tail = strcmp(tbl, "correction_tables") == 0
+            ? ", 'points', (SELECT json_group_array(json_array(p.x, p.factor)) FROM "
+              "(SELECT x, factor FROM main.correction_points WHERE table_id = t.id ORDER BY x) p)))"
+            : "))";
+        size_t need = len + strlen(tail) + 1;
+        if (need > cap) {
+            char *nb = realloc(buf, need);
+            if (!nb) {
+                rc = fxl_fail(ctx, FXL_EIO, "out of memory sealing rows");
+                goto cleanup;
+            }
+            buf = nb;
+            cap = need;
+        }
+        memcpy(buf + len, tail, strlen(tail) + 1);
+    }
+    *out = buf;
+    buf = NULL;
+    rc = 0;
+cleanup:
+    fxl_stmt_finalize(&s);
+    free(buf);
+    return rc;
+}
+
+/* SHA-256 of "tbl\nrow_id\ncanonical" (docs/audit.md). */
+static void row_digest(char hex[65], const char *tbl, int64_t row_id, const char *canon)
+{
+    crypto_hash_sha256_state st;
+    unsigned char d[crypto_hash_sha256_BYTES];
+    char head[96];
+    int n = snprintf(head, sizeof head, "%s\n%lld\n", tbl, (long long)row_id);
+
+    crypto_hash_sha256_init(&st);
+    crypto_hash_sha256_update(&st, (const unsigned char *)head, (unsigned long long)n);
+    crypto_hash_sha256_update(&st, (const unsigned char *)canon, strlen(canon));
+    crypto_hash_sha256_final(&st, d);
+    sodium_bin2hex(hex, 65, d, sizeof d);
+}
+
+int fxl_seal_row(fxl_ctx *ctx, const char *tbl, int64_t row_id, char hex[65])
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    char *expr = NULL, *sql = NULL;
+    size_t len;
+    int rc;
+
+    if ((rc = canon_expr(ctx, tbl, &expr)) != 0)
+        return rc;
+    len = strlen(expr) + strlen(tbl) + 64;
+    if (!(sql = malloc(len))) {
+        rc = fxl_fail(ctx, FXL_EIO, "out of memory sealing rows");
+        goto cleanup;
+    }
+    snprintf(sql, len, "SELECT %s FROM main.\"%s\" t WHERE t.rowid = :id", expr, tbl);
+    if ((rc = fxl_stmt_prepare(&s, ctx, sql)) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":id", row_id);
+    rc = fxl_stmt_step(&s);
+    if (rc == 1) {
+        row_digest(hex, tbl, row_id, fxl_stmt_text(&s, 0));
+        rc = 0;
+    } else if (rc == 0) {
+        rc = fxl_fail(ctx, FXL_ENOTFOUND, "%s row %lld does not exist", tbl, (long long)row_id);
+    }
+cleanup:
+    fxl_stmt_finalize(&s);
+    free(expr);
+    free(sql);
+    return rc;
+}
+
+/* Public to the verifier in this module: the canonical select of a whole table. */
+int fxl_seal_table_sql(fxl_ctx *ctx, const char *tbl, char **sql_out);
+int fxl_seal_table_sql(fxl_ctx *ctx, const char *tbl, char **sql_out)
+{
+    char *expr = NULL, *sql;
+    size_t len;
+    int rc;
+
+    *sql_out = NULL;
+    if ((rc = canon_expr(ctx, tbl, &expr)) != 0)
+        return rc;
+    len = strlen(expr) + strlen(tbl) + 64;
+    sql = malloc(len);
+    if (!sql) {
+        free(expr);
+        return fxl_fail(ctx, FXL_EIO, "out of memory verifying rows");
+    }
+    snprintf(sql, len, "SELECT t.rowid, %s FROM main.\"%s\" t ORDER BY t.rowid", expr, tbl);
+    free(expr);
+    *sql_out = sql;
+    return 0;
+}
+
+void fxl_seal_row_digest(char hex[65], const char *tbl, int64_t row_id, const char *canon);
+void fxl_seal_row_digest(char hex[65], const char *tbl, int64_t row_id, const char *canon)
+{
+    row_digest(hex, tbl, row_id, canon);
+}
+
+int fxl_seal_attach(fxl_ctx *ctx)
+{
+    char sql[512];
+    size_t i;
+    int rc;
+
+    if ((rc = fxl_exec(ctx, "CREATE TEMP TABLE IF NOT EXISTS fxl_dirty (tbl TEXT NOT NULL, "
+                            "row_id INTEGER NOT NULL, PRIMARY KEY (tbl, row_id)) WITHOUT ROWID")) != 0)
+        return rc;
+    for (i = 0; fxl_sealed_tables[i]; i++) {
+        const char *t = fxl_sealed_tables[i];
+        snprintf(sql, sizeof sql,
+                 "CREATE TEMP TRIGGER IF NOT EXISTS fxl_seal_%s_ins AFTER INSERT ON main.\"%s\" "
+                 "BEGIN INSERT OR IGNORE INTO fxl_dirty VALUES ('%s', NEW.rowid); END",
+                 t, t, t);
+        if ((rc = fxl_exec(ctx, sql)) != 0)
+            return rc;
+        snprintf(sql, sizeof sql,
+                 "CREATE TEMP TRIGGER IF NOT EXISTS fxl_seal_%s_upd AFTER UPDATE ON main.\"%s\" "
+                 "BEGIN INSERT OR IGNORE INTO fxl_dirty VALUES ('%s', NEW.rowid); END",
+                 t, t, t);
+        if ((rc = fxl_exec(ctx, sql)) != 0)
+            return rc;
+    }
+    /* A correction table's points are part of its content. */
+    if ((rc = fxl_exec(ctx, "CREATE TEMP TRIGGER IF NOT EXISTS fxl_seal_correction_points_ins "
+                            "AFTER INSERT ON main.correction_points BEGIN INSERT OR IGNORE INTO "
+                            "fxl_dirty VALUES ('correction_tables', NEW.table_id); END")) != 0)
+        return rc;
+    ctx->sealing = 1;
+    return 0;
+}
+
+int fxl_seal_has_pending(fxl_ctx *ctx)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    int rc;
+
+    if (!ctx->sealing)
+        return 0;
+    if (fxl_stmt_prepare(&s, ctx, "SELECT 1 FROM temp.fxl_dirty LIMIT 1") != 0)
+        return 0;
+    rc = fxl_stmt_step(&s);
+    fxl_stmt_finalize(&s);
+    return rc == 1;
+}
+
+static void seal_line(crypto_hash_sha256_state *st, const char *tbl, int64_t row_id, const char *sha)
+{
+    char line[160];
+    int n = snprintf(line, sizeof line, "%s %lld %s\n", tbl, (long long)row_id, sha);
+
+    crypto_hash_sha256_update(st, (const unsigned char *)line, (unsigned long long)n);
+}
+
+int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
+{
+    fxl_stmt dirty = FXL_STMT_INIT, ins = FXL_STMT_INIT;
+    crypto_hash_sha256_state st;
+    unsigned char d[crypto_hash_sha256_BYTES];
+    int64_t n = 0;
+    int rc;
+
+    seal_hex[0] = '\0';
+    if (!ctx->sealing)
+        return 0;
+    crypto_hash_sha256_init(&st);
+    if ((rc = fxl_stmt_prepare(&dirty, ctx, "SELECT tbl, row_id FROM temp.fxl_dirty ORDER BY tbl, row_id")) != 0 ||
+        (rc = fxl_stmt_prepare(&ins, ctx,
+                               "INSERT INTO main.row_seals (tbl, row_id, audit_id, sha256) "
+                               "VALUES (:t, :r, :a, :h)")) != 0)
+        goto cleanup;
+    while ((rc = fxl_stmt_step(&dirty)) == 1) {
+        const char *tbl = fxl_stmt_text(&dirty, 0);
+        int64_t row_id = fxl_stmt_int(&dirty, 1);
+        char hex[65];
+        if ((rc = fxl_seal_row(ctx, tbl, row_id, hex)) != 0)
+            goto cleanup;
+        fxl_stmt_reset(&ins);
+        fxl_stmt_bind_text(&ins, ":t", tbl);
+        fxl_stmt_bind_int(&ins, ":r", row_id);
+        fxl_stmt_bind_int(&ins, ":a", audit_id);
+        fxl_stmt_bind_text(&ins, ":h", hex);
+        if ((rc = fxl_stmt_exec(&ins)) != 0)
+            goto cleanup;
+        seal_line(&st, tbl, row_id, hex);
+        n++;
+    }
+    if (rc < 0)
+        goto cleanup;
+    fxl_stmt_finalize(&dirty);
+    if ((rc = fxl_exec(ctx, "DELETE FROM temp.fxl_dirty")) != 0)
+        goto cleanup;
+    if (n > 0) {
+        crypto_hash_sha256_final(&st, d);
+        sodium_bin2hex(seal_hex, 65, d, sizeof d);
+    }
+cleanup:
+    fxl_stmt_finalize(&dirty);
+    fxl_stmt_finalize(&ins);
+    return rc;
+}
+
+int fxl_seal_digest(fxl_ctx *ctx, int64_t audit_id, char hex[65], int64_t *n)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    crypto_hash_sha256_state st;
+    unsigned char d[crypto_hash_sha256_BYTES];
+    int rc;
+
+    hex[0] = '\0';
+    *n = 0;
+    crypto_hash_sha256_init(&st);
+    if ((rc = fxl_stmt_prepare(&s, ctx,
+                               "SELECT tbl, row_id, sha256 FROM main.row_seals WHERE audit_id = :a "
+                               "ORDER BY tbl, row_id")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":a", audit_id);
+    while ((rc = fxl_stmt_step(&s)) == 1) {
+        seal_line(&st, fxl_stmt_text(&s, 0), fxl_stmt_int(&s, 1), fxl_stmt_text(&s, 2));
+        (*n)++;
+    }
+    if (rc == 0 && *n > 0) {
+        crypto_hash_sha256_final(&st, d);
+        sodium_bin2hex(hex, 65, d, sizeof d);
+    }
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
+}
+
+int fxl_seal_mark_all(fxl_ctx *ctx, int64_t *n_marked)
+{
+    char sql[256];
+    size_t i;
+    int rc;
+
+    *n_marked = 0;
+    for (i = 0; fxl_sealed_tables[i]; i++) {
+        snprintf(sql, sizeof sql,
+                 "INSERT OR IGNORE INTO temp.fxl_dirty SELECT '%s', rowid FROM main.\"%s\"",
+                 fxl_sealed_tables[i], fxl_sealed_tables[i]);
+        if ((rc = fxl_exec(ctx, sql)) != 0)
+            return rc;
+        *n_marked += sqlite3_changes(ctx->db);
+    }
+    return 0;
+}
