@@ -117,6 +117,11 @@ typedef struct fxl_record_result {
     char recorded_by[65];
     size_t n;
     fxl_measurement_result *items;  /* heap, n entries, in entry order */
+    /* Due fields of this fraction left without a reading (fxl_record_fraction
+     * only): each named with its missing-measurement item, opened in the same
+     * transaction (fxl/fraction.h has the type). Heap, n_missing entries. */
+    size_t n_missing;
+    struct fxl_fraction_missing *missing;
 } fxl_record_result;
 
 #define FXL_RECORD_RESULT_INIT {0}
@@ -133,7 +138,10 @@ void fxl_record_result_release(fxl_record_result *r);
  * verdict computed by core (fxl_dose_from_reading, fxl_judge) and the
  * history rule applied (fxl/escalation.h). ONE transaction then writes the
  * fraction, one measurement row per reading with its snapshot, a review item
- * with an 'open' event for every result not within tolerance, the audit rows,
+ * with an 'open' event for every result not within tolerance,
+ * a missing-measurement item for every field due this fraction and given no
+ * reading (out->missing; the item the rule over history would open at the
+ * next fraction, so never twice), the audit rows,
  * and runs the rules over history (store/rules_hook.h); any failure rolls
  * everything back. A retired detector, an expired calibration or a parameter
  * outside its table is not an input error: the reading is logged as not

@@ -103,6 +103,12 @@ const char *cli_color(const cli_env *env, const char *code);
 
 /* ---- command entry points (one source file per family) ---------------- */
 
+/* A stored UTC time shown in the department's time zone (setting
+ * 'timezone'): cli_local_time gives '2026-11-02 10:00 +01:00', cli_local_date
+ * its local date 'YYYY-MM-DD'. Malformed text is copied. util.c. */
+void cli_local_time(const cli_env *env, char *buf, size_t size, const char *stored);
+void cli_local_date(const cli_env *env, char out[16], const char *stored);
+
 int cmd_init(cli_env *env, int argc, char **argv);
 int cmd_user(cli_env *env, int argc, char **argv);
 int cmd_setting(cli_env *env, int argc, char **argv);

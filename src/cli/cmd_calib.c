@@ -6,11 +6,13 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/table.h"
 #include "cli/signature_view.h"
 #include "cli/session.h"
 #include "fxl/number.h"
 #include "cli/json_put.h"
 #include "fxl/calibrations.h"
+#include "fxl/fraction.h"
 #include "fxl/settings.h"
 
 /* Splits "10.01,10.03,9.98" into numbers; prints a one-line error naming the
@@ -125,7 +127,7 @@ static int calib_add(cli_env *env, int argc, char **argv)
                                      "sensitivity)", NULL},
         {"valid-days", "N", "valid for N days (default: setting calibration_interval_days, else 90)", NULL},
         {"valid-until", "DATE", "valid until the end of DATE (instead of --valid-days)", NULL},
-        {"at", "DATE", "when it was measured (default now; not in the future)", NULL},
+        {"at", "TIME", "when it was measured, local or with an offset (default now; not in the future)", NULL},
         {"chamber", "TEXT", "ion chamber and electrometer used", NULL},
         {"notes", "TEXT", "free notes", NULL},
         {NULL, NULL, NULL, NULL}};
@@ -210,9 +212,9 @@ static int calib_add(cli_env *env, int argc, char **argv)
         c.valid_until = until;
     }
     if (cli_get(opts, "at")) {
-        if (fxl_time_normalize(at, cli_get(opts, "at"), 0) != 0) {
-            cli_error("calibration date '%s' is not valid (YYYY-MM-DD or YYYY-MM-DDTHH:MM[:SS]Z)",
-                      cli_get(opts, "at"));
+        /* typed by a person: local time in the department's zone or an offset */
+        if (fxl_time_parse_local(env->ctx, at, cli_get(opts, "at")) != 0) {
+            cli_error("calibration date '%s': %s", cli_get(opts, "at"), fxl_errmsg(env->ctx));
             return CLI_EXIT_DATA;
         }
         c.calibrated_at = at;
@@ -281,17 +283,39 @@ static int calib_list(cli_env *env, int argc, char **argv)
         free(list);
         return cli_print_json(arr);
     }
-    if (n == 0)
+    if (n == 0) {
         printf("no calibrations\n");
-    else
-        printf("%-5s %-14s %-10s %-10s %-8s %-10s %-10s %-20s %-4s %s\n", "ID", "SERIAL", "MACHINE",
-               "BEAM", "POINT", "DATE", "UNTIL", "N", "n", "STATE");
-    for (i = 0; i < n; i++) {
-        char factor[40];
-        snprintf(factor, sizeof factor, "%.5f cGy/%s", list[i].factor_cgy_per_unit, list[i].reading_unit);
-        printf("%-5lld %-14s %-10s %-10s %-8s %-10.10s %-10.10s %-20s %-4d %s\n", (long long)list[i].id,
-               list[i].serial, list[i].machine, list[i].beam, list[i].point, list[i].calibrated_at,
-               list[i].valid_until, factor, list[i].n, list[i].state);
+    } else {
+        /* 80 columns; dates in the department's zone */
+        static const char *const head[] = {"#", "serial", "machine", "beam", "point", "date",
+                                           "until", "N", "n", "state", NULL};
+        cli_table tab;
+        cli_table_init(&tab, head);
+        tab.gap = 1;
+        tab.right[0] = tab.right[8] = 1;
+        for (i = 0; i < n; i++) {
+            char id[24], factor[40], date[16], until[16], cnt[16];
+            const char *cells[10];
+            snprintf(id, sizeof id, "#%lld", (long long)list[i].id);
+            snprintf(factor, sizeof factor, "%.5f cGy/%s", list[i].factor_cgy_per_unit,
+                     list[i].reading_unit);
+            cli_local_date(env, date, list[i].calibrated_at);
+            cli_local_date(env, until, list[i].valid_until);
+            snprintf(cnt, sizeof cnt, "%d", list[i].n);
+            cells[0] = id;
+            cells[1] = list[i].serial;
+            cells[2] = list[i].machine;
+            cells[3] = list[i].beam;
+            cells[4] = list[i].point;
+            cells[5] = date;
+            cells[6] = until;
+            cells[7] = factor;
+            cells[8] = cnt;
+            cells[9] = list[i].state;
+            cli_table_add(&tab, cells);
+        }
+        cli_table_print(stdout, &tab, CLI_WIDTH, 0);
+        cli_table_release(&tab);
     }
     free(list);
     return CLI_EXIT_OK;

@@ -5,10 +5,12 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/table.h"
 #include "cli/json_put.h"
 #include "fxl/calibrations.h"
 #include "fxl/corrections.h"
 #include "fxl/detectors.h"
+#include "fxl/fraction.h"
 
 static cJSON *detector_json(const fxl_detector *d)
 {
@@ -136,17 +138,33 @@ static int detector_list(cli_env *env, int argc, char **argv)
         free(list);
         return cli_print_json(arr);
     }
-    if (n == 0)
+    if (n == 0) {
         printf("no detectors yet (add one with 'fxledger detector add')\n");
-    else
-        printf("%-14s %-12s %-17s %-15s %-10s %s\n", "SERIAL", "LABEL", "KIND", "STATUS",
-               "CALIBRATED", "DOSE SINCE CALIBRATION");
-    for (i = 0; i < n; i++) {
-        char dose[64];
-        format_dose(dose, sizeof dose, &list[i]);
-        printf("%-14s %-12s %-17s %-15s %-10.10s %s\n", list[i].serial, list[i].label, list[i].kind,
-               list[i].status, list[i].last_calibrated_at[0] ? list[i].last_calibrated_at : "never",
-               dose);
+    } else {
+        /* 80 columns: the label wraps at words; dates in the department's zone */
+        static const char *const head[] = {"serial", "label", "kind", "status", "calibrated",
+                                           "dose since calib.", NULL};
+        cli_table tab;
+        cli_table_init(&tab, head);
+        tab.wrap[1] = 1;
+        for (i = 0; i < n; i++) {
+            char dose[64], cal[16];
+            const char *cells[6];
+            format_dose(dose, sizeof dose, &list[i]);
+            if (list[i].last_calibrated_at[0])
+                cli_local_date(env, cal, list[i].last_calibrated_at);
+            else
+                snprintf(cal, sizeof cal, "never");
+            cells[0] = list[i].serial;
+            cells[1] = list[i].label;
+            cells[2] = list[i].kind;
+            cells[3] = list[i].status;
+            cells[4] = cal;
+            cells[5] = dose;
+            cli_table_add(&tab, cells);
+        }
+        cli_table_print(stdout, &tab, CLI_WIDTH, 0);
+        cli_table_release(&tab);
     }
     free(list);
     return CLI_EXIT_OK;
@@ -222,40 +240,104 @@ static int detector_show(cli_env *env, int argc, char **argv)
         goto cleanup;
     }
     format_dose(dose, sizeof dose, &d);
-    printf("detector %s (%s)\n", d.serial, d.label);
-    printf("  kind               %s\n", d.kind);
-    printf("  reading unit       %s\n", d.reading_unit);
-    if (isnan(d.sensitivity))
-        printf("  sensitivity        -\n");
-    else
-        printf("  sensitivity        %g %s/cGy\n", d.sensitivity, d.reading_unit);
-    printf("  temp. coefficient  %g per degC (%.3g %%/degC)\n", d.temp_coeff_per_c,
-           d.temp_coeff_per_c * 100);
-    printf("  build-up           %s\n", d.buildup[0] ? d.buildup : "-");
-    printf("  status             %s%s%s%s%s%s\n", d.status, d.status_since[0] ? " since " : "",
-           d.status_since, d.status_reason[0] ? " (" : "", d.status_reason,
-           d.status_reason[0] ? ")" : "");
-    printf("  last calibrated    %s\n", d.last_calibrated_at[0] ? d.last_calibrated_at : "never");
-    printf("  dose since then    %s (%lld measurements)\n", dose, (long long)d.measurement_count);
+    {
+        char line[900], when[48] = "", cal[48] = "";
+        snprintf(line, sizeof line, "detector %s (%s)", d.serial, d.label);
+        cli_wrap(stdout, "", line, CLI_WIDTH);
+        printf("  kind               %s\n", d.kind);
+        printf("  reading unit       %s\n", d.reading_unit);
+        if (isnan(d.sensitivity))
+            printf("  sensitivity        -\n");
+        else
+            printf("  sensitivity        %g %s/cGy\n", d.sensitivity, d.reading_unit);
+        printf("  temp. coefficient  %g per degC (%.3g %%/degC)\n", d.temp_coeff_per_c,
+               d.temp_coeff_per_c * 100);
+        printf("  build-up           %s\n", d.buildup[0] ? d.buildup : "-");
+        cli_local_time(env, when, sizeof when, d.status_since);
+        snprintf(line, sizeof line, "%s%s%s%s%s%s", d.status, when[0] ? " since " : "", when,
+                 d.status_reason[0] ? " (" : "", d.status_reason, d.status_reason[0] ? ")" : "");
+        cli_wrap_hang(stdout, "  status             ", 21, line, CLI_WIDTH);
+        if (d.last_calibrated_at[0])
+            cli_local_time(env, cal, sizeof cal, d.last_calibrated_at);
+        printf("  last calibrated    %s\n", cal[0] ? cal : "never");
+        printf("  dose since then    %s (%lld measurements)\n", dose, (long long)d.measurement_count);
+    }
     printf("\nstatus history:\n");
-    for (i = 0; i < nh; i++)
-        printf("  %s  %-15s %-10s %s\n", hist[i].effective_at, hist[i].status, hist[i].user,
-               hist[i].reason);
+    {
+        static const char *const hh[] = {"since", "status", "by", "reason", NULL};
+        cli_table tab;
+        cli_table_init(&tab, hh);
+        tab.wrap[3] = 1;
+        for (i = 0; i < nh; i++) {
+            char when[48];
+            const char *cells[4];
+            cli_local_time(env, when, sizeof when, hist[i].effective_at);
+            cells[0] = when;
+            cells[1] = hist[i].status;
+            cells[2] = hist[i].user;
+            cells[3] = hist[i].reason;
+            cli_table_add(&tab, cells);
+        }
+        cli_table_print(stdout, &tab, CLI_WIDTH, 2);
+        cli_table_release(&tab);
+    }
     printf("\ncalibrations:\n");
-    if (nc == 0)
+    if (nc == 0) {
         printf("  none\n");
-    for (i = 0; i < nc; i++)
-        printf("  #%-4lld %.10s  %s %s %-8s N = %.5g cGy/%s  valid until %.10s  %s\n",
-               (long long)cals[i].id, cals[i].calibrated_at, cals[i].machine, cals[i].beam,
-               cals[i].point, cals[i].factor_cgy_per_unit, cals[i].reading_unit,
-               cals[i].valid_until, cals[i].state);
+    } else {
+        static const char *const ch[] = {"#", "date", "machine", "beam", "point", "N", "valid until",
+                                         "state", NULL};
+        cli_table tab;
+        cli_table_init(&tab, ch);
+        tab.right[0] = 1;
+        for (i = 0; i < nc; i++) {
+            char id[24], date[16], until[16], factor[48];
+            const char *cells[8];
+            snprintf(id, sizeof id, "#%lld", (long long)cals[i].id);
+            cli_local_date(env, date, cals[i].calibrated_at);
+            cli_local_date(env, until, cals[i].valid_until);
+            snprintf(factor, sizeof factor, "%.5g cGy/%s", cals[i].factor_cgy_per_unit,
+                     cals[i].reading_unit);
+            cells[0] = id;
+            cells[1] = date;
+            cells[2] = cals[i].machine;
+            cells[3] = cals[i].beam;
+            cells[4] = cals[i].point;
+            cells[5] = factor;
+            cells[6] = until;
+            cells[7] = cals[i].state;
+            cli_table_add(&tab, cells);
+        }
+        cli_table_print(stdout, &tab, CLI_WIDTH, 2);
+        cli_table_release(&tab);
+    }
     printf("\ncorrection tables:\n");
-    if (nt == 0)
+    if (nt == 0) {
         printf("  none\n");
-    for (i = 0; i < nt; i++)
-        printf("  #%-4lld %s %s %-10s from %.10s  %zu points%s\n", (long long)tabs[i].id,
-               tabs[i].machine, tabs[i].beam, tabs[i].parameter, tabs[i].effective_from,
-               tabs[i].n_points, tabs[i].in_force ? "  in force" : "");
+    } else {
+        static const char *const th[] = {"#", "machine", "beam", "parameter", "from", "points",
+                                         "in force", NULL};
+        cli_table tab;
+        cli_table_init(&tab, th);
+        tab.right[0] = tab.right[5] = 1;
+        for (i = 0; i < nt; i++) {
+            char id[24], from[16], pts[24];
+            const char *cells[7];
+            snprintf(id, sizeof id, "#%lld", (long long)tabs[i].id);
+            cli_local_date(env, from, tabs[i].effective_from);
+            snprintf(pts, sizeof pts, "%zu", tabs[i].n_points);
+            cells[0] = id;
+            cells[1] = tabs[i].machine;
+            cells[2] = tabs[i].beam;
+            cells[3] = tabs[i].parameter;
+            cells[4] = from;
+            cells[5] = pts;
+            cells[6] = tabs[i].in_force ? "yes" : "no";
+            cli_table_add(&tab, cells);
+        }
+        cli_table_print(stdout, &tab, CLI_WIDTH, 2);
+        cli_table_release(&tab);
+    }
     rc = CLI_EXIT_OK;
 cleanup:
     free(hist);
@@ -274,8 +356,8 @@ static int set_status(cli_env *env, const char *serial, const char *status, cons
         cli_error("--reason is required (1 to 200 characters)");
         return CLI_EXIT_USAGE;
     }
-    if (at_text && fxl_time_normalize(at, at_text, 0) != 0) {
-        cli_error("date '%s' is not valid (YYYY-MM-DD or YYYY-MM-DDTHH:MM[:SS]Z)", at_text);
+    if (at_text && fxl_time_parse_local(env->ctx, at, at_text) != 0) {
+        cli_error("date '%s': %s", at_text, fxl_errmsg(env->ctx));
         return CLI_EXIT_DATA;
     }
     if ((rc = fxl_detector_set_status(env->ctx, serial, status, reason, at_text ? at : NULL)) != 0)
@@ -286,8 +368,12 @@ static int set_status(cli_env *env, const char *serial, const char *status, cons
             return cli_fail(env, rc);
         return cli_print_json(detector_json(&d));
     }
-    printf("detector '%s' is now %s%s%s\n", serial, status, at_text ? " from " : "",
-           at_text ? at : "");
+    {
+        char when[48] = "";
+        if (at_text)
+            cli_local_time(env, when, sizeof when, at);
+        printf("detector '%s' is now %s%s%s\n", serial, status, at_text ? " from " : "", when);
+    }
     return CLI_EXIT_OK;
 }
 
@@ -295,7 +381,7 @@ static int detector_status(cli_env *env, int argc, char **argv)
 {
     cli_opt opts[] = {
         {"reason", "TEXT", "why (required)", NULL},
-        {"at", "DATE", "when it took effect (default now; not before the last change)", NULL},
+        {"at", "TIME", "when it took effect, local or with an offset (default now; not before the last change)", NULL},
         {NULL, NULL, NULL, NULL}};
     const char *pos[2];
     int npos, rc;
@@ -322,7 +408,7 @@ static int detector_retire(cli_env *env, int argc, char **argv)
 {
     cli_opt opts[] = {
         {"reason", "TEXT", "why (required)", NULL},
-        {"at", "DATE", "when it took effect (default now)", NULL},
+        {"at", "TIME", "when it took effect, local or with an offset (default now)", NULL},
         {NULL, NULL, NULL, NULL}};
     const char *pos[1];
     int npos, rc;

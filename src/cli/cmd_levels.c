@@ -5,6 +5,8 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "fxl/fraction.h"
+#include "cli/table.h"
 #include "cli/signature_view.h"
 #include "cli/session.h"
 #include "cli/json_put.h"
@@ -40,15 +42,41 @@ static cJSON *set_json(const fxl_threshold_set *t)
     return o;
 }
 
-static void print_set_line(const fxl_threshold_set *t)
+/* The date alone when the time is local midnight (a set in force from a
+ * day), else the local time with its offset. */
+static void when_text(const cli_env *env, char *buf, size_t size, const char *stored)
+{
+    char full[48];
+
+    cli_local_time(env, full, sizeof full, stored);
+    if (strlen(full) >= 16 && strncmp(full + 10, " 00:00", 6) == 0)
+        snprintf(buf, size, "%.10s", full);
+    else
+        snprintf(buf, size, "%s", full);
+}
+
+static void add_set_row(const cli_env *env, cli_table *tab, const fxl_threshold_set *t)
 {
     fxl_scope s;
-    char scope[300];
+    char scope[300], ver[16], when[48], tol[24], act[24], floor_[24];
+    const char *cells[8];
 
     fxl_threshold_set_scope(&s, t);
     fxl_scope_describe(scope, sizeof scope, &s);
-    printf("%-20s v%-3d %-20s %-8s %6.1f %% %6.1f %% %6.1f cGy  %s\n", t->name, t->version, t->effective_from,
-           t->active ? "active" : "inactive", t->tolerance_pct, t->action_pct, t->floor_cgy, scope);
+    snprintf(ver, sizeof ver, "v%d", t->version);
+    when_text(env, when, sizeof when, t->effective_from);
+    snprintf(tol, sizeof tol, "%.1f %%", t->tolerance_pct);
+    snprintf(act, sizeof act, "%.1f %%", t->action_pct);
+    snprintf(floor_, sizeof floor_, "%.1f cGy", t->floor_cgy);
+    cells[0] = t->name;
+    cells[1] = ver;
+    cells[2] = when;
+    cells[3] = t->active ? "active" : "inactive";
+    cells[4] = tol;
+    cells[5] = act;
+    cells[6] = floor_;
+    cells[7] = scope;
+    cli_table_add(tab, cells);
 }
 
 /* A scope option: NULL not given; "any" opens the column (stored as ""). */
@@ -168,7 +196,7 @@ static int levels_list(cli_env *env, int argc, char **argv)
 {
     cli_opt opts[] = {
         {"all-versions", NULL, "every stored version, active or not", NULL},
-        {"at", "DATE", "the sets in force at DATE (default now)", NULL},
+        {"at", "TIME", "the sets in force at TIME, local or with an offset (default now)", NULL},
         {NULL, NULL, NULL, NULL}};
     const char *pos[1], *at_text;
     char at[FXL_TIME_LEN], now[FXL_TIME_LEN];
@@ -189,8 +217,9 @@ static int levels_list(cli_env *env, int argc, char **argv)
         return CLI_EXIT_USAGE;
     }
     if (at_text) {
-        if (fxl_time_normalize(at, at_text, 0) != 0) {
-            cli_error("--at '%s' must be YYYY-MM-DD or YYYY-MM-DDTHH:MM[:SS]Z (UTC)", at_text);
+        /* local time in the department's zone or an offset, as record --at */
+        if (fxl_time_parse_local(env->ctx, at, at_text) != 0) {
+            cli_error("--at: %s", fxl_errmsg(env->ctx));
             return CLI_EXIT_USAGE;
         }
     } else {
@@ -211,16 +240,26 @@ static int levels_list(cli_env *env, int argc, char **argv)
     }
     if (all)
         printf("every stored version of every level set:\n");
-    else
-        printf("level sets in force at %s:\n", at);
+    else {
+        char when[48];
+        cli_local_time(env, when, sizeof when, at);
+        printf("level sets in force at %s:\n", when);
+    }
     if (n == 0) {
         printf("  none: every measurement is not evaluable until a level set applies\n"
                "  (add one with 'fxledger levels set NAME --tolerance PCT --action PCT')\n");
     } else {
-        printf("%-20s %-4s %-20s %-8s %8s %8s %10s  %s\n", "name", "ver", "effective from", "status",
-               "tol.", "action", "floor", "scope");
+        /* 80 columns: the scope under its row; times in the department's zone */
+        static const char *const head[] = {"name", "ver", "from", "status", "tol.", "action",
+                                           "floor", "scope", NULL};
+        cli_table tab;
+        cli_table_init(&tab, head);
+        tab.right[4] = tab.right[5] = tab.right[6] = 1;
+        tab.below[7] = 1;
         for (i = 0; i < n; i++)
-            print_set_line(&list[i]);
+            add_set_row(env, &tab, &list[i]);
+        cli_table_print(stdout, &tab, CLI_WIDTH, 0);
+        cli_table_release(&tab);
     }
     free(list);
     printf("\nLevels are local policy, set by the department's physicists.\n");

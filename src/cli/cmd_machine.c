@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/table.h"
 #include "cli/session.h"
 #include "cli/json_put.h"
 #include "fxl/beam_data.h"
@@ -170,8 +171,9 @@ static int machine_beamdata(cli_env *env, int argc, char **argv)
            d.in_force ? "" : " (not yet in force)");
     printf("  sha256 %s\n", d.sha256);
     if (d.source[0])
-        printf("  source: %s\n", d.source);
-    printf("  plans imported from now on get the model's expected dose and cross-check for this beam\n");
+        cli_wrap_hang(stdout, "  source: ", 4, d.source, CLI_WIDTH);
+    cli_wrap_hang(stdout, "  ", 4, "plans imported from now on get the model's expected dose and "
+                  "cross-check for this beam", CLI_WIDTH);
     return CLI_EXIT_OK;
 }
 

@@ -168,20 +168,40 @@ static int patient_show(cli_env *env, int argc, char **argv)
                 cJSON_AddItemToArray(fa, field_summary_json(&full.fields[k]));
             cJSON_AddItemToArray(arr, o);
         } else {
-            printf("\n  plan %s: %s, %s, %d fraction%s, %d logged%s%s%s%s\n", full.label, full.site,
-                   full.technique, full.fractions, full.fractions == 1 ? "" : "s", full.fractions_logged,
-                   full.replaces_label[0] ? "; replaces " : "", full.replaces_label,
-                   full.replaced_by_label[0] ? "; REPLACED by " : "", full.replaced_by_label);
+            static const char *const head[] = {"field", "point", "beam", "MU", "expected",
+                                               "measure", NULL};
+            cli_table tab;
+            char line[600];
+            snprintf(line, sizeof line, "plan %s: %s, %s, %d fraction%s, %d logged%s%s%s%s", full.label,
+                     full.site, full.technique, full.fractions, full.fractions == 1 ? "" : "s",
+                     full.fractions_logged, full.replaces_label[0] ? "; replaces " : "",
+                     full.replaces_label, full.replaced_by_label[0] ? "; REPLACED by " : "",
+                     full.replaced_by_label);
+            printf("\n");
+            cli_wrap(stdout, "  ", line, CLI_WIDTH);
+            /* 80 columns: the fields as a fitted table */
+            cli_table_init(&tab, head);
+            tab.right[3] = tab.right[4] = 1;
             for (k = 0; k < full.n_fields; k++) {
                 const fxl_field *f = &full.fields[k];
-                char expected[32];
+                char expected[32], beam[140], mu[32];
+                const char *cells[6];
                 if (isnan(f->expected_dose_cgy))
                     snprintf(expected, sizeof expected, "(none)");
                 else
                     snprintf(expected, sizeof expected, "%.1f cGy", f->expected_dose_cgy);
-                printf("    %-12s %-8s %s/%s %8.1f MU  expected %11s  measure %s\n", f->name, f->point,
-                       f->machine, f->beam, f->mu, expected, f->policy);
+                snprintf(beam, sizeof beam, "%s/%s", f->machine, f->beam);
+                snprintf(mu, sizeof mu, "%.1f", f->mu);
+                cells[0] = f->name;
+                cells[1] = f->point;
+                cells[2] = beam;
+                cells[3] = mu;
+                cells[4] = expected;
+                cells[5] = f->policy;
+                cli_table_add(&tab, cells);
             }
+            cli_table_print(stdout, &tab, CLI_WIDTH, 4);
+            cli_table_release(&tab);
         }
         fxl_plan_release(&full);
     }

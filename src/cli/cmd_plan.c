@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/table.h"
 #include "cli/session.h"
 #include "cli/plan_view.h"
 #include "fxl/plan_json.h"
@@ -103,24 +104,43 @@ static int plan_list(cli_env *env, int argc, char **argv)
         free(list);
         return cli_print_json(a);
     }
-    if (n == 0)
+    if (n == 0) {
         printf("no plans%s%s\n", npos ? " for patient " : "", npos ? pos[0] : "");
-    else
-        printf("%-16s %-16s %-16s %-12s %9s %10s %6s %6s  %s\n", "MRN", "plan", "site", "technique",
-               "fractions", "cGy/fx", "points", "logged", "status");
-    for (i = 0; i < n; i++) {
-        char dose[24], status[100];
-        const fxl_plan *p = &list[i];
-        if (isnan(p->dose_per_fraction_cgy))
-            snprintf(dose, sizeof dose, "-");
-        else
-            snprintf(dose, sizeof dose, "%.1f cGy", p->dose_per_fraction_cgy);
-        if (p->replaced_by_label[0])
-            snprintf(status, sizeof status, "replaced by %s", p->replaced_by_label);
-        else
-            snprintf(status, sizeof status, "current");
-        printf("%-16s %-16s %-16s %-12s %9d %10s %6zu %6d  %s\n", p->mrn, p->label, p->site, p->technique,
-               p->fractions, dose, p->n_fields, p->fractions_logged, status);
+    } else {
+        /* 80 columns: site and technique wrap at words; the measured points
+         * are in 'plan show' and --json */
+        static const char *const head[] = {"MRN", "plan", "site", "technique", "fx", "cGy/fx",
+                                           "logged", "status", NULL};
+        cli_table tab;
+        cli_table_init(&tab, head);
+        tab.right[4] = tab.right[5] = tab.right[6] = 1;
+        tab.wrap[2] = tab.wrap[3] = 1;
+        for (i = 0; i < n; i++) {
+            char dose[24], status[100], fx[16], logged[16];
+            const char *cells[8];
+            const fxl_plan *p = &list[i];
+            if (isnan(p->dose_per_fraction_cgy))
+                snprintf(dose, sizeof dose, "-");
+            else
+                snprintf(dose, sizeof dose, "%.1f", p->dose_per_fraction_cgy);
+            if (p->replaced_by_label[0])
+                snprintf(status, sizeof status, "replaced by %s", p->replaced_by_label);
+            else
+                snprintf(status, sizeof status, "current");
+            snprintf(fx, sizeof fx, "%d", p->fractions);
+            snprintf(logged, sizeof logged, "%d", p->fractions_logged);
+            cells[0] = p->mrn;
+            cells[1] = p->label;
+            cells[2] = p->site;
+            cells[3] = p->technique;
+            cells[4] = fx;
+            cells[5] = dose;
+            cells[6] = logged;
+            cells[7] = status;
+            cli_table_add(&tab, cells);
+        }
+        cli_table_print(stdout, &tab, CLI_WIDTH, 0);
+        cli_table_release(&tab);
     }
     free(list);
     return CLI_EXIT_OK;
@@ -153,16 +173,25 @@ static int plan_show(cli_env *env, int argc, char **argv)
         return cli_print_json(o);
     }
     printf("plan %s of patient %s\n", plan.label, plan.mrn);
-    printf("  site %s, technique %s, %d fraction%s", plan.site, plan.technique, plan.fractions,
-           plan.fractions == 1 ? "" : "s");
-    if (!isnan(plan.dose_per_fraction_cgy))
-        printf(" of %.1f cGy", plan.dose_per_fraction_cgy);
-    printf("; %d logged\n", plan.fractions_logged);
+    {
+        char line[400], dose[40] = "";
+        if (!isnan(plan.dose_per_fraction_cgy))
+            snprintf(dose, sizeof dose, " of %.1f cGy", plan.dose_per_fraction_cgy);
+        snprintf(line, sizeof line, "site %s, technique %s, %d fraction%s%s; %d logged", plan.site,
+                 plan.technique, plan.fractions, plan.fractions == 1 ? "" : "s", dose,
+                 plan.fractions_logged);
+        cli_wrap(stdout, "  ", line, CLI_WIDTH);
+    }
     if (plan.replaces_label[0])
         printf("  replaces plan %s\n", plan.replaces_label);
     if (plan.replaced_by_label[0])
         printf("  REPLACED by plan %s: measure against that plan\n", plan.replaced_by_label);
-    printf("  imported %s by %s from %s\n", plan.created_at, plan.created_by, plan.source);
+    {
+        char line[700], when[48];
+        cli_local_time(env, when, sizeof when, plan.created_at);
+        snprintf(line, sizeof line, "imported %s by %s from %s", when, plan.created_by, plan.source);
+        cli_wrap(stdout, "  ", line, CLI_WIDTH);
+    }
     for (k = 0; k < plan.n_fields; k++) {
         const fxl_field *f = &plan.fields[k];
         printf("\n  field %s, %s point (measure: %s)\n", f->name, f->point, f->policy);

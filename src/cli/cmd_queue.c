@@ -3,6 +3,7 @@
  * comment, close with a disposition, reopen). No SQL here. */
 #include <limits.h>
 #include <math.h>
+#include <stdarg.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -238,52 +239,66 @@ static double trend_scale(const fxl_review_detail *d)
     return ceil(w);
 }
 
-static int trend_col(double v, double w)
+static int trend_col(double v, double w, int cols)
 {
-    int c = (int)lround((v + w) / (2.0 * w) * (TREND_COLS - 1));
-    return c < 0 ? 0 : c >= TREND_COLS ? TREND_COLS - 1 : c;
+    int c = (int)lround((v + w) / (2.0 * w) * (cols - 1));
+    return c < 0 ? 0 : c >= cols ? cols - 1 : c;
 }
 
-/* One lane of the text trend: the axis, the levels and the point. */
+/* One lane of the text trend, `cols` wide (at most TREND_COLS): the axis,
+ * the levels and the point. */
 static void trend_lane(char lane[TREND_COLS + 1], const fxl_review_detail *d, double w, double v,
-                       char mark)
+                       char mark, int cols)
 {
     int i;
 
-    memset(lane, ' ', TREND_COLS);
-    lane[TREND_COLS] = '\0';
-    lane[trend_col(0.0, w)] = '.';
+    if (cols > TREND_COLS)
+        cols = TREND_COLS;
+    memset(lane, ' ', (size_t)cols);
+    lane[cols] = '\0';
+    lane[trend_col(0.0, w, cols)] = '.';
     if (isfinite(d->trend_tolerance_pct)) {
-        lane[trend_col(-d->trend_tolerance_pct, w)] = ':';
-        lane[trend_col(d->trend_tolerance_pct, w)] = ':';
+        lane[trend_col(-d->trend_tolerance_pct, w, cols)] = ':';
+        lane[trend_col(d->trend_tolerance_pct, w, cols)] = ':';
     }
     if (isfinite(d->trend_action_pct)) {
-        lane[trend_col(-d->trend_action_pct, w)] = '|';
-        lane[trend_col(d->trend_action_pct, w)] = '|';
+        lane[trend_col(-d->trend_action_pct, w, cols)] = '|';
+        lane[trend_col(d->trend_action_pct, w, cols)] = '|';
     }
     if (isfinite(v))
-        lane[trend_col(v, w)] = mark;
-    for (i = TREND_COLS - 1; i >= 0 && lane[i] == ' '; i--)
+        lane[trend_col(v, w, cols)] = mark;
+    for (i = cols - 1; i >= 0 && lane[i] == ' '; i--)
         lane[i] = '\0';
 }
+
+/* Columns before the lane on a trend row (80 columns: the lane takes the
+ * rest of the line). */
+#define TREND_PREFIX_DETECTOR 55
+#define TREND_PREFIX_FIELD 52
 
 static void print_trend(const cli_env *env, const fxl_review_detail *d)
 {
     char lane[TREND_COLS + 1];
     double w = trend_scale(d);
     size_t i, first = d->n_trend > TREND_MAX_ROWS ? d->n_trend - TREND_MAX_ROWS : 0;
+    int cols = CLI_WIDTH - (d->trend_is_detector ? TREND_PREFIX_DETECTOR : TREND_PREFIX_FIELD);
 
-    (void)env;
     if (d->trend_is_detector) {
-        printf("\nDeviations measured with detector %s%s%s since its latest calibration or\n"
-               "closed drift review, all patients, with the standardised CUSUM sums in spreads\n"
-               "(target %.2f %%, k = %.2f, h = %.2f spreads, start-up %d results; spread from\n"
-               "the series' moving ranges):\n",
-               d->item.detector, d->trend_series[0] ? ", " : "", d->trend_series,
-               d->cusum_target_pct, d->cusum_k_sd, d->cusum_h_sd, d->cusum_startup);
+        char head[700];
+        snprintf(head, sizeof head, "Deviations measured with detector %s%s%s since its latest "
+                 "calibration or closed drift review, all patients, with the standardised CUSUM sums "
+                 "in spreads (target %.2f %%, k = %.2f, h = %.2f spreads, start-up %d results; spread "
+                 "from the series' moving ranges):", d->item.detector, d->trend_series[0] ? ", " : "",
+                 d->trend_series, d->cusum_target_pct, d->cusum_k_sd, d->cusum_h_sd,
+                 d->cusum_startup);
+        printf("\n");
+        cli_wrap(stdout, "", head, CLI_WIDTH);
     } else {
-        printf("\nHistory of field %s %s (patient %s), deviation per fraction:\n", d->item.field,
-               d->item.point, d->item.mrn);
+        char head[300];
+        snprintf(head, sizeof head, "History of field %s %s (patient %s), deviation per fraction:",
+                 d->item.field, d->item.point, d->item.mrn);
+        printf("\n");
+        cli_wrap(stdout, "", head, CLI_WIDTH);
     }
     if (d->n_trend == 0) {
         printf("  no measurements\n");
@@ -297,93 +312,120 @@ static void print_trend(const cli_env *env, const fxl_review_detail *d)
     printf("\n");
     if (first)
         printf("  (%zu earlier measurement%s not shown)\n", first, first == 1 ? "" : "s");
+    if (d->trend_is_detector)
+        printf("  %-10s %-10s %-6s %9s %6s %6s\n", "treated", "patient", "field", "deviation",
+               "C+", "C-");
     for (i = first; i < d->n_trend; i++) {
         const fxl_review_trend_point *t = &d->trend[i];
         char mark = t->is_item ? '*' : t->superseded ? 'x' : 'o';
-        char dev[24];
+        char dev[24], day[16];
         if (isfinite(t->deviation_pct))
             snprintf(dev, sizeof dev, "%+7.2f %%", t->deviation_pct);
         else
             snprintf(dev, sizeof dev, "%9s", "--");
-        trend_lane(lane, d, w, t->deviation_pct, mark);
+        cli_local_date(env, day, t->treated_at);
+        trend_lane(lane, d, w, t->deviation_pct, mark, cols);
         if (d->trend_is_detector)
-            printf("  %.10s  %-10.10s %-8.8s %s  C+ %5.2f  C- %5.2f  %s\n", t->treated_at, t->mrn,
-                   t->field, dev, t->cusum_high, t->cusum_low, lane);
+            printf("  %-10s %-10.10s %-6.6s %s %6.2f %6.2f %s\n", day, t->mrn, t->field, dev,
+                   t->cusum_high, t->cusum_low, lane);
+        else
+            /* a superseded reading says so in place of its verdict (80 columns) */
+            printf("  fx %3d  %-10s  %s  %-18s %s\n", t->fraction_number, day, dev,
+                   t->superseded ? "(superseded)" : t->verdict, lane);
+    }
+    /* once, after the rows (it was printed inside the loop) */
     if (d->trend_is_detector && d->n_trend && isfinite(d->trend[d->n_trend - 1].sigma_pct))
         printf("  spread used at the last result: %.2f %%\n", d->trend[d->n_trend - 1].sigma_pct);
-        else
-            printf("  fx %3d  %.10s  %s  %-18s %s%s\n", t->fraction_number, t->treated_at, dev,
-                   t->verdict, lane, t->superseded ? "  (superseded)" : "");
-    }
     if (!d->trend_is_detector)
         printf("  * this item's measurement   o other measurements   x superseded readings\n");
+}
+
+/* "  label            value", the value wrapped at words under itself
+ * (80 columns). */
+static void kv(const char *label, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+static void kv(const char *label, const char *fmt, ...)
+{
+    char lead[64], text[1600];
+    va_list ap;
+
+    va_start(ap, fmt);
+    vsnprintf(text, sizeof text, fmt, ap);
+    va_end(ap);
+    snprintf(lead, sizeof lead, "  %-16s ", label);
+    cli_wrap_hang(stdout, lead, 19, text, CLI_WIDTH);
 }
 
 static void print_factor(const char *name, double v, const char *fmt_unit)
 {
     if (isfinite(v))
-        printf("  %-16s %.4f%s\n", name, v, fmt_unit);
+        kv(name, "%.4f%s", v, fmt_unit);
     else
-        printf("  %-16s --\n", name);
+        kv(name, "--");
 }
 
-static void print_measurement(const fxl_review_measurement *m)
+static void print_measurement(const cli_env *env, const fxl_review_measurement *m)
 {
     static const char *const cf_names[FXL_CF_COUNT] = {"CF field size", "CF SSD", "CF wedge",
                                                        "CF tray", "CF angle", "CF thickness",
                                                        "CF SDD"};
     int i;
 
-    printf("\nMeasurement #%lld: fraction %d, treated %s, recorded by %s at %s\n", (long long)m->id,
-           m->fraction_number, m->treated_at, m->recorded_by, m->recorded_at);
-    printf("  %-16s %s %s, beam %s, detector %s\n", "field", m->field, m->point, m->beam,
+    {
+        char treated[48], recorded[48], head[300];
+        cli_local_time(env, treated, sizeof treated, m->treated_at);
+        cli_local_time(env, recorded, sizeof recorded, m->recorded_at);
+        snprintf(head, sizeof head, "Measurement #%lld: fraction %d, treated %s, recorded by %s at %s",
+                 (long long)m->id, m->fraction_number, treated, m->recorded_by, recorded);
+        printf("\n");
+        cli_wrap(stdout, "", head, CLI_WIDTH);
+    }
+    kv("field", "%s %s, beam %s, detector %s", m->field, m->point, m->beam,
            m->detector);
-    printf("  %-16s %.4g %s\n", "reading", m->reading, m->reading_unit);
+    kv("reading", "%.4g %s", m->reading, m->reading_unit);
     if (isfinite(m->background))
-        printf("  %-16s %.4g %s\n", "background M0", m->background, m->reading_unit);
-    printf("  %-16s %.1f degC (%s)\n", "temperature", m->temp_c,
+        kv("background M0", "%.4g %s", m->background, m->reading_unit);
+    kv("temperature", "%.1f degC (%s)", m->temp_c,
            m->temp_entered ? "entered" : "temperature assumed: skin-temperature setting");
     if (m->gross)
-        printf("  %-16s beyond the plausibility bound: re-read and unit check first; a confirmed "
-               "reading stands\n", "gross deviation");
+        kv("gross deviation", "beyond the plausibility bound: re-read and unit check first; a confirmed "
+               "reading stands");
     if (m->calibration_id)
-        printf("  %-16s #%lld, N = %.5g cGy/%s\n", "calibration", (long long)m->calibration_id,
+        kv("calibration", "#%lld, N = %.5g cGy/%s", (long long)m->calibration_id,
                m->factor_n, m->reading_unit);
     else
-        printf("  %-16s none found\n", "calibration");
+        kv("calibration", "none found");
     for (i = 0; i < FXL_CF_COUNT; i++)
         print_factor(cf_names[i], m->cf[i], "");
     print_factor("CF temperature", m->cf_temp, "");
     if (isfinite(m->corrected_dose_cgy))
-        printf("  %-16s %.2f cGy\n", "corrected dose", m->corrected_dose_cgy);
+        kv("corrected dose", "%.2f cGy", m->corrected_dose_cgy);
     else
-        printf("  %-16s --\n", "corrected dose");
+        kv("corrected dose", "--");
     if (isfinite(m->expected_dose_cgy))
-        printf("  %-16s %.2f cGy\n", "expected dose", m->expected_dose_cgy);
+        kv("expected dose", "%.2f cGy", m->expected_dose_cgy);
     else
-        printf("  %-16s missing\n", "expected dose");
+        kv("expected dose", "missing");
     if (isfinite(m->deviation_pct))
-        printf("  %-16s %+.2f %%\n", "deviation", m->deviation_pct);
+        kv("deviation", "%+.2f %%", m->deviation_pct);
     else
-        printf("  %-16s --\n", "deviation");
+        kv("deviation", "--");
     if (m->threshold_set_id)
-        printf("  %-16s set '%s' v%d: tolerance %.2f %%, action %.2f %%, floor %.2f cGy\n",
-               "levels", m->threshold_name, m->threshold_version, m->tolerance_pct, m->action_pct,
+        kv("levels", "set '%s' v%d: tolerance %.2f %%, action %.2f %%, floor %.2f cGy", m->threshold_name, m->threshold_version, m->tolerance_pct, m->action_pct,
                m->floor_cgy);
     else
-        printf("  %-16s none applied\n", "levels");
-    printf("  %-16s %s\n", "verdict", m->verdict);
+        kv("levels", "none applied");
+    kv("verdict", "%s", m->verdict);
     for (i = 0; i < m->reasons.n; i++)
-        printf("  %-16s %s\n", i == 0 ? "reasons" : "", m->reasons.text[i]);
+        kv(i == 0 ? "reasons" : "", "%s", m->reasons.text[i]);
     if (m->supersedes_id)
-        printf("  %-16s #%lld: %s\n", "amends", (long long)m->supersedes_id, m->amend_reason);
+        kv("amends", "#%lld: %s", (long long)m->supersedes_id, m->amend_reason);
     if (m->superseded_by) {
         if (isfinite(m->superseded_deviation_pct))
-            printf("  %-16s #%lld: %s (new result: %s, %+.2f %%)\n", "SUPERSEDED by",
+            kv("SUPERSEDED by", "#%lld: %s (new result: %s, %+.2f %%)",
                    (long long)m->superseded_by, m->superseded_reason, m->superseded_verdict,
                    m->superseded_deviation_pct);
         else
-            printf("  %-16s #%lld: %s (new result: %s)\n", "SUPERSEDED by",
+            kv("SUPERSEDED by", "#%lld: %s (new result: %s)",
                    (long long)m->superseded_by, m->superseded_reason, m->superseded_verdict);
     }
 }
@@ -523,30 +565,38 @@ static int queue_show(cli_env *env, int argc, char **argv)
            (long long)d.item.id, cli_color(env, CLI_RESET), severity_color(env, d.item.severity),
            fxl_severity_name(d.item.severity), cli_color(env, CLI_RESET), d.item.status,
            d.item.rule);
-    printf("  opened %s (%ld day%s ago)\n", d.item.opened_at, d.item.age_days,
-           d.item.age_days == 1 ? "" : "s");
-    if (d.item.patient_name[0])
-        printf("  patient %s (%s)%s%s%s\n", d.item.mrn, d.item.patient_name,
-               d.item.plan[0] ? ", plan '" : "", d.item.plan, d.item.plan[0] ? "'" : "");
+    {
+        char opened[48];
+        cli_local_time(env, opened, sizeof opened, d.item.opened_at);
+        printf("  opened %s (%ld day%s ago)\n", opened, d.item.age_days,
+               d.item.age_days == 1 ? "" : "s");
+    }
+    if (d.item.patient_name[0]) {
+        char line[700];
+        snprintf(line, sizeof line, "patient %s (%s)%s%s%s", d.item.mrn, d.item.patient_name,
+                 d.item.plan[0] ? ", plan '" : "", d.item.plan, d.item.plan[0] ? "'" : "");
+        cli_wrap(stdout, "  ", line, CLI_WIDTH);
+    }
     /* field, fraction and detector (the patient is on the line above) */
     if (subject[0])
-        printf("  %s\n", d.item.patient_name[0] && strchr(subject, ',')
-                              ? strchr(subject, ',') + 2
-                              : subject);
-    printf("  %s\n", d.item.summary);
+        cli_wrap(stdout, "  ", d.item.patient_name[0] && strchr(subject, ',')
+                                   ? strchr(subject, ',') + 2
+                                   : subject, CLI_WIDTH);
+    cli_wrap(stdout, "  ", d.item.summary, CLI_WIDTH);
     if (d.has_measurement)
-        print_measurement(&d.m);
+        print_measurement(env, &d.m);
     if (d.item.field_id || d.item.detector_id)
         print_trend(env, &d);
     printf("\nEvents:\n");
     for (i = 0; i < d.n_events; i++) {
         const fxl_review_event *e = &d.events[i];
-        printf("  %s  %-11s %s (%s, %s)", e->at, e->kind, e->user, e->user_name, e->user_role);
-        if (e->disposition[0])
-            printf("  disposition: %s", e->disposition);
-        printf("\n");
+        char when[48], line[900];
+        cli_local_time(env, when, sizeof when, e->at);
+        snprintf(line, sizeof line, "%s  %-6s %s (%s, %s)%s%s", when, e->kind, e->user, e->user_name,
+                 e->user_role, e->disposition[0] ? "; disposition: " : "", e->disposition);
+        cli_wrap_hang(stdout, "  ", 6, line, CLI_WIDTH);
         if (e->comment[0])
-            printf("      %s\n", e->comment);
+            cli_wrap(stdout, "      ", e->comment, CLI_WIDTH);
         print_signatures(env, "review_events", e->id, "      ");
     }
     printf("\n");

@@ -7,20 +7,25 @@
 
 int cmd_restore(cli_env *env, int argc, char **argv)
 {
-    cli_opt opts[] = {{NULL, NULL, NULL, NULL}};
+    cli_opt opts[] = {{"anchor", "LINE", "an anchor line kept elsewhere (verify --anchor): the copy must hold its rows unchanged", NULL},
+                      {NULL, NULL, NULL, NULL}};
     fxl_ctx *copy = NULL;
     fxl_verify_report vr;
     fxl_signature_report sr;
+    fxl_record_report rr;
+    const char *given_anchor;
     fxl_holdings h;
     const char *pos[2];
     char chain_msg[512] = "", sig_msg[512] = "", anchor[FXL_ANCHOR_LEN] = "";
-    int npos, rc, vrc, src, pages = 0, schema_backup = 0, code;
+    int npos, rc, vrc, src, rrc, i, pages = 0, schema_backup = 0, code;
 
     rc = cli_parse(env, "restore BACKUP NEWFILE",
                    "The restore drill: copies the backup file BACKUP into NEWFILE (which must not\n"
                    "exist; never the database in use), upgrades the copy when its schema is older,\n"
                    "then checks it as 'verify' does: the SHA-256 audit chain from its first row,\n"
-                   "SQLite's integrity and foreign-key checks and every electronic signature. It\n"
+                   "SQLite's integrity and foreign-key checks, every electronic signature, and the\n"
+                   "proof of the record (schema and triggers, every row against its seal); with\n"
+                   "--anchor LINE also that the copy still holds the anchored rows unchanged. It\n"
                    "prints the copy's anchor line, to compare with the one the auditor keeps, and\n"
                    "what the copy holds (counts only, no patient data). The backup is opened\n"
                    "read-only and never changed. No login: it reads a file you can already read\n"
@@ -38,8 +43,23 @@ int cmd_restore(cli_env *env, int argc, char **argv)
         fxl_close(copy);
         return cli_exit_code(rc);
     }
+    given_anchor = cli_get(opts, "anchor");
+    if (given_anchor) {
+        int64_t n;
+        char at[32], head[65];
+        if ((rc = fxl_anchor_parse(copy, given_anchor, &n, at, head)) != 0) {
+            cli_error("%s", fxl_errmsg(copy));
+            fxl_close(copy);
+            fxl_restore_discard(pos[1]);
+            return CLI_EXIT_USAGE;
+        }
+    }
     if ((vrc = fxl_audit_verify(copy, &vr)) != 0)
         snprintf(chain_msg, sizeof chain_msg, "%s", fxl_errmsg(copy));
+    if ((rrc = fxl_record_verify(copy, given_anchor, &rr)) != 0) {
+        snprintf(rr.problem[0], sizeof rr.problem[0], "record check failed: %s", fxl_errmsg(copy));
+        rr.n_problems = 1;
+    }
     if ((src = fxl_signature_verify(copy, &sr)) != 0)
         snprintf(sig_msg, sizeof sig_msg, "%s", src == FXL_ECONFLICT ? sr.first_bad : fxl_errmsg(copy));
     if ((rc = fxl_audit_anchor(copy, anchor, sizeof anchor)) == 0)
@@ -51,12 +71,12 @@ int cmd_restore(cli_env *env, int argc, char **argv)
         return cli_exit_code(rc);
     }
     fxl_close(copy);
-    code = vrc == 0 && src == 0 ? CLI_EXIT_OK : CLI_EXIT_DATA;
+    code = vrc == 0 && src == 0 && rr.n_problems == 0 ? CLI_EXIT_OK : CLI_EXIT_DATA;
     if (code != CLI_EXIT_OK)
         fxl_restore_discard(pos[1]);
 
     if (env->json) {
-        cJSON *o = cJSON_CreateObject(), *hj = cJSON_CreateObject();
+        cJSON *o = cJSON_CreateObject(), *hj = cJSON_CreateObject(), *probs = cJSON_CreateArray();
         cJSON_AddBoolToObject(o, "ok", code == CLI_EXIT_OK);
         cJSON_AddStringToObject(o, "backup", pos[0]);
         cJSON_AddStringToObject(o, "file", pos[1]);
@@ -76,6 +96,15 @@ int cmd_restore(cli_env *env, int argc, char **argv)
             cJSON_AddStringToObject(o, "chain_error", chain_msg);
         if (src != 0)
             cJSON_AddStringToObject(o, "signature_error", sig_msg);
+        cJSON_AddNumberToObject(o, "record_rows_checked", (double)rr.rows_checked);
+        cJSON_AddNumberToObject(o, "seals_checked", (double)rr.seals_checked);
+        cJSON_AddNumberToObject(o, "schema_objects_checked", (double)rr.objects_checked);
+        for (i = 0; i < rr.n_problems; i++)
+            cJSON_AddItemToArray(probs, cJSON_CreateString(rr.problem[i]));
+        cJSON_AddItemToObject(o, "record_problems", probs);
+        cJSON_AddBoolToObject(o, "anchor_given", rr.anchor_given);
+        if (rr.anchor_given)
+            cJSON_AddNumberToObject(o, "anchor_rows", (double)rr.anchor_rows);
         cJSON_AddStringToObject(o, "anchor", anchor);
         cJSON_AddStringToObject(hj, "department", h.department);
         cJSON_AddStringToObject(hj, "first_audit_at", h.first_audit_at);
@@ -101,8 +130,12 @@ int cmd_restore(cli_env *env, int argc, char **argv)
             cli_error("restored copy failed verification: %s", chain_msg);
         if (src != 0)
             cli_error("restored copy failed the signature check: %s", sig_msg);
-        cli_error("the copy '%s' was removed; the backup '%s' is unchanged: try an older backup",
-                  pos[1], pos[0]);
+        for (i = 0; i < rr.n_problems; i++)
+            cli_error("restored copy failed verification: %s", rr.problem[i]);
+        cli_error("the copy '%s' was removed; the backup '%s' is unchanged: %s", pos[1], pos[0],
+                  given_anchor && vrc == 0 && src == 0
+                      ? "check that the anchor was taken before this backup, else try an older backup"
+                      : "try an older backup");
         return code;
     }
     printf("restored %s into %s: %d pages, schema %d%s\n", pos[0], pos[1], pages, h.schema,
@@ -110,8 +143,15 @@ int cmd_restore(cli_env *env, int argc, char **argv)
     printf("audit chain intact: %lld rows checked; integrity and foreign-key checks passed; "
            "%lld signature%s verified\n",
            (long long)vr.rows_checked, (long long)sr.checked, sr.checked == 1 ? "" : "s");
+    printf("record proven: schema and %lld objects as the migrations create them; %lld rows match "
+           "their seals or audit rows; %lld seals match the chain\n",
+           (long long)rr.objects_checked, (long long)rr.rows_checked, (long long)rr.seals_checked);
+    if (rr.anchor_given)
+        printf("anchor holds: audit rows 1 to %lld are those the given anchor names\n",
+               (long long)rr.anchor_rows);
     printf("%s\n", anchor);
-    printf("  compare with the anchor line the auditor keeps: rows up to theirs must be in this copy\n");
+    if (!rr.anchor_given)
+        printf("  check it against the anchor line the auditor keeps: fxledger restore --anchor LINE ...\n");
     printf("holds: department '%s'; audit trail %s to %s (UTC)\n", h.department,
            h.first_audit_at[0] ? h.first_audit_at : "-", h.last_audit_at[0] ? h.last_audit_at : "-");
     printf("  users %lld (%lld active), machines %lld, detectors %lld\n", (long long)h.users,

@@ -3,6 +3,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/table.h"
 #include "fxl/settings.h"
 
 static int setting_list(cli_env *env, int argc, char **argv)
@@ -37,9 +38,14 @@ static int setting_list(cli_env *env, int argc, char **argv)
         free(list);
         return cli_print_json(arr);
     }
-    for (i = 0; i < n; i++)
-        printf("%-26s %s%s%s\n", list[i].key, list[i].value[0] ? list[i].value : "(empty)",
-               list[i].is_default ? " (default)" : "", list[i].known ? "" : " (unknown key)");
+    /* 80 columns: a long value (the dispositions) wraps under itself */
+    for (i = 0; i < n; i++) {
+        char lead[96], value[2200];
+        snprintf(lead, sizeof lead, "%-29s ", list[i].key);
+        snprintf(value, sizeof value, "%s%s%s", list[i].value[0] ? list[i].value : "(empty)",
+                 list[i].is_default ? " (default)" : "", list[i].known ? "" : " (unknown key)");
+        cli_wrap_hang(stdout, lead, 30, value, CLI_WIDTH);
+    }
     free(list);
     return CLI_EXIT_OK;
 }

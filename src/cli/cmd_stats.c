@@ -7,6 +7,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/table.h"
 #include "cli/json_put.h"
 #include "fxl/outfile.h"
 #include "fxl/period_stats.h"
@@ -141,10 +142,14 @@ static int print_stats(cli_env *env, const fxl_report_period *per, const fxl_per
             cJSON_AddItemToArray(groups, group_json(&ps->groups[i]));
         return cli_print_json(o);
     }
-    printf("Statistics of deviations, %s (%s to %s, %s), by %s: %zu result%s judged against "
-           "levels, %zu not judged\n\n",
-           per->label, per->first_day, per->last_day, per->timezone, by, ps->total,
-           ps->total == 1 ? "" : "s", ps->total_not_judged);
+    {
+        char head[600];
+        snprintf(head, sizeof head, "Statistics of deviations, %s (%s to %s, %s), by %s: %zu result%s "
+                 "judged against levels, %zu not judged", per->label, per->first_day, per->last_day,
+                 per->timezone, by, ps->total, ps->total == 1 ? "" : "s", ps->total_not_judged);
+        cli_wrap(stdout, "", head, CLI_WIDTH);
+        printf("\n");
+    }
     if (ps->ngroups == 0) {
         printf("No results in this period.\n\n");
         cli_print_caveat(stdout);
@@ -154,7 +159,9 @@ static int print_stats(cli_env *env, const fxl_report_period *per, const fxl_per
         const fxl_ps_group *g = &ps->groups[i];
 
         group_name(name, sizeof name, g);
-        printf("%s%s%s\n", cli_color(env, CLI_BOLD), name, cli_color(env, CLI_RESET));
+        printf("%s", cli_color(env, CLI_BOLD));
+        cli_wrap(stdout, "", name, CLI_WIDTH);
+        printf("%s", cli_color(env, CLI_RESET));
         if (g->n == 0) {
             printf("  no result judged against levels (%zu not judged)\n\n", g->n_not_judged);
             continue;
@@ -164,8 +171,9 @@ static int print_stats(cli_env *env, const fxl_report_period *per, const fxl_per
         fmt(a[2], sizeof a[2], g->summary.median, "%+.2f");
         fmt(a[3], sizeof a[3], g->summary.p05, "%+.2f");
         fmt(a[4], sizeof a[4], g->summary.p95, "%+.2f");
-        printf("  n %zu (%zu not judged)  mean %s %%  SD %s %%  median %s %%  P5 %s %%  "
-               "P95 %s %%\n", g->n, g->n_not_judged, a[0], a[1], a[2], a[3], a[4]);
+        /* 80 columns: counts on one line, the distribution on the next */
+        printf("  n %zu (%zu not judged)  mean %s %%  SD %s %%\n", g->n, g->n_not_judged, a[0], a[1]);
+        printf("  median %s %%  P5 %s %%  P95 %s %%\n", a[2], a[3], a[4]);
         printf("  outside tolerance %zu (%.1f %%)  outside action %zu (%.1f %%)\n",
                g->n_outside_tol, 100.0 * (double)g->n_outside_tol / (double)g->n,
                g->n_outside_action, 100.0 * (double)g->n_outside_action / (double)g->n);
@@ -174,13 +182,21 @@ static int print_stats(cli_env *env, const fxl_report_period *per, const fxl_per
         fmt(a[2], sizeof a[2], g->imr.ucl, "%+.3f");
         fmt(a[3], sizeof a[3], g->imr.mr_mean, "%.3f");
         fmt(a[4], sizeof a[4], g->imr.mr_ucl, "%.3f");
-        printf("  I-MR: centre %s %%, limits %s / %s %%, average moving range %s %%, MR limit "
-               "%s %%; %zu point%s beyond the limits\n", a[0], a[1], a[2], a[3], a[4],
-               g->imr.beyond, g->imr.beyond == 1 ? "" : "s");
+        {
+            char imr[400];
+            snprintf(imr, sizeof imr, "centre %s %%, limits %s / %s %%, average moving range %s %%, "
+                     "MR limit %s %%; %zu point%s beyond the limits", a[0], a[1], a[2], a[3], a[4],
+                     g->imr.beyond, g->imr.beyond == 1 ? "" : "s");
+            cli_wrap_hang(stdout, "  I-MR: ", 4, imr, CLI_WIDTH);
+        }
         fmt(a[5], sizeof a[5], g->tolerance_pct, "%.2f");
         fmt(a[6], sizeof a[6], g->action_pct, "%.2f");
-        printf("  levels in force: tolerance %s %%, action %s %%%s\n", a[5], a[6],
-               g->level_variants > 1 ? " (most used; levels changed within the period)" : "");
+        {
+            char lv[300];
+            snprintf(lv, sizeof lv, "tolerance %s %%, action %s %%%s", a[5], a[6],
+                     g->level_variants > 1 ? " (most used; levels changed within the period)" : "");
+            cli_wrap_hang(stdout, "  levels in force: ", 4, lv, CLI_WIDTH);
+        }
         if (g->suggestion.offered)
             printf("  suggested from the spread (not applied): tolerance %.1f %%, action %.1f %%\n",
                    g->suggestion.tolerance_pct, g->suggestion.action_pct);
@@ -188,8 +204,13 @@ static int print_stats(cli_env *env, const fxl_report_period *per, const fxl_per
             printf("  no level suggestion: fewer than %d results\n", FXL_STATS_SUGGEST_MIN_N);
         printf("\n");
     }
-    printf("Suggested levels: %s. They are never applied by fxledger; levels change only\n"
-           "through 'fxledger levels'.\n\n", ps->groups[0].suggestion.basis);
+    {
+        char sug[1200];
+        snprintf(sug, sizeof sug, "%s. They are never applied by fxledger; levels change only "
+                 "through 'fxledger levels'.", ps->groups[0].suggestion.basis);
+        cli_wrap_hang(stdout, "Suggested levels: ", 0, sug, CLI_WIDTH);
+        printf("\n");
+    }
     cli_print_caveat(stdout);
     return CLI_EXIT_OK;
 }

@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "cli/table.h"
 #include "cli/session.h"
 #include "cli/json_put.h"
 #include "fxl/corrections.h"
@@ -101,9 +102,13 @@ static int table_load(cli_env *env, int argc, char **argv)
         const fxl_corr_table_spec *t = &file.tables[i];
         const char *unit = "";
         fxl_corr_param_range(t->parameter, NULL, NULL, &unit);
-        printf("  #%-4lld %s %s %-8s %-10s from %.10s  %zu points, x %g to %g %s\n", (long long)ids[i],
-               t->machine, t->beam, t->point, t->parameter, t->effective_from, t->n_points, t->points[0].x,
-               t->points[t->n_points - 1].x, unit);
+        {
+            char line[300];
+            snprintf(line, sizeof line, "#%-4lld %s %s %s %s from %.10s, %zu points, x %g to %g %s",
+                     (long long)ids[i], t->machine, t->beam, t->point, t->parameter, t->effective_from,
+                     t->n_points, t->points[0].x, t->points[t->n_points - 1].x, unit);
+            cli_wrap_hang(stdout, "  ", 8, line, CLI_WIDTH);
+        }
     }
     rc = CLI_EXIT_OK;
 cleanup:
@@ -135,19 +140,39 @@ static int table_list(cli_env *env, int argc, char **argv)
         fxl_corr_list_free(list, n);
         return cli_print_json(arr);
     }
-    if (n == 0)
+    if (n == 0) {
         printf("no correction tables\n");
-    else
-        printf("%-5s %-14s %-10s %-8s %-8s %-10s %-10s %-6s %-18s %s\n", "ID", "SERIAL", "MACHINE",
-               "BEAM", "POINT", "PARAMETER", "FROM", "POINTS", "RANGE", "IN FORCE");
-    for (i = 0; i < n; i++) {
-        const char *unit = "";
-        char range[40];
-        fxl_corr_param_range(list[i].parameter, NULL, NULL, &unit);
-        snprintf(range, sizeof range, "%g to %g %s", list[i].x_min, list[i].x_max, unit);
-        printf("%-5lld %-14s %-10s %-8s %-8s %-10s %-10.10s %-6zu %-18s %s\n", (long long)list[i].id,
-               list[i].serial, list[i].machine, list[i].beam, list[i].point, list[i].parameter,
-               list[i].effective_from, list[i].n_points, range, list[i].in_force ? "yes" : "no");
+    } else {
+        /* 80 columns; dates in the department's zone */
+        static const char *const head[] = {"#", "serial", "machine", "beam", "pt", "parameter",
+                                           "from", "n", "range", "in force", NULL};
+        cli_table tab;
+        cli_table_init(&tab, head);
+        tab.gap = 1;
+        tab.right[0] = tab.right[7] = 1;
+        for (i = 0; i < n; i++) {
+            const char *unit = "";
+            const char *cells[10];
+            char range[40], id[24], from[16], pts[16];
+            fxl_corr_param_range(list[i].parameter, NULL, NULL, &unit);
+            snprintf(range, sizeof range, "%g to %g %s", list[i].x_min, list[i].x_max, unit);
+            snprintf(id, sizeof id, "#%lld", (long long)list[i].id);
+            cli_local_date(env, from, list[i].effective_from);
+            snprintf(pts, sizeof pts, "%zu", list[i].n_points);
+            cells[0] = id;
+            cells[1] = list[i].serial;
+            cells[2] = list[i].machine;
+            cells[3] = list[i].beam;
+            cells[4] = strcmp(list[i].point, "entrance") == 0 ? "ent" : list[i].point;
+            cells[5] = list[i].parameter;
+            cells[6] = from;
+            cells[7] = pts;
+            cells[8] = range;
+            cells[9] = list[i].in_force ? "yes" : "no";
+            cli_table_add(&tab, cells);
+        }
+        cli_table_print(stdout, &tab, CLI_WIDTH, 0);
+        cli_table_release(&tab);
     }
     fxl_corr_list_free(list, n);
     return CLI_EXIT_OK;
@@ -186,20 +211,30 @@ static int table_show(cli_env *env, int argc, char **argv)
     printf("  beam            %s %s\n", t.machine, t.beam);
     printf("  point           %s\n", t.point);
     printf("  parameter       %s (%s)\n", t.parameter, unit);
-    printf("  effective from  %s%s\n", t.effective_from, t.in_force ? " (in force)" : " (not in force)");
-    printf("  source          %s\n", t.source[0] ? t.source : "-");
-    printf("  loaded          %s by %s\n", t.created_at, t.user);
+    {
+        char when[48], line[700];
+        cli_local_time(env, when, sizeof when, t.effective_from);
+        printf("  effective from  %s%s\n", when, t.in_force ? " (in force)" : " (not in force)");
+        cli_wrap(stdout, "  source          ", t.source[0] ? t.source : "-", CLI_WIDTH);
+        cli_local_time(env, when, sizeof when, t.created_at);
+        snprintf(line, sizeof line, "%s by %s", when, t.user);
+        cli_wrap(stdout, "  loaded          ", line, CLI_WIDTH);
+    }
     printf("  %12s  %s\n", "x", "factor");
     for (i = 0; i < t.n_points; i++) {
         char x[32];
         snprintf(x, sizeof x, "%g %s", t.points[i].x, unit);
         printf("  %12s  %.4f\n", x, t.points[i].factor);
     }
-    if (strcmp(t.parameter, "wedge") == 0 || strcmp(t.parameter, "tray") == 0)
-        printf("only the values listed are commissioned (exact match); any other value is not evaluable\n");
-    else
-        printf("linear interpolation from %g to %g %s; outside that range results are not evaluable\n",
-               t.x_min, t.x_max, unit);
+    if (strcmp(t.parameter, "wedge") == 0 || strcmp(t.parameter, "tray") == 0) {
+        cli_wrap(stdout, "", "only the values listed are commissioned (exact match); others are "
+                 "not evaluable", CLI_WIDTH);
+    } else {
+        char line[200];
+        snprintf(line, sizeof line, "linear interpolation from %g to %g %s; not evaluable outside "
+                 "that range", t.x_min, t.x_max, unit);
+        cli_wrap(stdout, "", line, CLI_WIDTH);
+    }
     fxl_corr_table_release(&t);
     return CLI_EXIT_OK;
 }

@@ -6,6 +6,7 @@
 
 #include "cli/json_put.h"
 #include "cli/midline_view.h"
+#include "cli/table.h"
 
 cJSON *cli_midline_json(const fxl_midline_pair *pairs, size_t n)
 {
@@ -52,22 +53,34 @@ void cli_midline_print(const fxl_midline_pair *pairs, size_t n, int with_fractio
 
     if (n == 0)
         return;
-    printf("\nMidline dose from entrance and exit (%s):\n", fxl_midline_method());
+    {
+        char head[300];
+        snprintf(head, sizeof head, "Midline dose from entrance and exit (%s):", fxl_midline_method());
+        printf("\n");
+        cli_wrap(stdout, "", head, CLI_WIDTH);
+    }
+    /* 80 columns: the estimate on the field's line, the arithmetic mean and
+     * the transmission (or why there is no estimate) wrapped under it */
     for (i = 0; i < n; i++) {
         const fxl_midline_pair *p = &pairs[i];
+        char line[400], more[400];
         dose(e, sizeof e, p->estimate.entrance_cgy);
         dose(x, sizeof x, p->estimate.exit_cgy);
         if (with_fraction)
             snprintf(where, sizeof where, "%s fx %d %s", p->plan, p->fraction_number, p->field);
         else
             snprintf(where, sizeof where, "%s", p->field);
-        if (p->estimate.computed)
-            printf("  %-24s entrance %s, exit %s -> midline %.1f cGy (arithmetic mean %.1f cGy, "
-                   "transmission %.3f)\n",
-                   where, e, x, p->estimate.geometric_cgy, p->estimate.arithmetic_cgy,
-                   p->estimate.transmission);
-        else
-            printf("  %-24s entrance %s, exit %s -> %s\n", where, e, x,
-                   p->estimate.reasons.n ? p->estimate.reasons.text[0] : "no midline estimate");
+        if (p->estimate.computed) {
+            snprintf(line, sizeof line, "%s  entrance %s, exit %s -> midline %.1f cGy", where, e, x,
+                     p->estimate.geometric_cgy);
+            snprintf(more, sizeof more, "(arithmetic mean %.1f cGy, transmission %.3f)",
+                     p->estimate.arithmetic_cgy, p->estimate.transmission);
+        } else {
+            snprintf(line, sizeof line, "%s  entrance %s, exit %s ->", where, e, x);
+            snprintf(more, sizeof more, "%s",
+                     p->estimate.reasons.n ? p->estimate.reasons.text[0] : "no midline estimate");
+        }
+        cli_wrap_hang(stdout, "  ", 6, line, CLI_WIDTH);
+        cli_wrap(stdout, "      ", more, CLI_WIDTH);
     }
 }

@@ -9,6 +9,7 @@
 
 #include "cli/json_put.h"
 #include "cli/plan_view.h"
+#include "cli/table.h"
 
 cJSON *cli_plan_json(const fxl_plan *p)
 {
@@ -140,10 +141,19 @@ void cli_plan_print_import(const fxl_plan *p)
         char expected[64], xc[320];
         expected_text(expected, sizeof expected, f);
         crosscheck_text(xc, sizeof xc, f);
-        printf("  %-12s %-9s %-40s %s\n", f->name, f->point, expected, xc);
-        if (f->crosscheck_item_id && strcmp(f->crosscheck, "disagrees") == 0)
-            printf("  %-12s %-9s review item #%lld opened: check the plan transfer before the first "
-                   "fraction\n", "", "", (long long)f->crosscheck_item_id);
+        /* 80 columns: the field and its expected dose, the cross-check
+         * wrapped below it */
+        {
+            char line[200], review[200];
+            snprintf(line, sizeof line, "  %-12s %-9s %s", f->name, f->point, expected);
+            cli_wrap_hang(stdout, "", 6, line, CLI_WIDTH);
+            cli_wrap(stdout, "      ", xc, CLI_WIDTH);
+            if (f->crosscheck_item_id && strcmp(f->crosscheck, "disagrees") == 0) {
+                snprintf(review, sizeof review, "review item #%lld opened: check the plan transfer "
+                         "before the first fraction", (long long)f->crosscheck_item_id);
+                cli_wrap(stdout, "      ", review, CLI_WIDTH);
+            }
+        }
         if (strcmp(f->crosscheck, "agrees") == 0)
             agree++;
         else if (strcmp(f->crosscheck, "disagrees") == 0)
@@ -158,12 +168,15 @@ void cli_plan_print_import(const fxl_plan *p)
     printf("cross-check of planning-system values");
     if (isfinite(level))
         printf(" (level %.2f %%)", level);
-    printf(": %d agree, %d disagree, %d not checked\n", agree, disagree, unchecked);
+    printf(":\n  %d agree, %d disagree, %d not checked\n", agree, disagree, unchecked);
     if (disagree)
         printf("  %d review item%s opened (see 'fxledger queue list')\n", disagree, disagree == 1 ? "" : "s");
-    if (missing)
-        printf("  WARNING: %d measured point%s without an expected dose: %s results will be not evaluable\n",
-               missing, missing == 1 ? "" : "s", missing == 1 ? "its" : "their");
+    if (missing) {
+        char w[200];
+        snprintf(w, sizeof w, "%d measured point%s without an expected dose: %s results will be not "
+                 "evaluable", missing, missing == 1 ? "" : "s", missing == 1 ? "its" : "their");
+        cli_wrap(stdout, "  WARNING: ", w, CLI_WIDTH);
+    }
 }
 
 static double factor(const cJSON *o, const char *key)
@@ -172,14 +185,45 @@ static double factor(const cJSON *o, const char *key)
     return cJSON_IsNumber(v) ? v->valuedouble : NAN;
 }
 
+/* Appends "name value" to buf, the parts joined by '\t' (a break allowed
+ * there only: a factor's name never parts from its value). */
 static void factor_part(char *buf, size_t size, const char *name, double v, const char *fmt)
 {
     size_t used = strlen(buf);
     if (!isfinite(v))
         return;
-    snprintf(buf + used, size - used, "%s%s ", used ? " x " : "", name);
+    snprintf(buf + used, size - used, "%s%s ", used ? "\t" : "", name);
     used = strlen(buf);
     snprintf(buf + used, size - used, fmt, v);
+}
+
+/* Prints the '\t'-separated parts after `lead`, joined by `sep`, a new line
+ * (indented as lead is wide) before a part that would pass 80 columns. */
+static void print_parts(const char *lead, const char *parts, const char *sep)
+{
+    size_t indent = strlen(lead), col = indent, sepw = strlen(sep);
+    const char *p = parts;
+    int first = 1;
+
+    fputs(lead, stdout);
+    while (*p) {
+        const char *e = strchr(p, '\t');
+        size_t len = e ? (size_t)(e - p) : strlen(p);
+        if (!first && col + sepw + len > CLI_WIDTH) {
+            printf("%s\n%*s", sep[0] == ',' ? "," : " x", (int)indent, "");
+            col = indent;
+            first = 1;
+        }
+        if (!first) {
+            fputs(sep, stdout);
+            col += sepw;
+        }
+        fwrite(p, 1, len, stdout);
+        col += len;
+        first = 0;
+        p = e ? e + 1 : p + len;
+    }
+    fputc('\n', stdout);
 }
 
 void cli_plan_print_model(const fxl_field *f)
@@ -200,7 +244,7 @@ void cli_plan_print_model(const fxl_field *f)
                                      : strcmp(f->crosscheck, "disagrees") == 0
                                          ? "DISAGREES with the planning system"
                                          : "not checked");
-    printf("                  %s\n", f->model_note);
+    cli_wrap(stdout, "                  ", f->model_note, CLI_WIDTH);
     if (f->crosscheck_item_id)
         printf("                  review item #%lld\n", (long long)f->crosscheck_item_id);
     if (!(o = cJSON_Parse(f->model_factors)))
@@ -221,9 +265,12 @@ void cli_plan_print_model(const fxl_field *f)
     factor_part(parts, sizeof parts, "WF", factor(o, "wedge_factor"), "%.4f");
     factor_part(parts, sizeof parts, "TF", factor(o, "tray_factor"), "%.4f");
     if (parts[0])
-        printf("    factors       %s\n", parts);
-    if (isfinite(factor(o, "spd_cm")))
-        printf("    geometry      depth %.2f cm, source-point %.2f cm, r_c %.2f cm, r_d %.2f cm\n",
-               factor(o, "depth_cm"), factor(o, "spd_cm"), factor(o, "rc_cm"), factor(o, "rd_cm"));
+        print_parts("    factors       ", parts, " x ");
+    if (isfinite(factor(o, "spd_cm"))) {
+        char geo[200];
+        snprintf(geo, sizeof geo, "depth %.2f cm\tsource-point %.2f cm\tr_c %.2f cm\tr_d %.2f cm",
+                 factor(o, "depth_cm"), factor(o, "spd_cm"), factor(o, "rc_cm"), factor(o, "rd_cm"));
+        print_parts("    geometry      ", geo, ", ");
+    }
     cJSON_Delete(o);
 }

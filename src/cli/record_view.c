@@ -169,6 +169,12 @@ void cli_record_print_with(const cli_env *env, const fxl_record_result *r,
             cli_wrap(stdout, "", text, CLI_WIDTH);
         }
     }
+    /* Due fields the fraction was logged without, named now with the items
+     * they opened (options form; the interactive form names them itself). */
+    if (r->n_missing) {
+        printf("\n");
+        cli_record_print_missing(stdout, r);
+    }
     for (i = 0; i < r->n; i++) {
         const fxl_measurement_result *m = &r->items[i];
         char line[200];
@@ -229,6 +235,20 @@ static void load_items(cli_env *env, const fxl_record_result *r, fxl_worklist_it
                 fxl_errmsg(env->ctx));
 }
 
+void cli_record_print_missing(FILE *out, const fxl_record_result *r)
+{
+    size_t i;
+
+    for (i = 0; i < r->n_missing; i++) {
+        const fxl_fraction_missing *m = &r->missing[i];
+        char text[400];
+        snprintf(text, sizeof text, "%s %s was due (%s) and was not measured: review item #%lld "
+                 "is open for a physicist.", m->field, m->point, fxl_due_reason_text(m->due_reason),
+                 (long long)m->review_item_id);
+        cli_wrap(out, "Not measured: ", text, CLI_WIDTH);
+    }
+}
+
 void cli_record_print(const cli_env *env, const fxl_record_result *r)
 {
     fxl_worklist_item *items = NULL;
@@ -237,6 +257,23 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r)
     load_items((cli_env *)env, r, &items, &n);
     cli_record_print_with(env, r, items, n);
     free(items);
+}
+
+cJSON *cli_record_missing_json(const fxl_record_result *r)
+{
+    cJSON *miss = cJSON_CreateArray();
+    size_t i;
+
+    for (i = 0; miss && i < r->n_missing; i++) {
+        const fxl_fraction_missing *f = &r->missing[i];
+        cJSON *m = cJSON_CreateObject();
+        cJSON_AddStringToObject(m, "field", f->field);
+        cJSON_AddStringToObject(m, "point", f->point);
+        cJSON_AddStringToObject(m, "due_reason", fxl_due_reason_text(f->due_reason));
+        cJSON_AddNumberToObject(m, "review_item_id", (double)f->review_item_id);
+        cJSON_AddItemToArray(miss, m);
+    }
+    return miss;
 }
 
 /* Reads alert_timeout_s; an unusable value falls back to the default (the
@@ -375,6 +412,8 @@ int cli_record_finish(cli_env *env, const fxl_record_result *r)
             cJSON_AddItemToObject(json, "midline", cli_midline_json(pairs, n_pairs));
             free(pairs);
         }
+        if (json)
+            cJSON_AddItemToObject(json, "missing", cli_record_missing_json(r));
         if (!json || cli_print_json(json) != CLI_EXIT_OK)
             return CLI_EXIT_DB;
     } else {

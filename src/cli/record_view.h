@@ -23,6 +23,12 @@ void cli_record_print(const cli_env *env, const fxl_record_result *r);
 void cli_record_print_with(const cli_env *env, const fxl_record_result *r,
                            const fxl_worklist_item *items, size_t n_items);
 
+/* "Not measured: AP entrance was due (...) ... review item #N" for every due
+ * field the fraction was logged without (options form), and the same as a
+ * JSON array of {field, point, due_reason, review_item_id}. */
+void cli_record_print_missing(FILE *out, const fxl_record_result *r);
+cJSON *cli_record_missing_json(const fxl_record_result *r);
+
 /* The verdict of one field as soon as it is logged: deviation, label,
  * reasons, what to do (or the hold that stays open), review item. */
 void cli_record_field_verdict(const cli_env *env, const fxl_measurement_result *m,

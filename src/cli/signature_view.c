@@ -1,8 +1,11 @@
 /* Showing the electronic signatures of a row: who (login and printed name),
  * when and what it means. */
+#include <stdio.h>
 #include <stdlib.h>
+#include <string.h>
 
 #include "cli/signature_view.h"
+#include "cli/table.h"
 
 cJSON *signatures_json(cli_env *env, const char *entity, int64_t id)
 {
@@ -31,8 +34,12 @@ void print_signatures(cli_env *env, const char *entity, int64_t id, const char *
 
     if (fxl_signature_list(env->ctx, entity, id, &g, &n) != 0)
         return;
-    for (i = 0; i < n; i++)
-        printf("%ssigned by %s (%s) at %s: %s\n", indent, g[i].printed_name, g[i].login,
-               g[i].signed_at, g[i].meaning);
+    for (i = 0; i < n; i++) {
+        char when[48], line[900];
+        cli_local_time(env, when, sizeof when, g[i].signed_at);
+        snprintf(line, sizeof line, "signed by %s (%s) at %s: %s", g[i].printed_name, g[i].login,
+                 when, g[i].meaning);
+        cli_wrap_hang(stdout, indent, (int)strlen(indent) + 2, line, CLI_WIDTH);
+    }
     free(g);
 }

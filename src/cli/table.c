@@ -1,5 +1,6 @@
 /* Tables sized to their content that fall back to one block per row when
  * they would pass the console width; paragraphs wrapped at words. */
+#include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -139,6 +140,64 @@ static void pad(FILE *out, const char *s, size_t w, int right, int last)
         fprintf(out, "%*s", (int)(w - n), "");
 }
 
+/* Characters of the longest word of s. */
+static size_t longest_word(const char *s)
+{
+    size_t best = 0, cur = 0;
+
+    for (; *s; s++) {
+        if (*s == ' ') {
+            cur = 0;
+            continue;
+        }
+        if (((unsigned char)*s & 0xC0) != 0x80 && ++cur > best)
+            best = cur;
+    }
+    return best;
+}
+
+/* The next line of at most w characters of *p, broken at a space (w is at
+ * least the longest word): its start and length in bytes; *p moves past it. */
+static int next_line(const char **p, size_t w, const char **start, size_t *len)
+{
+    const char *s = *p, *end, *q;
+    size_t col = 0;
+
+    while (*s == ' ')
+        s++;
+    if (!*s)
+        return 0;
+    *start = s;
+    end = s;
+    for (q = s; *q;) {
+        const char *e;
+        size_t ww;
+        for (e = q; *e && *e != ' '; e++)
+            ;
+        ww = cli_text_width(q) - cli_text_width(e);
+        if (end != s && col + 1 + ww > w)
+            break;
+        col += (end != s ? 1 : 0) + ww;
+        end = e;
+        for (q = e; *q == ' '; q++)
+            ;
+    }
+    *len = (size_t)(end - s);
+    *p = end;
+    return 1;
+}
+
+static void pad_n(FILE *out, const char *s, size_t bytes, size_t w, int right, int last)
+{
+    char buf[512];
+
+    if (bytes >= sizeof buf)
+        bytes = sizeof buf - 1;
+    memcpy(buf, s, bytes);
+    buf[bytes] = '\0';
+    pad(out, buf, w, right, last);
+}
+
 void cli_table_print(FILE *out, const cli_table *t, int width, int indent)
 {
     size_t w[CLI_TABLE_COLS], total = 0, i, r, headw = 0, shown = 0;
@@ -155,12 +214,32 @@ void cli_table_print(FILE *out, const cli_table *t, int width, int indent)
             if (n > w[i])
                 w[i] = n;
         }
+        if (t->below[i])
+            used[i] = 0;    /* printed under the row, not as a column */
         if (!used[i])
             continue;
         total += w[i] + (shown ? (size_t)gap : 0);
         shown++;
         if (cli_text_width(t->head[i]) > headw)
             headw = cli_text_width(t->head[i]);
+    }
+    /* Too wide: narrow the wrap columns, first first, down to their longest
+     * word (and heading). */
+    for (i = 0; i < t->ncol && total + (size_t)indent > (size_t)width; i++) {
+        size_t minw, excess = total + (size_t)indent - (size_t)width;
+        if (!used[i] || !t->wrap[i])
+            continue;
+        minw = cli_text_width(t->head[i]);
+        for (r = 0; r < t->nrow; r++) {
+            size_t lw = longest_word(t->cells[r * t->ncol + i]);
+            if (lw > minw)
+                minw = lw;
+        }
+        if (w[i] > minw) {
+            size_t cut = w[i] - minw < excess ? w[i] - minw : excess;
+            w[i] -= cut;
+            total -= cut;
+        }
     }
     if (total + (size_t)indent <= (size_t)width) {
         size_t last = 0;
@@ -178,16 +257,64 @@ void cli_table_print(FILE *out, const cli_table *t, int width, int indent)
         }
         fputc('\n', out);
         for (r = 0; r < t->nrow; r++) {
-            fprintf(out, "%*s", indent, "");
-            for (i = 0, first = 1; i < t->ncol; i++) {
-                if (!used[i])
-                    continue;
-                if (!first)
-                    fprintf(out, "%*s", gap, "");
-                first = 0;
-                pad(out, t->cells[r * t->ncol + i], w[i], t->right[i], i == last);
+            const char *rest[CLI_TABLE_COLS];
+            int more = 1, line;
+            for (i = 0; i < t->ncol; i++)
+                rest[i] = t->cells[r * t->ncol + i];
+            /* a cell wider than its column (a wrap column) goes on over the
+             * next lines, the other cells blank there */
+            for (line = 0; more; line++) {
+                char *buf = NULL;
+                size_t blen = 0;
+                FILE *row = open_memstream(&buf, &blen);
+                FILE *dst = out;
+                if (row)
+                    out = row;
+                more = 0;
+                fprintf(out, "%*s", indent, "");
+                for (i = 0, first = 1; i < t->ncol; i++) {
+                    const char *st = "";
+                    size_t len = 0;
+                    if (!used[i])
+                        continue;
+                    if (!first)
+                        fprintf(out, "%*s", gap, "");
+                    first = 0;
+                    if (cli_text_width(rest[i]) <= w[i] && !strchr(rest[i], '\n')) {
+                        if (line == 0 || t->wrap[i])
+                            pad(out, rest[i], w[i], t->right[i], i == last);
+                        else
+                            pad(out, "", w[i], t->right[i], i == last);
+                        rest[i] = "";
+                        continue;
+                    }
+                    if (next_line(&rest[i], w[i], &st, &len))
+                        pad_n(out, st, len, w[i], t->right[i], i == last);
+                    else
+                        pad(out, "", w[i], t->right[i], i == last);
+                    while (*rest[i] == ' ')
+                        rest[i]++;
+                    if (*rest[i])
+                        more = 1;
+                }
+                out = dst;
+                if (row) {   /* no trailing blanks where the last cells are empty */
+                    fclose(row);
+                    while (blen && buf[blen - 1] == ' ')
+                        blen--;
+                    fwrite(buf, 1, blen, out);
+                    free(buf);
+                }
+                fputc('\n', out);
             }
-            fputc('\n', out);
+            for (i = 0; i < t->ncol; i++) {
+                char lead[96];
+                const char *v = t->cells[r * t->ncol + i];
+                if (!t->below[i] || !*v)
+                    continue;
+                snprintf(lead, sizeof lead, "%*s  %s: ", indent, "", t->head[i]);
+                cli_wrap(out, lead, v, width);
+            }
         }
         return;
     }

@@ -16,6 +16,12 @@ typedef struct cli_table {
     size_t ncol;
     const char *head[CLI_TABLE_COLS];
     int right[CLI_TABLE_COLS];      /* 1: right-aligned (numbers) */
+    int wrap[CLI_TABLE_COLS];       /* 1: may be narrowed and wrapped at words
+                                       (a label, a scope, a reason) when the
+                                       table would pass the width */
+    int below[CLI_TABLE_COLS];      /* 1: printed under its row as
+                                       "  heading: value", wrapped to the
+                                       width (a long scope or note) */
     int gap;                        /* spaces between columns (init: 2) */
     size_t nrow, cap;
     char **cells;                   /* nrow * ncol strings, heap */
@@ -27,7 +33,9 @@ void cli_table_init(cli_table *t, const char *const *head);
 int cli_table_add(cli_table *t, const char *const *cells);
 /* Prints the table: columns as wide as their widest cell, two spaces apart;
  * a column empty in every row is left out; when that is wider than
- * `width`, each row becomes a block of
+ * `width`, the columns marked `wrap` are narrowed (never below their
+ * longest word) and their cells wrapped at words on the lines below; when
+ * that is not enough, each row becomes a block of
  * "heading: value" lines instead (values wrapped at words). Every line
  * starts with `indent` spaces. */
 void cli_table_print(FILE *out, const cli_table *t, int width, int indent);

@@ -9,6 +9,7 @@
 #include "cli/cli.h"
 #include "cli/manpage.h"
 #include "fxl/number.h"
+#include "fxl/fraction.h"
 #include "fxl/text.h"
 
 /* One readable line: text echoed from the input (a name, a file's content)
@@ -230,4 +231,21 @@ const char *cli_color(const cli_env *env, const char *code)
     b = buf[next++ % 4];
     snprintf(b, sizeof buf[0], "\033[%sm", code);
     return b;
+}
+
+void cli_local_time(const cli_env *env, char *buf, size_t size, const char *stored)
+{
+    if (!stored || !*stored) {
+        snprintf(buf, size, "%s", "");
+        return;
+    }
+    fxl_time_show_local(env->ctx, buf, size, stored);
+}
+
+void cli_local_date(const cli_env *env, char out[16], const char *stored)
+{
+    char full[48];
+
+    cli_local_time(env, full, sizeof full, stored);
+    snprintf(out, 16, "%.10s", full);
 }

@@ -478,7 +478,7 @@ int fxl_model_expected(fxl_model_result *out, const fxl_beam_model *m, const fxl
         return 0;
     out->ssd_cm = ssd;
     /* Entrance: d_max below the skin. Exit: d_max before the exit surface,
-     * i.e. t - d_max below the entrance skin (DESIGN section 4). */
+     * i.e. t - d_max below the entrance skin (exit dosimetry geometry: ESTRO Booklet 1, from memory). */
     out->depth_cm = in->point == FXL_MODEL_ENTRANCE ? m->dmax_cm : in->thickness_cm - m->dmax_cm;
     out->spd_cm = ssd + out->depth_cm;
     /* Jaw positions are given in the isocentre plane, so the collimator

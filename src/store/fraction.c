@@ -168,27 +168,27 @@ int fxl_fraction_load(fxl_ctx *ctx, fxl_fraction_state *out, int64_t fraction_id
 
 /* ---- closing ----------------------------------------------------------------------------- */
 
-/* Inside the caller's transaction: opens the missing-measurement items of the
- * fraction's unmeasured due fields and writes the closed mark. */
-static int close_in_tx(fxl_ctx *ctx, fxl_fraction_close_result *out, const rec_plan *plan,
-                       const fr_row *row, const char *now)
+/* Inside the caller's transaction (record_int.h). */
+int rec_open_missing(fxl_ctx *ctx, fxl_fraction_missing **missing, size_t *n_missing,
+                     cJSON *names, const rec_plan *plan, int64_t fraction_id, int number,
+                     const char *treated_at, const char *when)
 {
     fxl_worklist_field *fields = NULL;
     char (*dates)[11] = NULL;
     fxl_stmt s = FXL_STMT_INIT;
-    cJSON *audit = NULL, *names = NULL;
     size_t n = 0, i, n_due = 0;
     int rc, first = 1;
 
+    *missing = NULL;
+    *n_missing = 0;
     if ((rc = wl_fields(ctx, &fields, &n, &dates, &first, plan->plan_id, plan->patient_id,
-                        row->number, row->treated_at, row->id)) != 0)
+                        number, treated_at, fraction_id)) != 0)
         goto cleanup;
     for (i = 0; i < n; i++)
         if (fields[i].due_reason != FXL_DUE_NOT && !fields[i].measured)
             n_due++;
-    out->missing = calloc(n_due ? n_due : 1, sizeof *out->missing);
-    names = cJSON_CreateArray();
-    if (!out->missing || !names) {
+    *missing = calloc(n_due ? n_due : 1, sizeof **missing);
+    if (!*missing) {
         rc = fxl_fail(ctx, FXL_EIO, "out of memory closing a fraction");
         goto cleanup;
     }
@@ -201,7 +201,7 @@ static int close_in_tx(fxl_ctx *ctx, fxl_fraction_close_result *out, const rec_p
 
         if (f->due_reason == FXL_DUE_NOT || f->measured)
             continue;
-        m = &out->missing[out->n_missing++];
+        m = &(*missing)[(*n_missing)++];
         m->field_id = f->field_id;
         copy(m->field, sizeof m->field, f->name);
         copy(m->point, sizeof m->point, f->point);
@@ -211,15 +211,15 @@ static int close_in_tx(fxl_ctx *ctx, fxl_fraction_close_result *out, const rec_p
         if (f->due_reason == FXL_DUE_WEEKLY)
             snprintf(key, sizeof key, "field:%lld:due:%s", (long long)f->field_id, dates[i]);
         else if (f->due_reason == FXL_DUE_EVERY)
-            snprintf(key, sizeof key, "field:%lld:fraction:%d", (long long)f->field_id, row->number);
+            snprintf(key, sizeof key, "field:%lld:fraction:%d", (long long)f->field_id, number);
         else
             snprintf(key, sizeof key, "field:%lld:fraction:%d", (long long)f->field_id,
-                     row->number > first ? first : row->number);
+                     number > first ? first : number);
         snprintf(summary, sizeof summary,
                  "%s plan '%s', field %s %s: required measurement missing at fraction %d (%s); "
-                 "found when fraction %d was closed",
-                 plan->mrn, plan->label, f->name, f->point, row->number,
-                 fxl_due_reason_text(f->due_reason), row->number);
+                 "found when fraction %d was %s",
+                 plan->mrn, plan->label, f->name, f->point, number,
+                 fxl_due_reason_text(f->due_reason), number, when);
         memset(&spec, 0, sizeof spec);
         spec.rule = FXL_RULE_MISSING;
         spec.severity = FXL_RULE_MISSING_SEVERITY;
@@ -243,8 +243,37 @@ static int close_in_tx(fxl_ctx *ctx, fxl_fraction_close_result *out, const rec_p
             fxl_stmt_finalize(&s);
         }
         m->review_item_id = item;
-        cJSON_AddItemToArray(names, cJSON_CreateString(f->name));
+        if (names)
+            cJSON_AddItemToArray(names, cJSON_CreateString(f->name));
     }
+    rc = 0;
+cleanup:
+    fxl_stmt_finalize(&s);
+    free(fields);
+    free(dates);
+    if (rc != 0) {
+        free(*missing);
+        *missing = NULL;
+        *n_missing = 0;
+    }
+    return rc;
+}
+
+/* Inside the caller's transaction: opens the missing-measurement items of the
+ * fraction's unmeasured due fields and writes the closed mark. */
+static int close_in_tx(fxl_ctx *ctx, fxl_fraction_close_result *out, const rec_plan *plan,
+                       const fr_row *row, const char *now)
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    cJSON *audit = NULL, *names = NULL;
+    int rc;
+
+    names = cJSON_CreateArray();
+    if (!names)
+        return fxl_fail(ctx, FXL_EIO, "out of memory closing a fraction");
+    if ((rc = rec_open_missing(ctx, &out->missing, &out->n_missing, names, plan, row->id,
+                               row->number, row->treated_at, "closed")) != 0)
+        goto cleanup;
     if ((rc = fxl_stmt_prepare(&s, ctx,
             "SELECT count(*) FROM measurements WHERE fraction_id = :fr")) != 0)
         goto cleanup;
@@ -267,8 +296,6 @@ cleanup:
     fxl_stmt_finalize(&s);
     cJSON_Delete(audit);
     cJSON_Delete(names);
-    free(fields);
-    free(dates);
     return rc;
 }
 

@@ -35,6 +35,7 @@ void fxl_record_result_release(fxl_record_result *r)
     if (!r)
         return;
     free(r->items);
+    free(r->missing);
     memset(r, 0, sizeof *r);
 }
 
@@ -412,8 +413,9 @@ static int validate_entries(fxl_ctx *ctx, rec_entry *ent, const rec_plan *plan,
     return 0;
 }
 
-static int write_fraction(fxl_ctx *ctx, int64_t *fraction_id, rec_inputs *in, size_t n,
-                          const rec_plan *plan, int number, const char *at, const char *now)
+static int write_fraction(fxl_ctx *ctx, int64_t *fraction_id, fxl_record_result *out,
+                          rec_inputs *in, size_t n, const rec_plan *plan, int number,
+                          const char *at, const char *now)
 {
     fxl_stmt s = FXL_STMT_INIT;
     cJSON *audit = NULL;
@@ -453,6 +455,11 @@ static int write_fraction(fxl_ctx *ctx, int64_t *fraction_id, rec_inputs *in, si
             (rc = rec_open_review_item(ctx, &in[i], plan, number, now)) != 0)
             goto cleanup;
     }
+    /* A due field given no reading is named now, with its item, not at the
+     * next fraction (docs/record.md). */
+    if ((rc = rec_open_missing(ctx, &out->missing, &out->n_missing, NULL, plan, *fraction_id,
+                               number, at, "logged")) != 0)
+        goto cleanup;
     if ((rc = fxl_rules_after_record(ctx, *fraction_id)) != 0)
         goto cleanup;
     rc = fxl_commit(ctx);
@@ -460,6 +467,9 @@ cleanup:
     if (rc != 0) {
         fxl_rollback(ctx);
         *fraction_id = 0;
+        free(out->missing);
+        out->missing = NULL;
+        out->n_missing = 0;
         for (i = 0; i < n; i++)
             in[i].m.measurement_id = in[i].m.review_item_id = 0;
     }
@@ -541,7 +551,7 @@ int fxl_record_fraction(fxl_ctx *ctx, fxl_record_result *out, const fxl_record_r
         rec_compute(&in[i], e->reading, e->background, ent[i].temp_c, ent[i].temp_entered, &settings);
     }
 
-    if ((rc = write_fraction(ctx, &fraction_id, in, req->n_readings, &plan, number, at, now)) != 0)
+    if ((rc = write_fraction(ctx, &fraction_id, out, in, req->n_readings, &plan, number, at, now)) != 0)
         goto cleanup;
 
     out->items = calloc(req->n_readings, sizeof *out->items);

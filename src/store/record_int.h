@@ -52,6 +52,18 @@ typedef struct rec_settings {
 
 void rec_inputs_release(rec_inputs *in);
 
+/* Inside the caller's transaction, after the fraction's readings are
+ * written: a missing-measurement item for every field due at fraction
+ * `number` (treated at treated_at) with no measurement in fraction_id, keyed
+ * as the rule over history keys it, so it is opened once. The fields are
+ * named in *missing (heap, plan order) and, when names is not NULL, appended
+ * to that JSON array. `when` ends the summary ("found when fraction N was
+ * `when`"). fraction.c. */
+struct fxl_fraction_missing;
+int rec_open_missing(fxl_ctx *ctx, struct fxl_fraction_missing **missing, size_t *n_missing,
+                     cJSON *names, const rec_plan *plan, int64_t fraction_id, int number,
+                     const char *treated_at, const char *when);
+
 /* The plan by label, or the patient's latest plan no other plan replaces. */
 int rec_load_plan(fxl_ctx *ctx, rec_plan *out, const char *mrn, const char *label);
 

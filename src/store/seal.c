@@ -222,7 +222,8 @@ static void seal_line(crypto_hash_sha256_state *st, const char *tbl, int64_t row
 
 int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
 {
-    fxl_stmt dirty = FXL_STMT_INIT, ins = FXL_STMT_INIT;
+    fxl_stmt dirty = FXL_STMT_INIT, ins = FXL_STMT_INIT, row = FXL_STMT_INIT;
+    char cur_tbl[64] = "";
     crypto_hash_sha256_state st;
     unsigned char d[crypto_hash_sha256_BYTES];
     int64_t n = 0;
@@ -237,12 +238,41 @@ int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
                                "INSERT INTO main.row_seals (tbl, row_id, audit_id, sha256) "
                                "VALUES (:t, :r, :a, :h)")) != 0)
         goto cleanup;
+    /* The marks come in table order: one prepared row query per table. */
     while ((rc = fxl_stmt_step(&dirty)) == 1) {
         const char *tbl = fxl_stmt_text(&dirty, 0);
         int64_t row_id = fxl_stmt_int(&dirty, 1);
         char hex[65];
-        if ((rc = fxl_seal_row(ctx, tbl, row_id, hex)) != 0)
+        if (strcmp(tbl, cur_tbl) != 0) {
+            char *expr = NULL, *sql;
+            size_t len;
+            fxl_stmt_finalize(&row);
+            snprintf(cur_tbl, sizeof cur_tbl, "%s", tbl);
+            if ((rc = canon_expr(ctx, tbl, &expr)) != 0)
+                goto cleanup;
+            len = strlen(expr) + strlen(tbl) + 64;
+            if (!(sql = malloc(len))) {
+                free(expr);
+                rc = fxl_fail(ctx, FXL_EIO, "out of memory sealing rows");
+                goto cleanup;
+            }
+            snprintf(sql, len, "SELECT %s FROM main.\"%s\" t WHERE t.rowid = :id", expr, tbl);
+            rc = fxl_stmt_prepare(&row, ctx, sql);
+            free(expr);
+            free(sql);
+            if (rc != 0)
+                goto cleanup;
+        }
+        fxl_stmt_reset(&row);
+        fxl_stmt_bind_int(&row, ":id", row_id);
+        if ((rc = fxl_stmt_step(&row)) < 0)
             goto cleanup;
+        if (rc == 0) {
+            rc = fxl_fail(ctx, FXL_EDB, "%s row %lld was written but is gone before its seal",
+                          tbl, (long long)row_id);
+            goto cleanup;
+        }
+        row_digest(hex, tbl, row_id, fxl_stmt_text(&row, 0));
         fxl_stmt_reset(&ins);
         fxl_stmt_bind_text(&ins, ":t", tbl);
         fxl_stmt_bind_int(&ins, ":r", row_id);
@@ -265,6 +295,7 @@ int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
 cleanup:
     fxl_stmt_finalize(&dirty);
     fxl_stmt_finalize(&ins);
+    fxl_stmt_finalize(&row);
     return rc;
 }
 

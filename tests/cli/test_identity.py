@@ -230,8 +230,10 @@ class IdentityTest(ReviewCase):
             "signer": "phys", "printed_name": "Invented Physicist",
             "signed_at": self.fx.now, "meaning": "review closed: set-up error"}])
         text = self.fx.ok("queue", "show", self.item, user="aud").stdout
+        # on screen in the department's zone with its offset (UTC here), wrapped to 80 columns
+        shown_at = "%s %s +00:00" % (self.fx.now[:10], self.fx.now[11:16])
         self.assertIn("signed by Invented Physicist (phys) at %s: review closed: set-up error"
-                      % self.fx.now, text)
+                      % shown_at, " ".join(text.split()))
         out = self.fx.path("p1.pdf")
         self.fx.ok("report", "patient", "P-1", "--out", out, user="aud")
         pdf = subprocess.run(["pdftotext", "-layout", out, "-"], capture_output=True, text=True,

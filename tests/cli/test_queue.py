@@ -12,10 +12,10 @@ from review_scenario import ReviewCase
 class QueueTest(ReviewCase):
     def setUp(self):
         super().setUp()
-        # Fraction 1 of P-1: AP +6 % (outside tolerance); PA not measured.
+        # Fraction 1 of P-1: AP +6 % (outside tolerance); PA, due at the first
+        # fraction, not measured: its missing-measurement item opens now.
         self.f1 = self.record("P-1", "2026-11-02T08:00:00Z", ("AP", 6.0))
-        # Fraction 2 of P-1: AP +2 %, PA -10 % (outside action); the missing
-        # first-fraction PA measurement is found now.
+        # Fraction 2 of P-1: AP +2 %, PA -10 % (outside action).
         self.f2 = self.record("P-1", "2026-11-03T08:00:00Z", ("AP", 2.0), ("PA", -10.0))
         self.tol_item = self.f1["results"][0]["review_item_id"]
         self.action_item = self.f2["results"][1]["review_item_id"]
@@ -30,16 +30,21 @@ class QueueTest(ReviewCase):
         rules = [(i["severity"], i["rule"], i["opened_at"]) for i in items]
         self.assertEqual([i["id"] for i in items][0], self.action_item)
         self.assertEqual(rules[0][:2], (4, "result"))
-        # Both severity-2 items follow, the older (fraction 1 result) first.
+        # Both severity-2 items follow, opened by fraction 1: the result first
+        # (written before the fields left unmeasured are named).
         self.assertEqual([r[0] for r in rules], sorted([r[0] for r in rules], reverse=True))
         sev2 = [i for i in items if i["severity"] == 2]
         self.assertEqual([i["rule"] for i in sev2], ["result", "missing_measurement"])
         self.assertEqual(sev2[0]["id"], self.tol_item)
-        self.assertLess(sev2[0]["opened_at"], sev2[1]["opened_at"])
+        self.assertEqual(sev2[0]["opened_at"], sev2[1]["opened_at"])
+        self.assertLess(sev2[0]["id"], sev2[1]["id"])
+        self.assertEqual(sev2[1]["id"], self.f1["missing"][0]["review_item_id"])
+        self.assertEqual(self.f1["missing"][0]["field"], "PA")
         missing = sev2[1]
         self.assertEqual(missing["rule_key"].split(":")[2:], ["fraction", "1"])
         self.assertEqual((missing["mrn"], missing["field"]), ("P-1", "PA"))
         self.assertIn("required measurement missing at fraction 1", missing["summary"])
+        self.assertIn("found when fraction 1 was logged", missing["summary"])
         # Text listing: one block per item, most severe first.
         text = self.fx.ok("queue", "list", user="aud").stdout
         self.assertLess(text.index("#%d " % self.action_item), text.index("#%d " % self.tol_item))
@@ -53,7 +58,7 @@ class QueueTest(ReviewCase):
         self.assertEqual(self.items("--patient", "P-2"), [])
         self.assertEqual(len(self.items("--detector", "D-1")), 2)   # the two results
         self.assertEqual([i["id"] for i in self.items("--since", "2026-11-03")],
-                         [self.action_item, self.items()[-1]["id"]])
+                         [self.action_item])
         self.assertEqual(self.items("--status", "closed"), [])
         self.assertEqual(len(self.items("--status", "all")), 3)
         r = self.fx.run("queue", "list", "--patient", "NOPE", user="aud")
@@ -240,12 +245,16 @@ class RuleHitsTest(ReviewCase):
 
     def test_weekly_measurement_missing(self):
         self.record("P-2", "2026-11-02T08:00:00Z", ("AP", 0.0), ("PA", 0.0))
-        self.record("P-2", "2026-11-09T08:00:00Z", ("AP", 0.0))      # 7 days: on time
-        self.assertEqual(self.queue("list"), [])
-        self.record("P-2", "2026-11-10T08:00:00Z", ("AP", 0.0))      # 8 days: missed
+        # 7 days: PA is due today (docs/rules.md) and is left out: named now,
+        # at the end of this fraction, not at the next.
+        f = self.record("P-2", "2026-11-09T08:00:00Z", ("AP", 0.0))
         items = self.queue("list")
         self.assertEqual([(i["rule"], i["rule_key"].split(":", 2)[2]) for i in items],
                          [("missing_measurement", "due:2026-11-09")])
+        self.assertEqual([(m["field"], m["due_reason"], m["review_item_id"]) for m in f["missing"]],
+                         [("PA", "weekly interval reached", items[0]["id"])])
+        self.record("P-2", "2026-11-10T08:00:00Z", ("AP", 0.0))      # 8 days: the same item
+        self.assertEqual(len(self.queue("list")), 1)
         self.record("P-2", "2026-11-11T08:00:00Z", ("AP", 0.0))      # still missing: no duplicate
         self.assertEqual(len(self.queue("list")), 1)
 

@@ -45,6 +45,40 @@ class RecordVerdictTest(RecordTestCase):
         self.assertEqual(row[7:11], (5.0, 8.0, "within_tolerance", 0))
         self.fx.ok("verify")
 
+    def test_due_fields_left_out_are_named_at_once(self):
+        """Options form: the plan's first fraction makes every field due
+        (policy 'first', docs/format-plan.md); fraction 1 logged with AP
+        alone names the others at the end of the fraction, each with the
+        missing-measurement item opened then, not at the next fraction."""
+        r = self.record("--field", "AP", "--detector", "D-1001", "--reading", "20.0")
+        self.assertEqual(r.returncode, 0, r.stderr)
+        items = self.fx.json("queue", "list", user="phil")
+        missing = sorted((i["field"], i["point"], i["id"]) for i in items
+                         if i["rule"] == "missing_measurement")
+        self.assertEqual([m[:2] for m in missing],
+                         [("LAT", "entrance"), ("LAT", "exit"), ("OBL", "entrance"), ("REF", "entrance")])
+        for field, point, item in missing:
+            self.assertIn("Not measured: %s %s was due (first fraction) and was not measured: "
+                          "review item #%d" % (field, point, item), " ".join(r.stdout.split()))
+        self.assertTrue(all(len(line) <= 80 for line in r.stdout.splitlines()))
+        # Fraction 2 without them: still due (the first measurement is still
+        # owed, as the worklist shows) and named again with the same items,
+        # none opened twice.
+        out = self.record_json("--field", "AP", "--detector", "D-1001", "--reading", "20.0")
+        self.assertEqual(sorted((m["field"], m["point"], m["review_item_id"]) for m in out["missing"]),
+                         missing)
+        again = [i for i in self.fx.json("queue", "list", user="phil")
+                 if i["rule"] == "missing_measurement"]
+        self.assertEqual(sorted(i["id"] for i in again), sorted(m[2] for m in missing))
+
+    def test_due_fields_left_out_in_json(self):
+        out = self.record_json("--field", "REF", "--detector", "D-1001", "--reading", "20.0",
+                               "--field", "AP", "--detector", "D-1001", "--reading", "20.0")
+        self.assertEqual([(m["field"], m["point"], m["due_reason"]) for m in out["missing"]],
+                         [("LAT", "entrance", "first fraction"), ("LAT", "exit", "first fraction"),
+                          ("OBL", "entrance", "first fraction")])
+        self.assertTrue(all(m["review_item_id"] > 0 for m in out["missing"]))
+
     def test_every_factor_of_a_wedged_oblique_field(self):
         # LAT entrance: 10 x 10 cm, SSD 90, wedge 30, incidence 30 deg, 28 degC.
         out = self.record_json("--field", "LAT:entrance", "--detector", "D-1001", "--reading", "15.3",

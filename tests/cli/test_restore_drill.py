@@ -72,6 +72,11 @@ class RestoreDrillTest(ReviewCase):
         self.fx.ensure_session("ther", "2026-12-01T09:00:00Z")
         # The auditor's own password (not the one-time one) is in the copies.
         self.fx.ensure_session("aud", "2026-12-01T09:00:00Z")
+        # The anchor the auditor keeps, taken before the logging starts.
+        a = self.fx.run("verify", "--anchor", user="aud", now="2026-12-01T09:00:00Z")
+        self.assertEqual(a.returncode, 0, a.stderr)
+        kept_anchor = a.stdout.strip()
+        self.assertTrue(kept_anchor.startswith("fxledger-anchor rows="), kept_anchor)
         t = threading.Thread(target=writer)
         t.start()
         drills = []
@@ -93,9 +98,27 @@ class RestoreDrillTest(ReviewCase):
         backup = self.fx.path("backup-last.db")
         self.assertEqual(self.fx.run("backup", backup, user="phys", now="2026-12-01T09:00:00Z").returncode, 0)
         before = sha256_file(backup)
-        r, out = self.restore(backup, self.fx.path("restored-last.db"))
+        r = self.fx.run("--json", "restore", "--anchor", kept_anchor, backup, self.fx.path("restored-last.db"),
+                        login=False, password=False)
         self.assertEqual(r.returncode, 0, r.stderr)
+        out = json.loads(r.stdout)
+        self.assertTrue(out["anchor_given"])
+        self.assertEqual(out["anchor_rows"], int(kept_anchor.split("rows=")[1].split()[0]))
         drills.append((backup, before, self.fx.path("restored-last.db"), out))
+        # An anchor the copy does not hold (its head changed): the drill fails
+        # and leaves no copy.
+        head = kept_anchor.rsplit("head=", 1)[1]
+        forged = kept_anchor[:-len(head)] + ("0" if head[0] != "0" else "1") + head[1:]
+        dest = self.fx.path("restored-forged.db")
+        r = self.fx.run("--json", "restore", "--anchor", forged, backup, dest, login=False, password=False)
+        self.assertEqual(r.returncode, 2, r.stdout + r.stderr)
+        self.assertFalse(json.loads(r.stdout)["ok"])
+        self.assertNotEqual(json.loads(r.stdout)["record_problems"], [])
+        self.assertFalse(os.path.exists(dest))
+        # A line that is no anchor at all: usage error, no copy.
+        r = self.fx.run("restore", "--anchor", "not an anchor", backup, dest, login=False, password=False)
+        self.assertEqual(r.returncode, 1, r.stderr)
+        self.assertFalse(os.path.exists(dest))
 
         for backup, before, dest, out in drills:
             # The backup is untouched and nothing was created beside it.
@@ -107,6 +130,8 @@ class RestoreDrillTest(ReviewCase):
             self.assertTrue(out["kept"])
             self.assertTrue(out["chain_ok"] and out["integrity_ok"] and out["foreign_keys_ok"])
             self.assertTrue(out["signatures_ok"])
+            self.assertEqual(out["record_problems"], [])
+            self.assertGreater(out["seals_checked"], 0)
             self.assertGreater(out["signatures_checked"], 0)     # the plan imports are signed
             self.assertEqual(out["rows_checked"], ref["audit_rows"])
             for k in ("audit_rows", "patients", "plans", "fractions", "measurements", "users",

@@ -204,6 +204,15 @@ class TamperTest(unittest.TestCase):
         self.assertGreater(out["seals_checked"], 30)
         # every table, index and trigger of sql/001..011
         self.assertGreater(out["schema_objects_checked"], 100)
+        # every command sealed its rows under its own audit rows: none was
+        # left for the extra 'seal' row a commit adds (store/seal.c)
+        con = sqlite3.connect(self.fx.db)
+        self.assertEqual(con.execute("SELECT count(*) FROM audit_log WHERE action = 'seal'").fetchone()[0], 0)
+        unsealed = con.execute("SELECT count(*) FROM audit_log WHERE seal IS NULL AND entity IN "
+                               "('measurements', 'fractions', 'plans', 'fields', 'calibrations') "
+                               "AND action IN ('record', 'import', 'create')").fetchone()[0]
+        con.close()
+        self.assertEqual(unsealed, 0)
         for anchor in (self.s.anchor, self.s.anchor_before_last):
             code, out, r = self.verify("--anchor", anchor)
             self.assertEqual(code, 0, r.stdout)

@@ -254,9 +254,9 @@ static void test_dose_temperature_factor(void **state)
     in.temp_c = 30.0;
     fxl_dose_from_reading(&r, &in);
     assert_int_equal(r.evaluable, 1);
-    /* formula CF_T = 1/(1 + 0.003 x 10) = 0.970874 (DOMAIN section 7) */
+    /* formula CF_T = 1/(1 + 0.003 x 10) = 0.970874 (docs/physics.md 1.2; arithmetic) */
     assert_near(r.cf_temp, 0.970874, 1e-6);
-    /* DOMAIN section 7: a 0.3 %/degC, T_cal 20, T 30, 200 cGy -> 194.175 cGy */
+    /* physics: a 0.3 %/degC, T_cal 20, T 30, 200 cGy / 1.03 -> 194.175 cGy */
     assert_near(r.dose_cgy, 194.175, 5e-4);
 }
 
@@ -465,7 +465,7 @@ static void test_dose_temperature_not_computable(void **state)
 static void test_dose_temperature_formula(void **state)
 {
     (void)state;
-    /* formula (DOMAIN section 3): 1/(1 + 0.003 x (30 - 20)) = 1/1.03 = 0.9708738 */
+    /* formula (AAPM Report 87, from memory; docs/physics.md 1.2): 1/(1 + 0.003 x (30 - 20)) = 1/1.03 = 0.9708738 */
     assert_near(fxl_temp_correction(0.003, 30.0, 20.0), 0.9708738, 1e-7);
     /* formula: below T_cal the factor exceeds 1: 1/(1 - 0.003 x 5) = 1/0.985 = 1.0152284 */
     assert_near(fxl_temp_correction(0.003, 15.0, 20.0), 1.0152284, 1e-7);
@@ -480,7 +480,7 @@ static void test_dose_temperature_formula(void **state)
 static void test_dose_equivalent_square(void **state)
 {
     (void)state;
-    /* Sterling rule: 2 x 10 x 20 / 30 = 13.333 cm (DOMAIN section 7) */
+    /* Sterling rule: 2 x 10 x 20 / 30 = 13.333 cm (Sterling, Perry and Katz 1964; arithmetic) */
     assert_near(fxl_equiv_square_cm(10.0, 20.0), 13.333, 5e-4);
     /* Sterling rule: symmetric in X and Y */
     assert_near(fxl_equiv_square_cm(20.0, 10.0), 13.333, 5e-4);

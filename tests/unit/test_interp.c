@@ -51,7 +51,7 @@ static void test_interp_equivalent_square_of_rectangle(void **state)
     double side = fxl_equiv_square_cm(10.0, 20.0);
 
     (void)state;
-    /* Sterling rule: 2 x 10 x 20 / (10 + 20) = 13.333 cm (DOMAIN section 7) */
+    /* Sterling rule: 2 x 10 x 20 / (10 + 20) = 13.333 cm (Sterling, Perry and Katz 1964; arithmetic) */
     assert_near(side, 13.333, 5e-4);
     assert_int_equal(fxl_interp_linear(&y, fs_x, fs_cf, FS_N, side), 0);
     /* physics: 1.000 + (13.3333-10)/10 x 0.020 = 1.0066667 */

@@ -36,13 +36,13 @@ static void test_stats_calibration_readings(void **state)
 
 static void test_stats_deviations(void **state)
 {
-    /* the deviation series of DOMAIN section 7 (I-MR chart case), % */
+    /* an invented deviation series (I-MR chart case), % */
     static const double v[] = {1.0, -0.5, 0.5, 2.0, -1.0};
     double mean = 0, sd = 0;
 
     (void)state;
     assert_int_equal(fxl_mean_sd(&mean, &sd, v, 5), 0);
-    assert_near(mean, 0.400, 1e-12);                /* DOMAIN section 7; Python statistics module */
+    assert_near(mean, 0.400, 1e-12);                /* Python statistics module: mean; arithmetic 2.0/5 */
     assert_near(sd, 1.1937336386313322, 1e-12);     /* Python statistics module: stdev */
 }
 
