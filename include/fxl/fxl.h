@@ -67,6 +67,11 @@ int fxl_fail(fxl_ctx *ctx, int code, const char *fmt, ...)
 
 /* Schema version of the open database (PRAGMA user_version). */
 int fxl_schema_version(fxl_ctx *ctx);
+
+/* Rows this connection has inserted, updated or deleted since it was opened
+ * (sqlite3_total_changes64); 0 for NULL. The program compares it before and
+ * after a command to know whether the command saved anything. */
+long long fxl_total_changes(fxl_ctx *ctx);
 /* Highest schema version this build knows. */
 int fxl_schema_latest(void);
 

@@ -52,9 +52,11 @@ typedef struct fxl_outfile {
  * file checks apply); the message goes to ctx when it is not NULL. */
 int fxl_outfile_check(fxl_ctx *ctx, const char *path, int flags);
 
-/* fxl_outfile_check, then creates the temporary file beside the target
- * ("DIR/.BASE.part-PID-N") with O_CREAT|O_EXCL|O_NOFOLLOW, mode 0600
- * (reports and databases hold patient data; docs/audit.md says how to share
+/* fxl_outfile_check, then removes the temporary files of this target that
+ * a killed writer left (".BASE.part-PID-N*" of a process that no longer
+ * exists, regular and ours), then creates the temporary file beside the
+ * target ("DIR/.BASE.part-PID-N") with O_CREAT|O_EXCL|O_NOFOLLOW, mode 0600
+ * (reports and databases hold patient data; docs/security.md says how to share
  * them with a group), and opens o->fp on it for writing unless
  * FXL_OUT_NO_STDIO. On failure nothing is left behind. */
 int fxl_outfile_open(fxl_outfile *o, fxl_ctx *ctx, const char *path, int flags);

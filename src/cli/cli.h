@@ -38,6 +38,8 @@ typedef struct cli_env {
     int color;             /* stdout is a terminal and NO_COLOR is unset */
     int interactive;       /* stdin is a terminal */
     const char *command;   /* e.g. "detector" */
+    char saved[400];       /* what the command committed, named for the message when its
+                            * output then cannot be written ("" when nothing said) */
 } cli_env;
 
 /* ---- options ---------------------------------------------------------- */

@@ -12,7 +12,9 @@ int cmd_backup(cli_env *env, int argc, char **argv)
     rc = cli_parse(env, "backup FILE",
                    "Copies the database, while it stays in use, into FILE (which must not exist)\n"
                    "through SQLite's online backup API: one consistent snapshot, copied in steps,\n"
-                   "checked with SQLite's quick_check. Other users may keep logging meanwhile.\n"
+                   "checked with SQLite's quick_check and verified (fxledger verify) under a\n"
+                   "temporary name before it takes the name FILE: a failed or killed backup leaves\n"
+                   "no file under that name. Other users may keep logging meanwhile.\n"
                    "The backup is recorded in the audit log. Physicist, admin or auditor\n"
                    "(the scheduled backup logs in as an auditor account: docs/deployment.md).",
                    opts, argc, argv, pos, 1, &npos);
@@ -32,9 +34,10 @@ int cmd_backup(cli_env *env, int argc, char **argv)
         cJSON_AddNumberToObject(o, "busy_waits", r.busy_waits);
         cJSON_AddNumberToObject(o, "audit_rows", (double)r.audit_rows);
         cJSON_AddBoolToObject(o, "quick_check_ok", 1);
+        cJSON_AddBoolToObject(o, "verified", 1);
         return cli_print_json(o);
     }
-    printf("backup written to %s: %d pages in %d steps, %lld audit rows; quick_check ok\n"
+    printf("backup written to %s: %d pages in %d steps, %lld audit rows; quick_check ok, verified\n"
            "check it any time with: fxledger --db %s verify\n",
            pos[0], r.pages, r.steps, (long long)r.audit_rows, pos[0]);
     return CLI_EXIT_OK;

@@ -75,9 +75,9 @@ static int set_once(const char **slot, const char *value, const char *name, cons
 {
     if (*slot) {
         if (whose)
-            cli_error("option '--%s' given twice for field '%s'", name, whose);
+            cli_error("option '--%s' is given more than once for field '%s'", name, whose);
         else
-            cli_error("option '--%s' given twice", name);
+            cli_error("option '--%s' is given more than once", name);
         return -1;
     }
     *slot = value;

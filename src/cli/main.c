@@ -6,12 +6,14 @@
 #include <string.h>
 #include <unistd.h>
 
+#include <errno.h>
 #include <fcntl.h>
 #include <sodium.h>
 
 #include "cli/cli.h"
 #include "cli/manpage.h"
 #include "cli/session.h"
+#include "fxl/number.h"
 #include "fxl/text.h"
 
 typedef struct cli_command {
@@ -250,8 +252,12 @@ static int take_global_options(cli_env *env, int *argc, char **argv, int *want_h
                 cli_error("option '--password-fd' needs a value N");
                 return -1;
             }
-            fd = strtol(v, &end, 10);
-            if (end == v || *end || fd < 0 || fd > 1024 || fcntl((int)fd, F_GETFD) < 0) {
+            {
+                double d = -1;
+                (void)end;
+                fd = fxl_number_in_range(&d, v, FXL_NUM_WHOLE, 0, 1024) == FXL_NUM_OK ? (long)d : -1;
+            }
+            if (fd < 0 || fcntl((int)fd, F_GETFD) < 0) {
                 cli_error("--password-fd '%s' is not an open file descriptor", v);
                 return -1;
             }
@@ -315,14 +321,33 @@ static int check_arguments(int argc, char **argv)
     return 0;
 }
 
+/* A full disk or closed pipe must not pass silently - and what was saved
+ * before the output failed must not be reported as lost, or it is logged
+ * twice (docs/robustness.md). env NULL: nothing was saved. */
+static int finish_with(const cli_env *env, int code, int changed)
+{
+    int err;
+
+    errno = 0;
+    if (fflush(stdout) == 0 && !ferror(stdout))
+        return code;
+    /* errno of the failed write is gone when stdio failed earlier (the
+     * buffer filled mid-command); then the reason is not known. */
+    err = errno;
+    if (env && env->saved[0])
+        cli_error("could not write the output (%s), but %s - it is in the record: do not enter it "
+                  "again", err ? strerror(err) : "write error", env->saved);
+    else if (env && changed)
+        cli_error("could not write the output (%s), but the command completed and what it changed "
+                  "is saved (see 'fxledger audit list'): do not repeat it", err ? strerror(err) : "write error");
+    else
+        cli_error("could not write the output (%s)", err ? strerror(err) : "write error");
+    return code ? code : CLI_EXIT_DB;
+}
+
 static int finish(int code)
 {
-    /* A full disk or closed pipe must not pass silently. */
-    if (fflush(stdout) != 0 || ferror(stdout)) {
-        fprintf(stderr, "fxledger: error: could not write output\n");
-        return code ? code : CLI_EXIT_DB;
-    }
-    return code;
+    return finish_with(NULL, code, 0);
 }
 
 int main(int argc, char **argv)
@@ -332,6 +357,7 @@ int main(int argc, char **argv)
     const cli_command *cmd = NULL;
     const char *nocolor = getenv("NO_COLOR");
     int want_help = 0, want_version = 0, rc, flags;
+    long long changes;
     size_t i;
 
     env.db_path = getenv("FXLEDGER_DB");
@@ -398,7 +424,9 @@ int main(int argc, char **argv)
             return finish(rc);
         }
     }
+    changes = fxl_total_changes(env.ctx);
     rc = cmd->run(&env, argc, argv);
+    changes = fxl_total_changes(env.ctx) - changes;
     fxl_sign_end(env.ctx);
     /* Activity keeps the session alive; a refused command does not count. */
     if (env.token[0] && (rc == CLI_EXIT_OK || rc >= CLI_EXIT_NOT_EVALUABLE) &&
@@ -407,5 +435,5 @@ int main(int argc, char **argv)
     cli_auth_release(&env);
     fxl_close(rw);
     fxl_close(env.ctx);
-    return finish(rc);
+    return finish_with(&env, rc, changes > 0);
 }

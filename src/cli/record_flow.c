@@ -18,6 +18,7 @@
 #include "fxl/fraction.h"
 #include "fxl/number.h"
 #include "fxl/readings_json.h"
+#include "fxl/text.h"
 #include "fxl/worklist.h"
 
 static FILE *prompt_out(const cli_env *env)
@@ -25,16 +26,41 @@ static FILE *prompt_out(const cli_env *env)
     return env->json ? stderr : stdout;
 }
 
-/* Reads one line without its newline and surrounding blanks; -1 at end of input. */
+/* Why the last answer was refused (ask() returned -1 with it set), or "":
+ * an answer too long for its buffer or holding a NUL byte is refused whole,
+ * never cut and never carried over into the next prompt. */
+static char refused_answer[160];
+
+/* Reads one line without its newline and surrounding blanks into buf[size].
+ * 0, -1 at end of input, or -2 when the line is longer than size - 1
+ * characters or holds a NUL byte: the whole line is then read and dropped
+ * (so nothing of it is taken as the answer to the next prompt). */
 static int read_line(char *buf, size_t size)
 {
-    size_t len, k;
+    size_t len = 0, k;
+    int c, got = 0, too_long = 0, nul = 0;
 
-    if (!fgets(buf, (int)size, stdin))
+    while ((c = getchar()) != EOF) {
+        got = 1;
+        if (c == '\n')
+            break;
+        if (c == '\0')
+            nul = 1;
+        if (len + 1 < size)
+            buf[len++] = (char)c;
+        else
+            too_long = 1;
+    }
+    buf[len] = '\0';
+    if (!got)
         return -1;
-    len = strlen(buf);
-    while (len && (buf[len - 1] == '\n' || buf[len - 1] == '\r' || buf[len - 1] == ' ' ||
-                   buf[len - 1] == '\t'))
+    if (too_long || nul) {
+        buf[0] = '\0';
+        snprintf(refused_answer, sizeof refused_answer, too_long ? "an answer longer than %zu characters"
+                 : "an answer holding a NUL byte", size - 1);
+        return -2;
+    }
+    while (len && (buf[len - 1] == '\r' || buf[len - 1] == ' ' || buf[len - 1] == '\t'))
         buf[--len] = '\0';
     k = strspn(buf, " \t");
     if (k)
@@ -45,23 +71,45 @@ static int read_line(char *buf, size_t size)
 static int ask(const cli_env *env, char *buf, size_t size, const char *fmt, ...)
     __attribute__((format(printf, 4, 5)));
 
+/* Shows the prompt and reads the answer. -1 at end of input or when the
+ * answer is refused as too long (refused_answer says so). At a terminal a
+ * refused answer is asked again; piped input is stopped there, because the
+ * lines after it were meant for later prompts. */
 static int ask(const cli_env *env, char *buf, size_t size, const char *fmt, ...)
 {
+    char prompt[512], shown[1024];
     va_list ap;
     FILE *out = prompt_out(env);
+    int rc;
 
     va_start(ap, fmt);
-    vfprintf(out, fmt, ap);
+    vsnprintf(prompt, sizeof prompt, fmt, ap);
     va_end(ap);
-    fflush(out);
-    if (read_line(buf, size) != 0) {
-        fputc('\n', out);
-        return -1;
+    refused_answer[0] = '\0';
+    for (;;) {
+        fputs(prompt, out);
+        fflush(out);
+        rc = read_line(buf, size);
+        if (rc == -1) {
+            fputc('\n', out);
+            return -1;
+        }
+        if (rc == 0)
+            break;
+        if (!env->interactive) {
+            fputc('\n', out);
+            return -1;
+        }
+        cli_error("%s is refused (nothing of it was used): type it again", refused_answer);
+        refused_answer[0] = '\0';
     }
     /* Piped answers are not echoed by a terminal: show them, so that the
-     * transcript reads like the session. */
-    if (!env->interactive)
-        fprintf(out, "%s\n", buf);
+     * transcript reads like the session - made printable, so that piped
+     * escape sequences or invalid UTF-8 never reach the terminal raw. */
+    if (!env->interactive) {
+        fxl_text_printable(shown, sizeof shown, buf);
+        fprintf(out, "%s\n", shown);
+    }
     return 0;
 }
 
@@ -113,8 +161,13 @@ static int choose_patient(cli_env *env, char mrn[65], char plan[65])
     for (;;) {
         double v;
         if (ask(env, line, sizeof line, "Patient: line 1-%zu or MRN: ", w.n) != 0 || !line[0]) {
-            cli_error("no patient chosen; nothing recorded");
-            code = CLI_EXIT_USAGE;
+            if (refused_answer[0]) {
+                cli_error("%s is refused as the patient; nothing recorded", refused_answer);
+                code = CLI_EXIT_DATA;
+            } else {
+                cli_error("no patient chosen; nothing recorded");
+                code = CLI_EXIT_USAGE;
+            }
             goto cleanup;
         }
         if (fxl_number_parse(&v, line, FXL_NUM_WHOLE) == FXL_NUM_OK) {
@@ -276,6 +329,7 @@ static int one_field(cli_env *env, const fxl_fraction_state *st, const fxl_workl
         cli_error("out of memory");
         return CLI_EXIT_DB;
     }
+    cli_record_note_saved(env, &fo->all);
     if (one.items[0].verdict == FXL_VERDICT_OUTSIDE_ACTION) {
         fprintf(out, "\n%sHOLD TREATMENT: do not deliver the next field.%s Call the physicist now.\n",
                 cli_color(env, CLI_RED), cli_color(env, CLI_RESET));
@@ -394,10 +448,12 @@ int cli_record_flow(cli_env *env, const cli_flow_args *a)
         }
     }
     if (fo.ended) {
-        cli_error("input ended: the %zu field%s entered %s saved; fraction %d stays open - run "
-                  "'fxledger record --patient %s' to go on", fo.all.n, fo.all.n == 1 ? "" : "s",
-                  fo.all.n == 1 ? "is" : "are", st.fraction_number, st.mrn);
-        code = CLI_EXIT_USAGE;
+        cli_error("%s%s: the %zu field%s entered %s saved; fraction %d stays open - run "
+                  "'fxledger record --patient %s' to go on", refused_answer[0] ? refused_answer : "input ended",
+                  refused_answer[0] ? " is refused and the input after it is not read" : "",
+                  fo.all.n, fo.all.n == 1 ? "" : "s", fo.all.n == 1 ? "is" : "are", st.fraction_number,
+                  st.mrn);
+        code = refused_answer[0] ? CLI_EXIT_DATA : CLI_EXIT_USAGE;
         goto cleanup;
     }
     if (!fo.stopped) {

@@ -11,8 +11,10 @@
 #include "cli/record_view.h"
 #include "cli/table.h"
 #include "cli/worklist_view.h"
+#include "fxl/number.h"
 #include "fxl/fraction.h"
 #include "fxl/readings_json.h"
+#include "fxl/text.h"
 
 /* Bounds of setting alert_timeout_s (docs/settings.md default 10 s). */
 #define ALERT_TIMEOUT_DEFAULT_S 10
@@ -283,15 +285,52 @@ static int alert_timeout(cli_env *env)
 
     if (fxl_setting_get(env->ctx, "alert_timeout_s", buf, sizeof buf) != 0)
         return ALERT_TIMEOUT_DEFAULT_S;
-    v = strtol(buf, &end, 10);
-    if (end == buf || *end != '\0' || v < 1 || v > ALERT_TIMEOUT_MAX_S)
-        return ALERT_TIMEOUT_DEFAULT_S;
+    {
+        double d = 0;
+        (void)end;
+        if (fxl_number_in_range(&d, buf, FXL_NUM_WHOLE, 1, ALERT_TIMEOUT_MAX_S) != FXL_NUM_OK)
+            return ALERT_TIMEOUT_DEFAULT_S;
+        v = (long)d;
+    }
     return (int)v;
+}
+
+/* What the alert command wrote, on standard error, one "fxledger: alert
+ * command: " line per line of its output, with control characters (escape
+ * sequences, carriage returns) shown as '?' (fxl_text_printable) and bidi
+ * controls too, so nothing it prints can move the cursor, clear the screen,
+ * recolour or reorder what the therapist reads. At most ALERT_SHOWN_LINES. */
+#define ALERT_SHOWN_LINES 10
+static void show_alert_output(char *said, int more)
+{
+    char shown[CLI_WIDTH * 2 + 8];
+    char *line = said, *nl;
+    int lines = 0;
+
+    while (line && *line) {
+        long at;
+        if ((nl = strchr(line, '\n')) != NULL)
+            *nl = '\0';
+        if (lines == ALERT_SHOWN_LINES) {
+            more = 1;
+            break;
+        }
+        /* bidi formatting characters out first, then the control characters */
+        while ((at = fxl_text_bidi_at(line)) >= 0)   /* U+061C is 2 bytes, the others 3 */
+            memset(line + at, '?', (unsigned char)line[at] >= 0xe0 ? 3 : 2);
+        fxl_text_printable(shown, sizeof shown, line);
+        fprintf(stderr, "fxledger: alert command: %s\n", shown);
+        lines++;
+        line = nl ? nl + 1 : NULL;
+    }
+    if (more)
+        fprintf(stderr, "fxledger: alert command: (more output not shown)\n");
 }
 
 void cli_record_alert(cli_env *env, const fxl_record_result *r)
 {
-    char command[2048];
+    char command[2048], said[2048];
+    int said_more = 0;
     fxl_alert_outcome outcome;
     cJSON *json = NULL;
     char *text = NULL;
@@ -311,7 +350,9 @@ void cli_record_alert(cli_env *env, const fxl_record_result *r)
         cJSON_AddNumberToObject(json, "action_results", n_action);
         text = cJSON_Print(json);
     }
-    cli_alert_run(&outcome, &code, command, text ? text : "{}", alert_timeout(env));
+    cli_alert_run(&outcome, &code, command, text ? text : "{}", alert_timeout(env), said,
+                  sizeof said, &said_more);
+    show_alert_output(said, said_more);
     rc = fxl_record_alert_outcome(env->ctx, r->fraction_id, command, outcome, code, n_action);
     if (outcome == FXL_ALERT_TIMED_OUT)
         fprintf(stderr, "fxledger: warning: the alert command did not finish within %d s and was "
@@ -333,9 +374,35 @@ void cli_record_alert(cli_env *env, const fxl_record_result *r)
     cJSON_Delete(json);
 }
 
+void cli_record_note_saved(cli_env *env, const fxl_record_result *r)
+{
+    int64_t lo = 0, hi = 0;
+    size_t i;
+
+    for (i = 0; i < r->n; i++) {
+        int64_t id = r->items[i].measurement_id;
+        if (!lo || id < lo)
+            lo = id;
+        if (id > hi)
+            hi = id;
+    }
+    if (lo == hi)
+        snprintf(env->saved, sizeof env->saved,
+                 "fraction %d of patient '%s' was saved (fraction id %lld, measurement id %lld; see "
+                 "'fxledger history --patient %s')", r->fraction_number, r->mrn, (long long)r->fraction_id,
+                 (long long)lo, r->mrn);
+    else
+        snprintf(env->saved, sizeof env->saved,
+                 "fraction %d of patient '%s' was saved (fraction id %lld, measurement ids %lld to %lld; "
+                 "see 'fxledger history --patient %s')", r->fraction_number, r->mrn,
+                 (long long)r->fraction_id, (long long)lo, (long long)hi, r->mrn);
+}
+
 int cli_record_finish(cli_env *env, const fxl_record_result *r)
 {
     int code = cli_record_exit_code(r);
+
+    cli_record_note_saved(env, r);
 
     if (env->json) {
         cJSON *json = fxl_record_result_json(r);

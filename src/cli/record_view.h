@@ -43,4 +43,9 @@ void cli_record_alert(cli_env *env, const fxl_record_result *r);
  * audits its outcome. Returns the exit code of the worst result. */
 int cli_record_finish(cli_env *env, const fxl_record_result *r);
 
+/* Names the committed fraction and its measurement ids in env->saved, so
+ * that an output failure afterwards (stdout on a full disk) says it was
+ * saved instead of leaving it to be logged twice. */
+void cli_record_note_saved(cli_env *env, const fxl_record_result *r);
+
 #endif

@@ -103,6 +103,12 @@ int cli_parse(cli_env *env, const char *synopsis, const char *about, cli_opt *op
                           env->command ? env->command : "");
                 return -1;
             }
+            /* "--family X --family Y" would silently keep Y: refused, as a
+             * repeated global option is (docs/security.md). */
+            if (found->value) {
+                cli_error("option '--%s' is given more than once", found->name);
+                return -1;
+            }
             if (found->arg) {
                 if (eq) {
                     found->value = eq + 1;

@@ -410,8 +410,8 @@ int fxl_beam_json_read(fxl_ctx *ctx, fxl_beam_model *out, const char *path)
     static const fxl_jsondoc_file spec = {
         .max_bytes = 1024 * 1024,
         .too_large_code = FXL_EINVAL,
-        .open_fail = "cannot open beam data file '%s'",
-        .read_fail = "cannot read beam data file '%s'",
+        .open_fail = "cannot open beam data file '%s': %s",
+        .read_fail = "cannot read beam data file '%s': %s",
         .too_large = "file '%s' is larger than %d bytes",
         .no_memory = "out of memory reading '%s'",
     };

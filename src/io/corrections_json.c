@@ -246,7 +246,7 @@ int fxl_corr_file_read(fxl_ctx *ctx, fxl_corr_file *out, const char *path)
         .max_bytes = 1024 * 1024,
         .too_large_code = FXL_EINVAL,
         .open_fail = "cannot read file '%s': %s",
-        .read_fail = "cannot read file '%s'",
+        .read_fail = "cannot read file '%s': %s",
         .too_large = "file '%s' is larger than %d bytes",
         .no_memory = "out of memory reading '%s'",
         .empty = "file '%s' is empty",

@@ -111,32 +111,82 @@ static int is_tag_key(const char *s)
     return 1;
 }
 
+static int cmp_tag(const void *a, const void *b)
+{
+    unsigned long x = *(const unsigned long *)a, y = *(const unsigned long *)b;
+
+    return x < y ? -1 : x > y;
+}
+
+/* A tag may appear once in a data set (PS3.5 7.1: the elements of a data
+ * set have distinct tags; PS3.18 F.2 keys the JSON object by tag). cJSON
+ * keeps every repeated key and the reader would silently take the first, so
+ * a repeated tag is refused, as the other readers refuse a repeated key.
+ * "300a00b0" and "300A00B0" are the same tag. Sorting keeps a data set of
+ * many members linear-logarithmic (the reader is fuzzed). */
+static int check_repeated_tags(const parser *p, const cJSON *ds, int n)
+{
+    unsigned long *tags, dup = 0;
+    const cJSON *el;
+    int i = 0, found = 0;
+
+    if (n < 2)
+        return 0;
+    if (!(tags = malloc((size_t)n * sizeof *tags)))
+        return fxl_fail(p->ctx, FXL_EIO, "out of memory reading '%s'", p->name);
+    for (el = ds->child; el && i < n; el = el->next)
+        tags[i++] = strtoul(el->string, NULL, 16);   /* 8 hex digits: checked by is_tag_key */
+    qsort(tags, (size_t)i, sizeof *tags, cmp_tag);
+    for (n = 1; n < i && !found; n++)
+        if (tags[n] == tags[n - 1]) {
+            dup = tags[n];
+            found = 1;
+        }
+    free(tags);
+    if (found)
+        return fxl_fail(p->ctx, FXL_EINVAL,
+                        "file '%s': malformed DICOM JSON: tag (%04lX,%04lX) appears twice in one data set",
+                        p->name, (dup >> 16) & 0xFFFFUL, dup & 0xFFFFUL);
+    return 0;
+}
+
 /* Every member of a data set is a tag holding {"vr", "Value" | "BulkDataURI" |
- * "InlineBinary"}; sequence items are data sets in turn (PS3.18 F.2). */
+ * "InlineBinary"}, each key once; sequence items are data sets in turn
+ * (PS3.18 F.2). No tag appears twice in a data set. */
 static int check_dataset(const parser *p, const cJSON *ds, int depth)
 {
     const cJSON *el, *m, *item;
+    int n = 0, rc;
 
     if (depth > DEPTH_MAX)
         return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': malformed DICOM JSON: sequences nested deeper than %d",
                         p->name, DEPTH_MAX);
     for (el = ds->child; el; el = el->next) {
-        const cJSON *vr = NULL, *value = NULL;
+        const cJSON *vr = NULL, *value = NULL, *other = NULL;
         if (!is_tag_key(el->string))
             return fxl_fail(p->ctx, FXL_EINVAL,
                             "file '%s': malformed DICOM JSON: key '%.20s' is not a tag of 8 hex digits",
                             p->name, el->string ? el->string : "");
+        n++;
         if (!cJSON_IsObject(el))
             return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': malformed DICOM JSON: element %s is not an object",
                             p->name, el->string);
         for (m = el->child; m; m = m->next) {
+            const cJSON **slot;
             if (strcmp(m->string, "vr") == 0)
-                vr = m;
+                slot = &vr;
             else if (strcmp(m->string, "Value") == 0)
-                value = m;
-            else if (strcmp(m->string, "BulkDataURI") != 0 && strcmp(m->string, "InlineBinary") != 0)
+                slot = &value;
+            else if (strcmp(m->string, "BulkDataURI") == 0 || strcmp(m->string, "InlineBinary") == 0)
+                slot = &other;
+            else
                 return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': malformed DICOM JSON: element %s has unknown key '%.20s'",
                                 p->name, el->string, m->string);
+            if (*slot)
+                return fxl_fail(p->ctx, FXL_EINVAL,
+                                "file '%s': malformed DICOM JSON: element %s has key '%s' twice", p->name,
+                                el->string, m->string);
+            *slot = m;
         }
         if (!cJSON_IsString(vr) || strlen(vr->valuestring) != 2)
             return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': malformed DICOM JSON: element %s has no 'vr'",
@@ -146,7 +196,6 @@ static int check_dataset(const parser *p, const cJSON *ds, int depth)
                             p->name, el->string);
         if (value && strcmp(vr->valuestring, "SQ") == 0) {
             cJSON_ArrayForEach(item, value) {
-                int rc;
                 if (!cJSON_IsObject(item))
                     return fxl_fail(p->ctx, FXL_EINVAL,
                                     "file '%s': malformed DICOM JSON: an item of sequence %s is not an object",
@@ -156,7 +205,7 @@ static int check_dataset(const parser *p, const cJSON *ds, int depth)
             }
         }
     }
-    return 0;
+    return check_repeated_tags(p, ds, n);
 }
 
 /* ---- reading attributes -------------------------------------------------------- */
@@ -267,9 +316,15 @@ static int get_num(const parser *p, const char *where, const cJSON *ds, const ta
             return missing(p, where, t);
         return 0;
     }
-    if (as_number(cJSON_GetArrayItem(v, index), out) != 0)
-        return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: %s (%.4s,%.4s) must be a number", p->name, where,
-                        t->keyword, t->hex, t->hex + 4);
+    if (as_number(cJSON_GetArrayItem(v, index), out) != 0) {
+        const cJSON *x = cJSON_GetArrayItem(v, index);
+        char shown[40];
+        /* the text as written, made printable: "0x1.7b8p3" is not decimal (PS3.5 6.2) */
+        fxl_text_printable(shown, sizeof shown, cJSON_IsString(x) ? x->valuestring : "");
+        return fxl_fail(p->ctx, FXL_EINVAL, "file '%s': %s: %s (%.4s,%.4s)%s%s%s must be a plain decimal number",
+                        p->name, where, t->keyword, t->hex, t->hex + 4, cJSON_IsString(x) ? " '" : "",
+                        shown, cJSON_IsString(x) ? "'" : "");
+    }
     return 1;
 }
 
@@ -964,8 +1019,8 @@ int fxl_dicom_plan_read(fxl_ctx *ctx, fxl_dicom_plan *out, const char *path)
     static const fxl_jsondoc_file spec = {
         .max_bytes = 16 * 1024 * 1024,
         .too_large_code = FXL_EINVAL,
-        .open_fail = "cannot open RT Plan file '%s'",
-        .read_fail = "cannot read RT Plan file '%s'",
+        .open_fail = "cannot open RT Plan file '%s': %s",
+        .read_fail = "cannot read RT Plan file '%s': %s",
         .too_large = "file '%s' is larger than %d bytes",
         .no_memory = "out of memory reading '%s'",
     };

@@ -25,7 +25,9 @@ int fxl_jsondoc_read_file(fxl_ctx *ctx, char **out, size_t *len, const char *pat
     *len = 0;
     if (!(fp = is_stdin ? stdin : fopen(path, "rb"))) {
         /* a missing input file is a data error (exit 2), like any wrong input */
-        rc = fxl_fail(ctx, errno == ENOENT || errno == ENOTDIR ? FXL_ENOTFOUND : FXL_EIO, spec->open_fail,
+        /* A missing or unreadable input file is a data error (exit 2), like
+         * any wrong input: the database is not involved. */
+        rc = fxl_fail(ctx, errno == ENOENT || errno == ENOTDIR ? FXL_ENOTFOUND : FXL_EINVAL, spec->open_fail,
                       path, strerror(errno));
         goto cleanup;
     }
@@ -49,7 +51,8 @@ int fxl_jsondoc_read_file(fxl_ctx *ctx, char **out, size_t *len, const char *pat
             break;
     }
     if (ferror(fp)) {
-        rc = fxl_fail(ctx, FXL_EIO, spec->read_fail, path, strerror(errno));
+        /* a directory (EISDIR) or an unreadable file: wrong input, exit 2 */
+        rc = fxl_fail(ctx, FXL_EINVAL, spec->read_fail, path, strerror(errno));
         goto cleanup;
     }
     if (n > spec->max_bytes) {
@@ -112,7 +115,7 @@ int fxl_jsondoc_check_text(const fxl_jsondoc *d, const char *text, size_t len, u
 
 /* 1 when the text ends inside a string that was never closed: a file cut
  * in the middle of a name or value (cJSON then points at the string start). */
-static int ends_inside_string(const char *text, size_t len)
+int fxl_jsondoc_ends_inside_string(const char *text, size_t len)
 {
     size_t i;
     int in_string = 0;
@@ -152,8 +155,15 @@ int fxl_jsondoc_syntax_error(const fxl_jsondoc *d, const char *text, size_t len,
     if ((flags & FXL_JSONDOC_CUT_AT_QUOTE) && pos < len && pos > 0 && text[pos - 1] == '"' &&
         !memchr(text + pos, '"', len - pos))
         pos = len;
-    if ((flags & FXL_JSONDOC_CUT_IN_STRING) && ends_inside_string(text, len))
-        pos = len;
+    /* Every reader: a file cut inside a string is truncated, whatever the
+     * flags (FXL_JSONDOC_CUT_IN_STRING is kept for the callers that name it). */
+    (void)FXL_JSONDOC_CUT_IN_STRING;
+    if (fxl_jsondoc_ends_inside_string(text, len)) {
+        fxl_jsondoc_line_col(text, len, &line, &col);
+        return fxl_fail(d->ctx, FXL_EINVAL,
+                        "%s '%s': malformed JSON: the file ends too early at line %d, column %d, inside a "
+                        "string (truncated)", d->kind, d->name, line, col);
+    }
     if (pos >= len) {
         fxl_jsondoc_line_col(text, len, &line, &col);
         return fxl_fail(d->ctx, FXL_EINVAL,

@@ -51,7 +51,7 @@ enum {
     FXL_JSONDOC_AT_BYTE = 1,        /* bad text named by byte offset, not by line and column */
     FXL_JSONDOC_NO_TRAILING = 2,    /* anything but white space after the document is an error */
     FXL_JSONDOC_CUT_AT_QUOTE = 4,   /* a quote just before the error, none after: truncated */
-    FXL_JSONDOC_CUT_IN_STRING = 8   /* text that ends inside a string: truncated */
+    FXL_JSONDOC_CUT_IN_STRING = 8   /* text that ends inside a string: truncated (now always so) */
 };
 
 /* FXL_EINVAL when text[0..len) is not UTF-8 or holds the escape "\u0000"
@@ -59,7 +59,12 @@ enum {
  * ..." at a byte offset (FXL_JSONDOC_AT_BYTE) or a line and column. */
 int fxl_jsondoc_check_text(const fxl_jsondoc *d, const char *text, size_t len, unsigned flags);
 
-/* The report for text that cJSON refused: where it stops, or that the file
+/* 1 when text[0..len) ends inside a string that was never closed (a file
+ * cut in the middle of a name or a value), else 0. */
+int fxl_jsondoc_ends_inside_string(const char *text, size_t len);
+
+/* The report for text that cJSON refused: a file that ends inside a string
+ * is always reported as truncated; where it stops, or that the file
  * ends too early (truncated). Always returns a negative FXL_E* code. */
 int fxl_jsondoc_syntax_error(const fxl_jsondoc *d, const char *text, size_t len, unsigned flags);
 

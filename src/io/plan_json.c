@@ -281,6 +281,13 @@ static int parse_syntax(parser *p, cJSON **out, const char *buf, size_t len)
     for (i = pos; i < len; i++)
         if (buf[i] != ' ' && buf[i] != '\t' && buf[i] != '\r' && buf[i] != '\n')
             at_end = 0;
+    /* A file cut inside a string: cJSON points at the string's start. */
+    if (fxl_jsondoc_ends_inside_string(buf, len)) {
+        fxl_jsondoc_line_col(buf, len, &line, &col);
+        return fxl_fail(p->ctx, FXL_EINVAL,
+                        "plan file '%s' is not valid JSON: it ends too early at line %d, column %d, inside a "
+                        "string (truncated file)", p->source, line, col);
+    }
     fxl_jsondoc_line_col(buf, pos, &line, &col);
     if (len == 0 || at_end)
         return fxl_fail(p->ctx, FXL_EINVAL,
@@ -390,7 +397,7 @@ int fxl_plan_json_read(fxl_ctx *ctx, fxl_plan_spec *out, const char *path)
         .max_bytes = ((size_t)16 << 20) - 1,
         .too_large_code = FXL_EINVAL,
         .open_fail = "cannot read plan file '%s': %s",
-        .read_fail = "cannot read plan file '%s'",
+        .read_fail = "cannot read plan file '%s': %s",
         .too_large = "plan file '%s' is larger than 16 MB",
         .no_memory = "out of memory reading plan file '%s'",
     };

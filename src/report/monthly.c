@@ -9,6 +9,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "fxl/number.h"
 #include "fxl/core.h"
 #include "fxl/report.h"
 #include "report/chart.h"
@@ -541,10 +542,9 @@ static int calibrations(mreport *r)
     int rc;
 
     if (fxl_setting_get(r->s->ctx, "calibration_due_days", buf, sizeof buf) == 0) {
-        char *end = NULL;
-        long v = strtol(buf, &end, 10);
-        if (end != buf && *end == '\0' && v >= 0 && v <= 365)
-            due_days = v;
+        double v = 0;
+        if (fxl_number_in_range(&v, buf, FXL_NUM_WHOLE, 0, 365) == FXL_NUM_OK)
+            due_days = (long)v;
     }
     section(r, "Calibrations", 100);
     rpt_table_begin(&r->table, d, cal_done_cols, 8, 7, 2, "Cross-calibrations performed this month");

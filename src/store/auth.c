@@ -8,6 +8,7 @@
 #include <string.h>
 #include <time.h>
 
+#include "fxl/number.h"
 #include "fxl/audit.h"
 #include "fxl/auth.h"
 #include "fxl/text.h"
@@ -65,9 +66,13 @@ static long setting_long(fxl_ctx *ctx, const char *key, long fallback, long lo, 
         memcpy(ctx->errmsg, saved, sizeof saved);
         return fallback;
     }
-    v = strtol(buf, &end, 10);
-    if (end == buf || *end || v < lo || v > hi)
-        return fallback;
+    {
+        double d = 0;
+        (void)end;
+        if (fxl_number_in_range(&d, buf, FXL_NUM_WHOLE, (double)lo, (double)hi) != FXL_NUM_OK)
+            return fallback;
+        v = (long)d;
+    }
     return v;
 }
 

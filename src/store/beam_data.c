@@ -39,14 +39,15 @@ static int read_file(fxl_ctx *ctx, char **out, size_t *len, const char *path)
     *out = NULL;
     *len = 0;
     if (!(f = fopen(path, "rb")))
-        return fxl_fail(ctx, errno == ENOENT ? FXL_ENOTFOUND : FXL_EIO, "cannot open beam data file '%s': %s", path, strerror(errno));
+        return fxl_fail(ctx, errno == ENOENT || errno == ENOTDIR ? FXL_ENOTFOUND : FXL_EINVAL,
+                        "cannot open beam data file '%s': %s", path, strerror(errno));
     if (!(buf = malloc(BEAM_FILE_MAX_BYTES + 2))) {
         rc = fxl_fail(ctx, FXL_EIO, "out of memory reading '%s'", path);
         goto cleanup;
     }
     *len = fread(buf, 1, BEAM_FILE_MAX_BYTES + 1, f);
     if (ferror(f)) {
-        rc = fxl_fail(ctx, FXL_EIO, "cannot read beam data file '%s'", path);
+        rc = fxl_fail(ctx, FXL_EINVAL, "cannot read beam data file '%s': %s", path, strerror(errno));
         goto cleanup;
     }
     if (*len > BEAM_FILE_MAX_BYTES) {

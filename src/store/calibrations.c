@@ -6,6 +6,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "fxl/number.h"
 #include "fxl/calibrations.h"
 #include "fxl/core.h"
 #include "fxl/detectors.h"
@@ -139,8 +140,9 @@ static int setting_pct(fxl_ctx *ctx, double *out, const char *key, double fallba
         return 0;
     if (rc != 0)
         return rc;
-    *out = strtod(buf, &end);
-    if (end == buf || *end || !isfinite(*out) || !(*out > 0))
+    (void)end;
+    /* the one strict parser, as for every number read as text */
+    if (fxl_number_parse(out, buf, 0) != FXL_NUM_OK || !(*out > 0))
         return fxl_fail(ctx, FXL_EINVAL, "setting '%s' value '%s' must be a number above 0 %%",
                         key, buf);
     return 0;

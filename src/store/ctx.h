@@ -28,4 +28,8 @@ struct fxl_ctx {
  * UNIQUE constraint) or FXL_EDB, with a message that starts with `what`. */
 int fxl_db_fail(fxl_ctx *ctx, const char *what);
 
+/* FXL_EDB with "database 'PATH' is damaged (integrity: detail); ..." - for
+ * SQLITE_CORRUPT and a file cut short, never "not an fxledger database". */
+int fxl_db_explain_damage(fxl_ctx *ctx, const char *path, const char *detail);
+
 #endif

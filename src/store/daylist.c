@@ -153,6 +153,19 @@ static int json_text(fxl_ctx *ctx, char *dst, size_t size, const cJSON *o, const
     return 0;
 }
 
+/* 1 when a later member of the same object repeats k's key: cJSON keeps
+ * both and a lookup takes the first, so a repeated key is refused as in the
+ * other JSON readers (the objects here have at most three known keys). */
+static int repeated_key(const cJSON *k)
+{
+    const cJSON *b;
+
+    for (b = k->next; b; b = b->next)
+        if (strcmp(k->string, b->string) == 0)
+            return 1;
+    return 0;
+}
+
 static int parse_json(fxl_ctx *ctx, dl_raw *rows, size_t *n, char date[11], const char *text,
                       size_t len)
 {
@@ -172,6 +185,10 @@ static int parse_json(fxl_ctx *ctx, dl_raw *rows, size_t *n, char date[11], cons
         if (strcmp(k->string, "date") != 0 && strcmp(k->string, "appointments") != 0 &&
             strcmp(k->string, "format") != 0) {
             rc = fxl_fail(ctx, FXL_EINVAL, "day list: unknown key '%s' (date, appointments)", k->string);
+            goto cleanup;
+        }
+        if (repeated_key(k)) {
+            rc = fxl_fail(ctx, FXL_EINVAL, "day list: key '%s' appears twice", k->string);
             goto cleanup;
         }
     }
@@ -197,6 +214,10 @@ static int parse_json(fxl_ctx *ctx, dl_raw *rows, size_t *n, char date[11], cons
                 strcmp(k->string, "plan") != 0) {
                 rc = fxl_fail(ctx, FXL_EINVAL, "day list entry %d: unknown key '%s' (time, mrn, plan)",
                               idx, k->string);
+                goto cleanup;
+            }
+            if (repeated_key(k)) {
+                rc = fxl_fail(ctx, FXL_EINVAL, "day list entry %d: key '%s' appears twice", idx, k->string);
                 goto cleanup;
             }
         }
@@ -402,7 +423,8 @@ int fxl_daylist_import_file(fxl_ctx *ctx, fxl_daylist_result *out, const char *p
         return fxl_fail(ctx, FXL_EINVAL, "no day list file given");
     f = strcmp(path, "-") == 0 ? stdin : fopen(path, "rb");
     if (!f)
-        return fxl_fail(ctx, errno == ENOENT ? FXL_ENOTFOUND : FXL_EIO, "cannot open day list '%s': %s",
+        return fxl_fail(ctx, errno == ENOENT || errno == ENOTDIR ? FXL_ENOTFOUND : FXL_EINVAL,
+                        "cannot open day list '%s': %s",
                         path, strerror(errno));
     if (!(buf = malloc(DAYLIST_BYTES_MAX + 1))) {
         rc = fxl_fail(ctx, FXL_EIO, "out of memory reading a day list");
@@ -414,7 +436,7 @@ int fxl_daylist_import_file(fxl_ctx *ctx, fxl_daylist_result *out, const char *p
             break;
     }
     if (ferror(f)) {
-        rc = fxl_fail(ctx, FXL_EIO, "cannot read day list '%s'", path);
+        rc = fxl_fail(ctx, FXL_EINVAL, "cannot read day list '%s': %s", path, strerror(errno));
         goto cleanup;
     }
     buf[len] = '\0';

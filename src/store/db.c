@@ -89,6 +89,11 @@ static int pragma_int(fxl_ctx *ctx, const char *sql, int *out)
     return rc;
 }
 
+long long fxl_total_changes(fxl_ctx *ctx)
+{
+    return ctx && ctx->db ? (long long)sqlite3_total_changes64(ctx->db) : 0;
+}
+
 int fxl_schema_version(fxl_ctx *ctx)
 {
     int v = -1;
@@ -159,6 +164,104 @@ static int migrate(fxl_ctx *ctx, int from_version)
     return 0;
 }
 
+/* ---- what is wrong with a file that does not open ------------------------ */
+
+/* The directory part of path into dir ("." when none). */
+static void dir_of(const char *path, char *dir, size_t size)
+{
+    const char *slash = strrchr(path, '/');
+
+    if (!slash)
+        snprintf(dir, size, ".");
+    else if (slash == path)
+        snprintf(dir, size, "/");
+    else
+        snprintf(dir, size, "%.*s", (int)(slash - path), path);
+}
+
+int fxl_db_explain_damage(fxl_ctx *ctx, const char *path, const char *detail)
+{
+    return fxl_fail(ctx, FXL_EDB,
+                    "database '%s' is damaged (integrity: %s); nothing was changed - restore it from "
+                    "the last backup and check the copy with 'fxledger verify' (docs/robustness.md)",
+                    path, detail);
+}
+
+/* The SQLite file header (SQLite file format, "The Database Header"):
+ * 0 for a plausible header whose page count fits the file, else a message
+ * (FXL_EVERSION: not SQLite at all; FXL_EDB: a damaged SQLite file). Only
+ * the first 100 bytes are read: this costs nothing at every open. */
+static int check_header(fxl_ctx *ctx, const char *path)
+{
+    static const unsigned char magic[16] = "SQLite format 3";
+    unsigned char h[100];
+    unsigned long page_size, pages, counter, valid_for;
+    struct stat st;
+    ssize_t n;
+    int fd;
+
+    if ((fd = open(path, O_RDONLY | O_CLOEXEC)) < 0)
+        return 0;   /* SQLite reports what it finds */
+    n = read(fd, h, sizeof h);
+    if (fstat(fd, &st) != 0)
+        st.st_size = 0;
+    close(fd);
+    if (n <= 0)
+        return 0;   /* an empty file: the caller's message */
+    if (n < (ssize_t)sizeof h || memcmp(h, magic, sizeof magic) != 0) {
+        if (n >= 16 && memcmp(h, magic, 15) == 0)
+            return fxl_db_explain_damage(ctx, path, "the file header is damaged");
+        return fxl_fail(ctx, FXL_EVERSION,
+                        "'%s' is not an fxledger database (no SQLite header: another kind of file, or a "
+                        "database whose first bytes were overwritten)", path);
+    }
+    page_size = ((unsigned long)h[16] << 8) | h[17];
+    if (page_size == 1)
+        page_size = 65536;
+    if (page_size < 512 || (page_size & (page_size - 1)) != 0)
+        return fxl_db_explain_damage(ctx, path, "the page size in the file header is invalid");
+    pages = ((unsigned long)h[28] << 24) | ((unsigned long)h[29] << 16) | ((unsigned long)h[30] << 8) | h[31];
+    counter = ((unsigned long)h[24] << 24) | ((unsigned long)h[25] << 16) | ((unsigned long)h[26] << 8) | h[27];
+    valid_for = ((unsigned long)h[92] << 24) | ((unsigned long)h[93] << 16) | ((unsigned long)h[94] << 8) | h[95];
+    /* The in-header size counts only when the change counter matches the
+     * version-valid-for number; then a shorter file was cut short. */
+    if (pages > 0 && counter == valid_for && (double)st.st_size < (double)pages * (double)page_size) {
+        char detail[160];
+        snprintf(detail, sizeof detail, "the file is cut short: %lld of %.0f bytes", (long long)st.st_size,
+                 (double)pages * (double)page_size);
+        return fxl_db_explain_damage(ctx, path, detail);
+    }
+    return 0;
+}
+
+/* After a failed first read or write of an opened file: the reason in the
+ * user's terms - a read-only folder or file, a damaged file, another kind
+ * of file - rather than SQLite's words. */
+static int explain_open_failure(fxl_ctx *ctx, const char *path, int readonly)
+{
+    int xrc = ctx->db ? sqlite3_extended_errcode(ctx->db) : SQLITE_ERROR, rc;
+    char dir[4096];
+
+    if ((rc = check_header(ctx, path)) != 0)
+        return rc;
+    dir_of(path, dir, sizeof dir);
+    if ((xrc & 0xff) == SQLITE_CORRUPT || (xrc & 0xff) == SQLITE_NOTADB)
+        return fxl_db_explain_damage(ctx, path, sqlite3_errstr(xrc));
+    if ((xrc & 0xff) == SQLITE_READONLY || (xrc & 0xff) == SQLITE_CANTOPEN ||
+        (xrc & 0xff) == SQLITE_PERM || (xrc & 0xff) == SQLITE_IOERR) {
+        if (access(dir, W_OK) != 0)
+            return fxl_fail(ctx, FXL_EIO,
+                            "database '%s' is in a read-only folder '%s': fxledger must create its -wal "
+                            "and -shm files beside it%s; move it to a writable folder or ask for write "
+                            "access (nothing was changed)", path, dir,
+                            readonly ? " even to read it" : "");
+        if (!readonly && access(path, W_OK) != 0)
+            return fxl_fail(ctx, FXL_EIO, "database file '%s' is read-only (%s); nothing was changed",
+                            path, strerror(errno));
+    }
+    return fxl_fail(ctx, FXL_EVERSION, "'%s' is not an fxledger database (%s)", path, sqlite3_errstr(xrc));
+}
+
 static int is_empty_database(fxl_ctx *ctx, int *empty)
 {
     int n = 0;
@@ -196,6 +299,10 @@ int fxl_open(fxl_ctx **out, const char *path, int flags)
                         "database '%s' does not exist (create it with 'fxledger init')", path);
     }
 
+    /* A write-protected file would be opened read-only without a word (and
+     * its -wal and -shm left beside it): refused before SQLite opens it. */
+    if (!ctx->readonly && !(flags & FXL_OPEN_CREATE) && access(path, W_OK) != 0 && errno == EACCES)
+        return fxl_fail(ctx, FXL_EIO, "database file '%s' is read-only; nothing was changed", path);
     sqlflags = ctx->readonly ? SQLITE_OPEN_READONLY
                              : SQLITE_OPEN_READWRITE | ((flags & FXL_OPEN_CREATE) ? SQLITE_OPEN_CREATE : 0);
     if (sqlite3_open_v2(path, &ctx->db, sqlflags, NULL) != SQLITE_OK)
@@ -204,10 +311,14 @@ int fxl_open(fxl_ctx **out, const char *path, int flags)
     sqlite3_busy_timeout(ctx->db, BUSY_TIMEOUT_MS);
     sqlite3_extended_result_codes(ctx->db, 1);
 
+    /* A file cut short reads well until a missing page is needed: its
+     * header tells (a cheap check at every open). */
+    if (!(flags & FXL_OPEN_CREATE) && (rc = check_header(ctx, path)) != 0)
+        return rc;
     /* A file that is not SQLite at all fails on its first read. */
     if (pragma_int(ctx, "PRAGMA application_id", &app_id) != 0 ||
         is_empty_database(ctx, &empty) != 0)
-        return fxl_fail(ctx, FXL_EVERSION, "'%s' is not an fxledger database", path);
+        return explain_open_failure(ctx, path, ctx->readonly);
     if (!empty && app_id != FXL_APPLICATION_ID)
         return fxl_fail(ctx, FXL_EVERSION, "'%s' is not an fxledger database", path);
     if (empty && !(flags & FXL_OPEN_CREATE))
@@ -224,7 +335,19 @@ int fxl_open(fxl_ctx **out, const char *path, int flags)
     if (!ctx->readonly) {
         if ((rc = fxl_exec(ctx, "PRAGMA journal_mode = WAL")) != 0 ||
             (rc = fxl_exec(ctx, "PRAGMA synchronous = FULL")) != 0)
-            return rc;
+            return explain_open_failure(ctx, path, 0);
+        /* SQLite opens a write-protected file read-only without a word;
+         * say so now rather than at the first write. */
+        if (sqlite3_db_readonly(ctx->db, "main") == 1) {
+            char dir[4096];
+            dir_of(path, dir, sizeof dir);
+            if (access(dir, W_OK) != 0)
+                return fxl_fail(ctx, FXL_EIO,
+                                "database '%s' is in a read-only folder '%s': fxledger must create its -wal "
+                                "and -shm files beside it; move it to a writable folder or ask for write "
+                                "access (nothing was changed)", path, dir);
+            return fxl_fail(ctx, FXL_EIO, "database file '%s' is read-only; nothing was changed", path);
+        }
         if (version < fxl_schema_latest() && (rc = migrate(ctx, version)) != 0)
             return rc;
         if (fxl_schema_latest() >= SEAL_VERSION && (rc = fxl_seal_attach(ctx)) != 0)

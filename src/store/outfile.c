@@ -2,9 +2,11 @@
  * temporary file created exclusively beside it, and a rename that never
  * replaces what it must not. No SQL here; the store only lends the name of
  * the open database. */
-#define _XOPEN_SOURCE 700   /* realpath */
+#define _XOPEN_SOURCE 700   /* realpath, kill */
+#include <dirent.h>
 #include <errno.h>
 #include <fcntl.h>
+#include <signal.h>
 #include <limits.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -155,6 +157,42 @@ int fxl_outfile_check(fxl_ctx *ctx, const char *path, int flags)
     return 0;
 }
 
+/* Removes the temporary files ".BASE.part-PID-N" (and their -wal, -shm,
+ * -journal) that a writer of the same target left when it was killed: only
+ * regular files of ours whose process no longer exists. A killed backup or
+ * report thus leaves nothing under the name asked for, and its temporary
+ * file goes at the next write of that name. */
+static void remove_stale_parts(const char *dir, const char *base)
+{
+    char prefix[PATH_MAX], full[PATH_MAX * 2];
+    size_t plen;
+    struct dirent *e;
+    DIR *d;
+
+    if (snprintf(prefix, sizeof prefix, ".%s.part-", base) >= (int)sizeof prefix || !(d = opendir(dir)))
+        return;
+    plen = strlen(prefix);
+    while ((e = readdir(d)) != NULL) {
+        const char *p = e->d_name + plen;
+        char *end = NULL;
+        long pid;
+        struct stat st;
+
+        if (strncmp(e->d_name, prefix, plen) != 0 || *p < '1' || *p > '9')
+            continue;
+        pid = strtol(p, &end, 10);
+        if (!end || *end != '-' || pid <= 0 || pid == (long)getpid())
+            continue;
+        if (kill((pid_t)pid, 0) == 0 || errno != ESRCH)
+            continue;   /* still running (or not ours to ask): leave it */
+        if (snprintf(full, sizeof full, "%s/%s", dir, e->d_name) >= (int)sizeof full)
+            continue;
+        if (lstat(full, &st) == 0 && S_ISREG(st.st_mode) && st.st_uid == geteuid())
+            unlink(full);
+    }
+    closedir(d);
+}
+
 int fxl_outfile_open(fxl_outfile *o, fxl_ctx *ctx, const char *path, int flags)
 {
     static unsigned serial;
@@ -169,6 +207,7 @@ int fxl_outfile_open(fxl_outfile *o, fxl_ctx *ctx, const char *path, int flags)
         return rc;
     snprintf(o->path, sizeof o->path, "%s", path);
     split_path(path, dir, sizeof dir, base, sizeof base);
+    remove_stale_parts(dir, base);
     for (tries = 0; tries < 100; tries++) {
         snprintf(o->tmp, sizeof o->tmp, "%.3800s/.%.200s.part-%ld-%u", dir, base, (long)getpid(), serial++);
         o->fd = open(o->tmp, O_WRONLY | O_CREAT | O_EXCL | O_NOFOLLOW | O_CLOEXEC, 0600);

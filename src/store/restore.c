@@ -1,5 +1,6 @@
 /* Restore drill (fxl/restore.h): the backup, opened read-only, copied page
  * by page into a new file that takes its name only once it is checked. */
+#include <errno.h>
 #include <stddef.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -94,8 +95,9 @@ int fxl_restore_copy(fxl_ctx **out, const char *backup_path, const char *dest_pa
         *schema_backup = 0;
     if (!backup_path || !*backup_path || !dest_path || !*dest_path)
         return fxl_fail(ctx, FXL_EINVAL, "a backup file and the name of a new file are required");
-    if (access(backup_path, R_OK) != 0)
-        return fxl_fail(ctx, FXL_EIO, "cannot read backup '%s'", backup_path);
+    if (access(backup_path, R_OK) != 0)   /* a missing input file is a data error (exit 2) */
+        return fxl_fail(ctx, errno == ENOENT || errno == ENOTDIR ? FXL_ENOTFOUND : FXL_EINVAL,
+                        "cannot read backup '%s': %s", backup_path, strerror(errno));
     /* Read-only, and immutable unless a -wal lies beside it: SQLite then
      * neither writes nor creates a -wal or -shm beside the backup
      * (sqlite.org/uri.html, "immutable"). A backup that was opened for

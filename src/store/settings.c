@@ -1,6 +1,7 @@
 /* Known department settings: what each accepts and its fallback, the
  * validated change and the listing. Raw get/set are in db.c. */
 #include <errno.h>
+#include <limits.h>
 #include <math.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -208,11 +209,14 @@ int fxl_setting_get_int(fxl_ctx *ctx, long *out, const char *key, long fallback)
     }
     if (rc != 0)
         return rc;
-    errno = 0;
-    v = strtol(buf, &end, 10);
-    if (errno != 0 || end == buf || *end != '\0')
-        return fxl_fail(ctx, FXL_EINVAL, "stored setting '%s' value '%s' is not a whole number",
-                        key, buf);
+    {
+        double d = 0;
+        (void)end;
+        if (fxl_number_in_range(&d, buf, FXL_NUM_WHOLE, (double)LONG_MIN / 2, (double)LONG_MAX / 2) != FXL_NUM_OK)
+            return fxl_fail(ctx, FXL_EINVAL, "stored setting '%s' value '%s' is not a whole number",
+                            key, buf);
+        v = (long)d;
+    }
     *out = v;
     return 0;
 }

@@ -16,6 +16,11 @@ int fxl_db_fail(fxl_ctx *ctx, const char *what)
         return fxl_fail(ctx, FXL_EBUSY,
                         "database busy: another process held it past the timeout; try again (%s)",
                         what);
+    if ((rc & 0xff) == SQLITE_CORRUPT || (rc & 0xff) == SQLITE_NOTADB)
+        return fxl_db_explain_damage(ctx, sqlite3_db_filename(ctx->db, "main"), msg);
+    if ((rc & 0xff) == SQLITE_READONLY)
+        return fxl_fail(ctx, FXL_EIO, "database '%s' cannot be written (%s): nothing was changed",
+                        sqlite3_db_filename(ctx->db, "main"), msg);
     if (rc == SQLITE_CONSTRAINT_UNIQUE || rc == SQLITE_CONSTRAINT_PRIMARYKEY)
         return fxl_fail(ctx, FXL_ECONFLICT, "%s: already exists (%s)", what, msg);
     if ((rc & 0xff) == SQLITE_CONSTRAINT)
@@ -208,6 +213,11 @@ int fxl_exec(fxl_ctx *ctx, const char *sql)
     char *err = NULL;
     int rc = sqlite3_exec(ctx->db, sql, NULL, NULL, &err);
 
+    if (rc != SQLITE_OK && ((rc & 0xff) == SQLITE_CORRUPT || (rc & 0xff) == SQLITE_NOTADB)) {
+        rc = fxl_db_explain_damage(ctx, sqlite3_db_filename(ctx->db, "main"), err ? err : sqlite3_errstr(rc));
+        sqlite3_free(err);
+        return rc;
+    }
     if (rc != SQLITE_OK) {
         int code = ((rc & 0xff) == SQLITE_BUSY || (rc & 0xff) == SQLITE_LOCKED) ? FXL_EBUSY : FXL_EDB;
         fxl_fail(ctx, code, "%s%s", code == FXL_EBUSY ? "database busy: " : "database error: ",

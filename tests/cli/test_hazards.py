@@ -216,7 +216,7 @@ class HazardTest(RecordTestCase):
                                stderr=subprocess.PIPE, text=True, timeout=30,
                                env=self.fx.env("admin"))
         self.assertNotEqual(r.returncode, 0)
-        self.assertIn("could not write output", r.stderr)
+        self.assertIn("could not write the output", r.stderr)
 
     # ---- who did what, and when ----------------------------------------------------------
 

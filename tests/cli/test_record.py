@@ -5,6 +5,7 @@ escalation rule, the readings file, JSON output and the alert hook."""
 import json
 import os
 import sqlite3
+import subprocess
 import time
 
 from fxlcli import main
@@ -304,6 +305,56 @@ class RecordFileTest(RecordTestCase):
         self.fx.ok("record", "--file", "-", stdin=text, user="tina")
 
 
+class OutputFailsAfterCommitTest(RecordTestCase):
+    def run_to_dev_full(self, *args, stdin=None, now=None):
+        """fxledger with standard output on /dev/full (every write fails
+        with ENOSPC, as on a full disk: Linux null(4))."""
+        self.fx.ensure_session("tina", now)
+        rfd, wfd = os.pipe()
+        os.write(wfd, (self.fx.passwords["tina"] + "\n").encode())
+        os.close(wfd)
+        try:
+            with open("/dev/full", "w") as full:
+                return subprocess.run(self.fx.argv(*args, user="tina", password_fd=rfd), stdout=full,
+                                      stderr=subprocess.PIPE, input=stdin, text=True,
+                                      env=self.fx.env("tina", now), timeout=60, pass_fds=(rfd,))
+        finally:
+            os.close(rfd)
+
+    def test_saved_fraction_named_when_stdout_is_full(self):
+        """The fraction is committed before its verdicts are printed; when
+        printing fails the error says it was saved, with its ids, so nobody
+        logs it twice."""
+        r = self.run_to_dev_full("record", "--patient", MRN, "--detector", "D-1001", "--temp", "20",
+                                 "--field", "REF", "--reading", "20.0", "--field", "AP", "--reading", "21.0")
+        self.assertEqual(r.returncode, 3, r.stderr)
+        hist = self.fx.json("history", "--patient", MRN)
+        self.assertEqual(len(hist), 2)
+        ids = sorted(h["measurement_id"] for h in hist)
+        # errno is known only when the last write failed (else "write error")
+        self.assertRegex(r.stderr, r"could not write the output \((No space left on device|write error)\), "
+                         r"but fraction 1 of patient '%s' was saved \(fraction id " % MRN)
+        self.assertIn("measurement ids %d to %d" % (ids[0], ids[1]), r.stderr)
+        self.assertIn("do not enter it again", r.stderr)
+        self.assertNotIn("unsaved", r.stderr)
+        # Field by field: each field is saved when entered; the message names them.
+        r = self.run_to_dev_full("record", "--patient", MRN, "--interactive",
+                                 stdin="20.0\n20\n\n\n\n\n\n\n\n\n\n", now="2026-11-03T09:00:00Z")
+        hist = self.fx.json("history", "--patient", MRN, now="2026-11-03T09:00:00Z")
+        new = [h["measurement_id"] for h in hist if h["fraction"] == 2]
+        self.assertEqual(len(new), 1, r.stderr)
+        self.assertIn("but fraction 2 of patient '%s' was saved (fraction id " % MRN, r.stderr)
+        self.assertIn("measurement id %d;" % new[0], r.stderr)
+        # A command that saved nothing says only that the output failed.
+        r = self.run_to_dev_full("history", "--patient", MRN)
+        self.assertRegex(r.stderr.strip(), r"^fxledger: error: could not write the output "
+                         r"\((No space left on device|write error)\)$")
+        # Any other command that saved something says so (no fraction to name).
+        r = self.run_to_dev_full("patient", "add", "P-FULL", "--family", "Invented")
+        self.assertIn("but the command completed and what it changed is saved", r.stderr)
+        self.assertEqual(self.fx.run("patient", "show", "P-FULL").returncode, 0)
+
+
 class HistoryTest(RecordTestCase):
     def test_history_lists_and_marks_superseded(self):
         self.record("--field", "REF", "--detector", "D-1001", "--reading", "2.0", "--temp", "20")
@@ -366,6 +417,29 @@ class AlertHookTest(RecordTestCase):
         self.assertEqual(sent["results"][0]["verdict"], "outside_action")
         self.assertEqual(self.alert_audit()[0]["outcome"], "ok")
         self.fx.ok("verify")
+
+    def test_hook_output_never_reaches_the_terminal_raw(self):
+        """What the hook writes (stdout and stderr) is shown on our stderr
+        line by line, escape sequences and bidi controls as '?', so a hook
+        cannot clear the screen or recolour the verdict; --json output stays
+        valid JSON; more than 10 lines are cut with a note."""
+        self.fx.ok("setting", "set", "alert_command",
+                   "cat > /dev/null; printf '\\033[2J\\033[31mpaged\\n'; "
+                   "printf 'e\\342\\200\\256rr\\033]0;title\\007\\n' >&2; "
+                   "i=0; while [ $i -lt 20 ]; do echo line$i; i=$((i+1)); done")
+        r = self.fx.run("--json", "record", "--patient", MRN, "--field", "REF", "--detector", "D-1001",
+                        "--reading", "22.0", "--temp", "20", user="tina")
+        self.assertEqual(r.returncode, 12, r.stderr)
+        json.loads(r.stdout)
+        self.assertNotIn("\x1b", r.stdout + r.stderr)
+        self.assertNotIn("\u202e", r.stdout + r.stderr)
+        self.assertNotIn("\x07", r.stdout + r.stderr)
+        self.assertIn("fxledger: alert command: ?[2J?[31mpaged\n", r.stderr)
+        self.assertIn("fxledger: alert command: e???rr?]0;title?\n", r.stderr)
+        self.assertIn("fxledger: alert command: line7\n", r.stderr)
+        self.assertNotIn("line8", r.stderr)      # 2 lines above + 8 = the 10 shown
+        self.assertIn("fxledger: alert command: (more output not shown)", r.stderr)
+        self.assertEqual(self.alert_audit()[0]["outcome"], "ok")
 
     def test_failing_hook_keeps_the_record(self):
         self.fx.ok("setting", "set", "alert_command", "exit 3")

@@ -204,6 +204,40 @@ class RecordInteractiveTest(RecordTestCase):
         self.assertIn("(Enter skips, d: other detector)", r.stdout)
         self.assertEqual(self.fx.json("history", "--patient", MRN)[0]["detector"], "D-2002")
 
+    def test_answers_refused_whole_never_split_or_echoed_raw(self):
+        """An answer longer than the prompt's 255-character buffer is refused
+        whole: its tail is never taken as the next answer (before, the first
+        255 nines were read as a reading of 9.99e254 nC and the tail "20" as
+        the temperature). Piped input stops there, since the lines after it
+        were meant for later prompts; no reading is saved (the fraction begun
+        stays open to resume, as when input ends). The catalogue checks the
+        file unchanged for a long answer at the patient prompt. Piped answers
+        are shown made printable: an escape sequence typed into the pipe
+        never reaches the terminal."""
+        r = self.interactive(["D-1001", "9" * 255 + "20", "20", "", "", "", "", "", "", ""])
+        self.assertEqual(r.returncode, 2, r.stdout + r.stderr)
+        self.assertIn("an answer longer than 255 characters is refused", r.stderr)
+        self.assertIn("the 0 fields entered are saved", r.stderr)
+        self.assertEqual(r.stderr.count("\n"), 1, r.stderr)
+        self.assertNotIn("9" * 50, r.stdout + r.stderr)
+        self.assertEqual(self.sql("SELECT COUNT(*) FROM measurements"), [(0,)])
+        # A NUL byte in an answer: refused whole too (C would cut "20\0.5" to "20").
+        r = self.interactive(["D-1001", "20\x00.5", "20"])
+        self.assertEqual(r.returncode, 2, r.stdout + r.stderr)
+        self.assertIn("an answer holding a NUL byte is refused", r.stderr)
+        self.assertEqual(self.sql("SELECT COUNT(*) FROM measurements"), [(0,)])
+        # 255 characters exactly still fit (a padded reading is a number).
+        r = self.interactive(["D-1001", " " * 251 + "20.0", "20", "", "", "", "", "", "", "", ""])
+        self.assertEqual(r.returncode, 0, r.stdout + r.stderr)
+        # Escape sequences and a bidi override piped in: echoed as '?', never raw.
+        r = self.interactive(["\x1b[2J\x1b[31m20", "\u202e20", "21.0", "", "", "", "", "", "", "", ""],
+                             now="2026-11-03T09:00:00Z")
+        self.assertEqual(r.returncode, 0, r.stdout + r.stderr)
+        self.assertNotIn("\x1b", r.stdout + r.stderr)
+        self.assertIn("?[2J?[31m20", r.stdout)
+        hist = self.fx.json("history", "--patient", MRN)
+        self.assertEqual([h["reading"] for h in hist if h["fraction"] == 2][0], 21.0)
+
 
 if __name__ == "__main__":
     main()

@@ -200,7 +200,8 @@ class RestoreDrillTest(ReviewCase):
         self.assertIn("is not an fxledger database", r.stderr)
         self.assertFalse(os.path.exists(self.fx.path("x.db")))
         r, _ = self.restore(self.fx.path("missing.db"), self.fx.path("x.db"))
-        self.assertEqual(r.returncode, 3, r.stderr)
+        self.assertEqual(r.returncode, 2, r.stderr)   # a missing input file is a data error (issue 10)
+        self.assertIn("No such file", r.stderr)
         r = self.fx.run("restore", backup, login=False, password=False)
         self.assertEqual(r.returncode, 1)
 

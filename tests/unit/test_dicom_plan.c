@@ -443,6 +443,69 @@ static void test_dicom_plan_malformed_refused(void **state)
     free(two);
 }
 
+/* The variant plan with `insert` put just after the first occurrence of
+ * `after` (which ends with the comma or brace the insertion follows). */
+static char *with_insert(const char *after, const char *insert)
+{
+    const char *at = strstr(variant_plan, after);
+    size_t n = strlen(variant_plan) + strlen(insert) + 1, head;
+    char *out = malloc(n);
+
+    assert_non_null(at);
+    assert_non_null(out);
+    head = (size_t)(at - variant_plan) + strlen(after);
+    snprintf(out, n, "%.*s%s%s", (int)head, variant_plan, insert, variant_plan + head);
+    return out;
+}
+
+/* A tag twice in one data set is refused (PS3.5 7.1: each element of a data
+ * set has its own tag), at the top and inside a sequence item, also when the
+ * two spellings differ in case; a key twice in one element too. Before, cJSON
+ * kept both and the reader silently took the first. */
+static void test_dicom_plan_repeated_tags_refused(void **state)
+{
+    char *t;
+
+    (void)state;
+    /* the patient ID twice: the second one would have named another patient */
+    t = with_insert("[{", "\"00100020\":{\"vr\":\"LO\",\"Value\":[\"TEST-0010\"]},");
+    assert_refused(t, "tag (0010,0020) appears twice in one data set");
+    free(t);
+    /* Beam Meterset twice in the Referenced Beam item, as "300a0086" and "300A0086" */
+    t = with_insert("\"300c0006\":{\"vr\":\"IS\",\"Value\":[\"4\"]},",
+                    "\"300A0086\":{\"vr\":\"DS\",\"Value\":[\"770\"]},");
+    assert_refused(t, "tag (300A,0086) appears twice in one data set");
+    free(t);
+    /* the same tag in two different items is fine: they are two data sets */
+    t = with_insert("{\"300a00b8\":{\"vr\":\"CS\",\"Value\":[\"X\"]},", "");
+    {
+        fxl_dicom_plan p;
+        assert_int_equal(fxl_dicom_plan_parse(NULL, &p, t, strlen(t), "v.json"), 0);
+        fxl_dicom_plan_release(&p);
+    }
+    free(t);
+    assert_refused("{\"00100020\":{\"vr\":\"LO\",\"vr\":\"SH\",\"Value\":[\"X\"]}}", "has key 'vr' twice");
+    assert_refused("{\"00100020\":{\"vr\":\"LO\",\"Value\":[\"X\"],\"Value\":[\"Y\"]}}",
+                   "has key 'Value' twice");
+}
+
+/* A file cut inside a string (a name, a tag key, a value) is reported as
+ * truncated, not as a syntax error somewhere. */
+static void test_dicom_plan_cut_inside_string(void **state)
+{
+    char cut[sizeof variant_plan];
+    const char *marks[] = {"Nurnach", "\"300a00", "PHOT"};
+    size_t i;
+
+    (void)state;
+    for (i = 0; i < sizeof marks / sizeof marks[0]; i++) {
+        const char *at = strstr(variant_plan, marks[i]);
+        assert_non_null(at);
+        snprintf(cut, sizeof cut, "%.*s", (int)(at - variant_plan) + (int)strlen(marks[i]), variant_plan);
+        assert_refused(cut, "the file ends too early");
+    }
+}
+
 /* ---- Part 10 files against the JSON Model ----------------------------------------- */
 
 static void assert_same_text(const char *what, const char *a, const char *b)
@@ -635,6 +698,8 @@ int main(void)
         cmocka_unit_test(test_dicom_plan_three_field_as_written),
         cmocka_unit_test(test_dicom_plan_json_model_variants),
         cmocka_unit_test(test_dicom_plan_malformed_refused),
+        cmocka_unit_test(test_dicom_plan_repeated_tags_refused),
+        cmocka_unit_test(test_dicom_plan_cut_inside_string),
     };
     find_data_dir();
     return cmocka_run_group_tests(tests, NULL, NULL);
