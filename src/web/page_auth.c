@@ -111,6 +111,13 @@ static int opened(web_req *r, const char *token, const fxl_session_info *info)
     return 0;
 }
 
+/* Both password forms count against the login rate limit. */
+static int too_many_attempts(web_req *r)
+{
+    return web_fail(r, 429, "Too many login attempts from this workstation in the last minute. "
+                            "Wait a minute and try again.");
+}
+
 int web_do_login(web_req *r)
 {
     const char *login = web_arg(r, "login"), *pw = web_arg(r, "password");
@@ -120,10 +127,8 @@ int web_do_login(web_req *r)
     int rc;
 
     if (!web_login_rate_ok(r->client))
-        return web_fail(r, 429, "Too many login attempts from this workstation in the last minute. "
-                                "Wait a minute and try again.");
+        return too_many_attempts(r);
     if (!login || !*login || !pw || !*pw) {
-        r->status = 400;
         login_form(r, "Enter your login and your password.", 1, login);
         r->status = 400;
         return -1;
@@ -157,8 +162,7 @@ int web_do_first_password(web_req *r)
     int rc;
 
     if (!web_login_rate_ok(r->client))
-        return web_fail(r, 429, "Too many login attempts from this workstation in the last minute. "
-                                "Wait a minute and try again.");
+        return too_many_attempts(r);
     if (!login || !*login || !otp || !nw || !rep) {
         login_form(r, "Enter your login and your password.", 1, login);
         r->status = 400;
