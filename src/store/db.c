@@ -188,10 +188,11 @@ int fxl_db_explain_damage(fxl_ctx *ctx, const char *path, const char *detail)
 }
 
 /* The SQLite file header (SQLite file format, "The Database Header"):
- * 0 for a plausible header whose page count fits the file, else a message
- * (FXL_EVERSION: not SQLite at all; FXL_EDB: a damaged SQLite file). Only
- * the first 100 bytes are read: this costs nothing at every open. */
-static int check_header(fxl_ctx *ctx, const char *path)
+ * 0 for a plausible header, else a message (FXL_EVERSION: not SQLite at
+ * all; FXL_EDB: a damaged SQLite file). Reads the first 100 bytes and the
+ * file's size: *want is the size the header's page count gives (0 when
+ * the header does not vouch for it), *have the file's size. */
+static int read_header(fxl_ctx *ctx, const char *path, double *want, long long *have)
 {
     static const unsigned char magic[16] = "SQLite format 3";
     unsigned char h[100];
@@ -200,6 +201,8 @@ static int check_header(fxl_ctx *ctx, const char *path)
     ssize_t n;
     int fd;
 
+    *want = 0;
+    *have = 0;
     if ((fd = open(path, O_RDONLY | O_CLOEXEC)) < 0)
         return 0;   /* SQLite reports what it finds */
     n = read(fd, h, sizeof h);
@@ -224,14 +227,57 @@ static int check_header(fxl_ctx *ctx, const char *path)
     counter = ((unsigned long)h[24] << 24) | ((unsigned long)h[25] << 16) | ((unsigned long)h[26] << 8) | h[27];
     valid_for = ((unsigned long)h[92] << 24) | ((unsigned long)h[93] << 16) | ((unsigned long)h[94] << 8) | h[95];
     /* The in-header size counts only when the change counter matches the
-     * version-valid-for number; then a shorter file was cut short. */
-    if (pages > 0 && counter == valid_for && (double)st.st_size < (double)pages * (double)page_size) {
-        char detail[160];
-        snprintf(detail, sizeof detail, "the file is cut short: %lld of %.0f bytes", (long long)st.st_size,
-                 (double)pages * (double)page_size);
-        return fxl_db_explain_damage(ctx, path, detail);
+     * version-valid-for number. */
+    if (pages > 0 && counter == valid_for) {
+        *want = (double)pages * (double)page_size;
+        *have = (long long)st.st_size;
     }
     return 0;
+}
+
+/* Whether the database has a WAL with frames in it: pages the file does
+ * not hold yet may be there (a checkpoint moves them into the file). */
+static int wal_has_frames(const char *path)
+{
+    char wal[4096];
+    struct stat st;
+
+    if (snprintf(wal, sizeof wal, "%s-wal", path) >= (int)sizeof wal)
+        return 1;   /* cannot tell: leave it to SQLite */
+    return stat(wal, &st) == 0 && st.st_size > 0;
+}
+
+/* The header check at every open (cheap: 100 bytes and a stat or two). A
+ * file shorter than its header's page count was cut short - unless its
+ * WAL holds frames: a checkpoint writes page 1 (with the new page count)
+ * before the pages that extend the file, and one killed half-way is
+ * finished from the WAL at the next open. Then SQLite itself finds a page
+ * that is really missing (SQLITE_CORRUPT, "damaged" below). A short file
+ * without a WAL is read again a few times before it is called damaged: a
+ * closing process may have finished its checkpoint and removed its WAL
+ * between our two looks. */
+#define HEADER_RECHECKS 4
+#define HEADER_RECHECK_NS 25000000L   /* 25 ms */
+
+static int check_header(fxl_ctx *ctx, const char *path)
+{
+    const struct timespec pause = {0, HEADER_RECHECK_NS};
+    char detail[160];
+    long long have = 0;
+    double want = 0;
+    int rc, tries;
+
+    for (tries = 0;; tries++) {
+        if ((rc = read_header(ctx, path, &want, &have)) != 0)
+            return rc;
+        if ((double)have >= want || wal_has_frames(path))
+            return 0;
+        if (tries == HEADER_RECHECKS)
+            break;
+        nanosleep(&pause, NULL);
+    }
+    snprintf(detail, sizeof detail, "the file is cut short: %lld of %.0f bytes", have, want);
+    return fxl_db_explain_damage(ctx, path, detail);
 }
 
 /* After a failed first read or write of an opened file: the reason in the
