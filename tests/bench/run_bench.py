@@ -217,6 +217,8 @@ def bench_record(args, sess, db, twin, targets, groups, rounds, results_peak):
                 peak, code, out = peak_mib(argv, env)
                 results_peak["record"] = peak
                 t_fx, cpu_fx = None, None
+                if peak is None:            # no GNU time: the warm-up runs plainly
+                    _, _, code, out = spawn_timed(argv, env)
             else:
                 t_fx, cpu_fx, code, out = spawn_timed(argv, env)
             if code not in (0, 10, 11, 12):
