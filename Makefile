@@ -83,12 +83,12 @@ fuzz: deps
 clean:
 	rm -rf $(BUILD) demo/out
 
-# Not part of 'make test': builds two databases of invented data (about 5 GiB
+# Not part of 'make test': builds two databases of invented data (about 3.5 GiB
 # with the working copies under /tmp/fxledger-bench, reused while the
 # generator and schema stay the same), times the commands and the web
 # console, and prints each figure beside its target; exits 1 if one is
 # missed. BENCH_SCALE=network adds ten departments' twenty years in one
-# database (about 6 million measurements, some 30 GiB with its copy, most
+# database (about 6 million measurements, some 22 GiB with its copy, most
 # of an hour to build the first time). docs/performance.md.
 BENCH_SCALE ?= standard
 .PHONY: bench
