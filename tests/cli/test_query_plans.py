@@ -32,7 +32,8 @@ def string_macros():
 
 
 def statements(function):
-    """Each SQL text prepared (fxl_stmt_prepare) in the body of `function`
+    """Each SQL text prepared (fxl_stmt_prepare, or fxl_stmt_prepare_cached
+    for a statement the connection keeps) in the body of `function`
     of SOURCE, in order: the concatenated string literals and string
     macros up to the closing parenthesis."""
     text = open(SOURCE).read()
@@ -43,7 +44,7 @@ def statements(function):
     body = text[m.end():end]
     macros = string_macros()
     out = []
-    for p in re.finditer(r"fxl_stmt_prepare\(&\w+,\s*ctx,", body):
+    for p in re.finditer(r"fxl_stmt_prepare(?:_cached)?\(&\w+,\s*ctx,", body):
         pos, sql = p.end(), []
         while True:
             t = TOKEN.match(body, pos)
