@@ -147,8 +147,10 @@ class RecordRowsFixedTest(ReviewCase):
             got_l, want_l = got.splitlines(), want.splitlines()
             for n, (g, w) in enumerate(zip(got_l, want_l)):
                 if g != w:
-                    self.fail("row %d differs from the golden file\n  golden: %s\n  now:    %s"
-                              % (n + 1, w, g))
+                    cols = [(a, b) for a, b in zip(w.split(" "), g.split(" ")) if a != b]
+                    self.fail("line %d differs from the golden file (first: %s, now %s)\n"
+                              "  golden: %s\n  now:    %s" % (n + 1, cols[0][0] if cols else "?",
+                                                             cols[0][1] if cols else "?", w, g))
             self.fail("%d rows now, %d in the golden file" % (len(got_l), len(want_l)))
 
 
