@@ -25,8 +25,17 @@ What it builds (docs/performance.md):
 The rows follow the schema's foreign keys and CHECKs, the snapshot columns
 of each measurement follow the reading-to-dose formula of docs/physics.md
 with the detector's own tables and calibration, and the audit rows carry a
-valid SHA-256 chain in the canonical form of docs/audit.md, so that
-'fxledger verify' passes on the result (run with --verify).
+valid SHA-256 chain in the canonical form of docs/audit.md, each with the
+seals of the rows written since the previous audit row (SHA-256 of each
+row's canonical content, computed by SQLite with the expression of
+src/store/seal.c); a review item's status changes right after the event
+that leads to it (the guard of sql/011_record_guards.sql); every close,
+calibration, correction table and plan carries the Ed25519 signature of the
+invented physicist who made it, with the key the program made at their
+first login, opened with their password as a signing act does (libsodium
+through ctypes). So 'fxledger verify' passes on the result (--verify).
+Users log in through tests/cli/fxlcli.py (passwords on a pipe, one session
+per user); the program's hash parameters are untouched.
 
 Usage:
   gen_department.py --fxledger BIN --db PATH [--years 20] [--end 2026-01-01]
@@ -37,7 +46,8 @@ and, for each, the readings that log its next fraction within tolerance on
 the next working day (the benchmark logs those with 'fxledger record').
 """
 import argparse
-import bisect
+import ctypes
+import ctypes.util
 import datetime as dt
 import hashlib
 import json
@@ -45,9 +55,12 @@ import math
 import os
 import random
 import sqlite3
-import subprocess
 import sys
 import time
+
+HERE = os.path.dirname(os.path.abspath(__file__))
+sys.path.insert(0, os.path.join(HERE, "..", "cli"))
+from fxlcli import Fxl  # noqa: E402  the one harness that logs users in (tests/cli/fxlcli.py)
 
 GENESIS = "0" * 64
 UTC = "%Y-%m-%dT%H:%M:%SZ"
@@ -121,6 +134,7 @@ DISCRETE = {"wedge", "tray"}
 
 SLOTS_PER_MACHINE = 2
 GENERATION_YEARS = 4          # a diode is replaced every 4 calendar years
+LONG_YEARS, LONG_OFFSET = 8, 2  # ... but LINAC-A's first diode serves 8 (2018-2025, 2010-2017, ...)
 CALIB_EVERY_DAYS = 91         # quarterly cross-calibration
 CALIB_VALID_DAYS = 100
 CALIB_DUE_DAYS = 14           # setting calibration_due_days (default)
@@ -183,24 +197,79 @@ def num(v):
     return v
 
 
+# The tables whose rows fxledger seals (src/store/seal.c, fxl_sealed_tables);
+# the generator writes rows of these only.
+SEALED = {"machines", "beams", "beam_data", "detectors", "detector_status", "calibrations",
+          "correction_tables", "patients", "patient_corrections", "plans", "fields",
+          "threshold_sets", "fractions", "fraction_marks", "measurements", "review_items",
+          "review_events", "daylist_imports", "daylist_lines", "signing_keys", "api_tokens"}
+
+# Signed tables and the child rows their signed content carries
+# (src/store/signature.c, TABLES): entity -> (child, fk, order).
+SIGNED_CHILD = {"review_events": None, "calibrations": None,
+                "correction_tables": ("correction_points", "table_id", "x"),
+                "plans": ("fields", "plan_id", "id")}
+
+
+class Sodium:
+    """The few libsodium calls a signing act makes (the program's own
+    library, through ctypes): open a user's sealed secret key with their
+    password (crypto_pwhash Argon2id + crypto_secretbox), sign (Ed25519)."""
+
+    def __init__(self):
+        name = ctypes.util.find_library("sodium") or "libsodium.so.23"
+        self.so = so = ctypes.CDLL(name)
+        if so.sodium_init() < 0:
+            sys.exit("gen_department: libsodium does not initialise")
+        so.crypto_pwhash.argtypes = [ctypes.c_char_p, ctypes.c_ulonglong, ctypes.c_char_p,
+                                     ctypes.c_ulonglong, ctypes.c_char_p, ctypes.c_ulonglong,
+                                     ctypes.c_size_t, ctypes.c_int]
+        so.crypto_secretbox_open_easy.argtypes = [ctypes.c_char_p, ctypes.c_char_p,
+                                                  ctypes.c_ulonglong, ctypes.c_char_p,
+                                                  ctypes.c_char_p]
+        so.crypto_sign_detached.argtypes = [ctypes.c_char_p, ctypes.c_void_p, ctypes.c_char_p,
+                                            ctypes.c_ulonglong, ctypes.c_char_p]
+
+    def open_secret(self, password, salt, nonce, sealed, ops, mem):
+        key = ctypes.create_string_buffer(32)
+        pw = password.encode()
+        if self.so.crypto_pwhash(key, 32, pw, len(pw), salt, ops, mem, 2) != 0:  # ARGON2ID13
+            sys.exit("gen_department: crypto_pwhash failed")
+        sk = ctypes.create_string_buffer(len(sealed) - 16)
+        if self.so.crypto_secretbox_open_easy(sk, sealed, len(sealed), nonce, key) != 0:
+            sys.exit("gen_department: the password does not open the signing key")
+        return sk.raw
+
+    def sign(self, sk, msg):
+        sig = ctypes.create_string_buffer(64)
+        self.so.crypto_sign_detached(sig, None, msg, len(msg), sk)
+        return sig.raw.hex()
+
+
 class Audit:
-    """Appends audit rows with the SHA-256 chain of docs/audit.md."""
+    """Audit rows with the SHA-256 chain and row seals of docs/audit.md.
+    add() takes the rows written since the previous audit row (the seals it
+    will carry); the hashes are computed at flush, once those rows are in
+    the database, because a seal is over the row as SQLite stores it."""
 
     def __init__(self, last_id, last_hash):
         self.next_id = last_id + 1
         self.prev = last_hash
-        self.rows = []
+        self.rows = []       # pending entries, in id order
+        self.pending = {}    # (tbl, row id) -> status of a review item or None, in write order
 
-    def add(self, at, user, action, entity, entity_id, content):
-        text = json.dumps(content, separators=(",", ":"), ensure_ascii=False)
-        eid = "" if not entity_id else str(entity_id)
-        canon = "%s\n%d\n%s\n%s\n%s\n%s\n%s\n%s" % (self.prev, self.next_id, at, user, action,
-                                                    entity, eid, text)
-        h = hashlib.sha256(canon.encode("utf-8")).hexdigest()
-        self.rows.append((self.next_id, at, user, action, entity, entity_id or None, text,
-                          self.prev, h))
-        self.prev = h
+    def mark(self, tbl, row_id, status=None):
+        key = (tbl, row_id)
+        self.pending.pop(key, None)
+        self.pending[key] = status
+
+    def add(self, at, user, action, entity, entity_id, content, sign=None):
+        self.rows.append({"id": self.next_id, "at": at, "user": user, "action": action,
+                          "entity": entity, "entity_id": entity_id, "content": content,
+                          "seals": self.pending, "sign": sign})
+        self.pending = {}
         self.next_id += 1
+        return self.next_id - 1
 
 
 class Gen:
@@ -216,25 +285,34 @@ class Gen:
         self.rows = {}        # table -> list of tuples
         self.counts = {}
         self.scheduled = {}   # date -> [(datetime, fn, args)]
-        self.status_updates = []  # (status, review item id): the status cache
+        # the department(s): LINAC-A..C, and for a network D02-LINAC-A ... per department
+        self.machines, self.machine_order = {}, []
+        for d in range(args.departments):
+            for m in MACHINE_ORDER:
+                name = m if d == 0 else "D%02d-%s" % (d + 1, m)
+                self.machines[name] = MACHINES[m]
+                self.machine_order.append(name)
 
     # ---- set-up through fxledger's commands ---------------------------------
 
     def fx(self, *args, user="admin"):
-        env = dict(os.environ, FXLEDGER_DB=self.db, FXLEDGER_USER=user,
-                   FXLEDGER_NOW=ts(self.setup_now), NO_COLOR="1")
-        r = subprocess.run([self.bin] + [str(x) for x in args], capture_output=True, text=True,
-                           env=env)
+        r = self.fxl.run(*args, user=user)
         if r.returncode != 0:
             sys.exit("gen_department: fxledger %s failed (%d): %s%s" % (
                 " ".join(map(str, args)), r.returncode, r.stdout, r.stderr))
         return r
 
     def setup(self):
+        """init and the first admin's password, users (each logs in once and
+        sets an own password: the physicists' signing keys), machines and
+        levels, all through the program (tests/cli/fxlcli.py passes each
+        password on a pipe, --password-fd, and keeps one session per user)."""
         os.makedirs(os.path.dirname(self.db), exist_ok=True)
         for suffix in ("", "-wal", "-shm", ".targets.json"):
             if os.path.exists(self.db + suffix):
                 os.remove(self.db + suffix)
+        self.fxl = Fxl(now=ts(self.setup_now), user="admin", bin=self.bin)
+        self.fxl.db = self.db
         self.fx("init", "--department", DEPARTMENT, "--admin", "admin", "--admin-name",
                 "Adrian Admin (invented)", "--timezone", TIMEZONE)
         for login, name in PHYSICISTS:
@@ -243,9 +321,14 @@ class Gen:
             self.fx("user", "add", login, "--name", name, "--role", "therapist")
         for login, name in AUDITORS:
             self.fx("user", "add", login, "--name", name, "--role", "auditor")
-        for m in MACHINE_ORDER:
+        # the users the benchmark works as, and every physicist (they sign)
+        for login in [p for p, _ in PHYSICISTS] + ["ther01", "audit1"]:
+            r = self.fxl.login(login)
+            if r.returncode != 0:
+                sys.exit("gen_department: login of %s failed: %s" % (login, r.stderr))
+        for m in self.machine_order:
             self.fx("machine", "add", m, user="phys1")
-            for beam, energy, dmax in MACHINES[m]:
+            for beam, energy, dmax in self.machines[m]:
                 self.fx("machine", "beam", beam, "--machine", m, "--modality", "photon",
                         "--energy", energy, "--dmax", dmax, user="phys1")
         for name, tol, act, floor, scope in LEVELS:
@@ -263,6 +346,7 @@ class Gen:
         self.c = c
         q = lambda sql: c.execute(sql).fetchall()
         self.users = {login: uid for uid, login in q("SELECT id, login FROM users")}
+        self.names = {login: name for login, name in q("SELECT login, full_name FROM users")}
         self.beams = {(m, b): (bid, energy) for bid, m, b, energy in q(
             "SELECT b.id, mc.name, b.name, b.energy FROM beams b JOIN machines mc ON mc.id = b.machine_id")}
         self.sets = {name: (sid, tol, act, floor) for sid, name, tol, act, floor in q(
@@ -271,17 +355,64 @@ class Gen:
         self.audit = Audit(last[0], last[1])
         self.next_id = {}
         for t in ("detectors", "detector_status", "correction_tables", "calibrations", "patients",
-                  "plans", "fields", "fractions", "measurements", "review_items", "review_events"):
+                  "plans", "fields", "fractions", "measurements", "review_items", "review_events",
+                  "signatures"):
             self.next_id[t] = q("SELECT coalesce(max(id), 0) + 1 FROM %s" % t)[0][0]
+        # each signer's key, opened with their password as a signing act does
+        self.sodium = Sodium()
+        self.keys = {}
+        for login, key_id, salt, nonce, sealed, ops, mem in q(
+                "SELECT u.login, s.key_id, s.salt, s.nonce, s.sealed, s.opslimit, s.memlimit "
+                "FROM signing_secrets s JOIN users u ON u.id = s.user_id"):
+            if login in dict(PHYSICISTS):
+                sk = self.sodium.open_secret(self.fxl.passwords[login], bytes.fromhex(salt),
+                                             bytes.fromhex(nonce), bytes.fromhex(sealed), ops, mem)
+                self.keys[login] = (key_id, sk)
+        missing = [p for p, _ in PHYSICISTS if p not in self.keys]
+        if missing:
+            sys.exit("gen_department: no signing key for %s" % ", ".join(missing))
+        # canonical row content for the seals, as src/store/seal.c builds it
+        self.canon_sql = {}
+        for t in SEALED:
+            cols = [r[0] for r in q("SELECT name FROM pragma_table_info('%s') ORDER BY cid" % t)]
+            if not cols:
+                continue
+            expr = ", ".join("'%s', %s" % (col, "?" if (t == "review_items" and col == "status")
+                                               else 't."%s"' % col) for col in cols)
+            tail = (", 'points', (SELECT json_group_array(json_array(p.x, p.factor)) FROM "
+                    "(SELECT x, factor FROM main.correction_points WHERE table_id = t.id ORDER BY x) p)))"
+                    if t == "correction_tables" else "))")
+            self.canon_sql[t] = "json_patch('{}', json_object(" + expr + tail
 
     def new_id(self, table):
         i = self.next_id[table]
         self.next_id[table] = i + 1
         return i
 
-    def put(self, table, row):
+    def put(self, table, row, status=None):
         self.rows.setdefault(table, []).append(row)
         self.counts[table] = self.counts.get(table, 0) + 1
+        if table == "correction_points":
+            self.audit.mark("correction_tables", row[0])
+        elif table == "review_items":
+            self.audit.mark(table, row[0], row[3])
+        elif table == "review_events":
+            self.audit.mark(table, row[0][0])
+        elif table in SEALED:
+            self.audit.mark(table, row[0])
+
+    def sign(self, entity, row_id, login, at, meaning):
+        """A signing act on a row written just before: the signatures row
+        and its audit row 'sign' (src/store/signature.c); the content hash
+        and the Ed25519 signature are made at flush, over the stored row."""
+        sid = self.new_id("signatures")
+        key_id, _ = self.keys[login]
+        content = {"entity": entity, "entity_id": row_id, "login": login,
+                   "printed_name": self.names[login], "meaning": meaning,
+                   "content_sha256": None, "key": key_id}
+        self.counts["signatures"] = self.counts.get("signatures", 0) + 1
+        self.audit.add(at, login, "sign", "signatures", sid, content,
+                       sign=(sid, entity, row_id, login, at, meaning))
 
     INSERT = {
         "detectors": "INSERT INTO detectors (id, serial, label, kind, reading_unit, sensitivity, "
@@ -325,18 +456,110 @@ class Gen:
         c = self.c
         c.execute("BEGIN")
         for t in self.ORDER:
-            if self.rows.get(t):
+            if not self.rows.get(t):
+                continue
+            if t == "review_events":
+                # each event, then the status change it leads to: the guard
+                # review_items_status_by_event (sql/011) accepts a status
+                # only as the newest review event of the database says
+                for row, status in self.rows[t]:
+                    c.execute(self.INSERT[t], row)
+                    if status:
+                        c.execute("UPDATE review_items SET status = ? WHERE id = ?", (status, row[1]))
+            else:
                 c.executemany(self.INSERT[t], self.rows[t])
-                self.rows[t] = []
-        if self.status_updates:
-            c.executemany("UPDATE review_items SET status = ? WHERE id = ?", self.status_updates)
-            self.status_updates = []
+            self.rows[t] = []
         if self.audit.rows:
-            c.executemany("INSERT INTO audit_log (id, at, user, action, entity, entity_id, content, "
-                          "prev_hash, hash) VALUES (?,?,?,?,?,?,?,?,?)", self.audit.rows)
-            self.counts["audit_log"] = self.counts.get("audit_log", 0) + len(self.audit.rows)
-            self.audit.rows = []
+            self.flush_audit()
         c.execute("COMMIT")
+
+    def canon(self, tbl, row_id, status, cache):
+        """The canonical content of a row as fxledger seals it (seal.c)."""
+        if tbl == "review_items":
+            r = self.c.execute("SELECT %s FROM main.review_items t WHERE t.rowid = ?"
+                               % self.canon_sql[tbl], (status, row_id)).fetchone()
+            return r[0]
+        if (tbl, row_id) not in cache:
+            ids = sorted(i for (t, i) in self.pending_refs if t == tbl)
+            for rid, text in self.c.execute(
+                    "SELECT t.rowid, %s FROM main.\"%s\" t WHERE t.rowid BETWEEN ? AND ?"
+                    % (self.canon_sql[tbl], tbl), (ids[0], ids[-1])):
+                cache[(tbl, rid)] = text
+        return cache[(tbl, row_id)]
+
+    def signed_content_sha(self, entity, row_id):
+        """SHA-256 of a signed row's canonical content (signature.c)."""
+        out = [b"fxledger row v1\n", entity.encode(), b"\n"]
+
+        def rows(sql, arg):
+            cur = self.c.execute(sql, (arg,))
+            names = [d[0] for d in cur.description]
+            for row in cur:
+                for name, v in zip(names, row):
+                    if v is None:
+                        continue
+                    if isinstance(v, int):
+                        out.append(b"%s=i:%d\n" % (name.encode(), v))
+                    elif isinstance(v, float):
+                        out.append(b"%s=r:%s\n" % (name.encode(), (b"%.17g" % v)))
+                    elif isinstance(v, bytes):
+                        out.append(b"%s=b%d:%s\n" % (name.encode(), len(v), v))
+                    else:
+                        e = v.encode("utf-8")
+                        out.append(b"%s=t%d:%s\n" % (name.encode(), len(e), e))
+                out.append(b"\n")
+        rows("SELECT * FROM %s WHERE id = ?" % entity, row_id)
+        child = SIGNED_CHILD[entity]
+        if child:
+            out += [child[0].encode(), b"\n"]
+            rows("SELECT * FROM %s WHERE %s = ? ORDER BY %s" % child, row_id)
+        return hashlib.sha256(b"".join(out)).hexdigest()
+
+    def flush_audit(self):
+        """Hashes the pending audit rows in order: signatures made over the
+        stored rows, each row's seals (SHA-256 of 'tbl\nrowid\ncanonical'),
+        the seal digest and the chain (docs/audit.md)."""
+        self.pending_refs = {k for e in self.audit.rows for k in e["seals"]}
+        cache, seals, sigs, out = {}, [], [], []
+        prev = self.audit.prev
+        for e in self.audit.rows:
+            if e["sign"]:
+                sid, entity, row_id, login, at, meaning = e["sign"]
+                sha = self.signed_content_sha(entity, row_id)
+                e["content"]["content_sha256"] = sha
+                key_id, sk = self.keys[login]
+                msg = ("fxledger signature v1\n%s\n%d\n%s\n%s\n%s\n%s\n%s" % (
+                    entity, row_id, login, self.names[login], at, meaning, sha)).encode("utf-8")
+                sigs.append((sid, entity, row_id, self.users[login], key_id, login,
+                             self.names[login], at, meaning, sha, self.sodium.sign(sk, msg)))
+            lines = []
+            for (tbl, row_id), status in sorted(e["seals"].items()):
+                text = self.canon(tbl, row_id, status, cache)
+                h = hashlib.sha256(("%s\n%d\n%s" % (tbl, row_id, text)).encode("utf-8")).hexdigest()
+                seals.append((tbl, row_id, e["id"], h))
+                lines.append("%s %d %s\n" % (tbl, row_id, h))
+            seal = hashlib.sha256("".join(lines).encode()).hexdigest() if lines else None
+            text = json.dumps(e["content"], separators=(",", ":"), ensure_ascii=False)
+            eid = "" if not e["entity_id"] else str(e["entity_id"])
+            canon = "%s\n%d\n%s\n%s\n%s\n%s\n%s\n%s" % (prev, e["id"], e["at"], e["user"],
+                                                        e["action"], e["entity"], eid, text)
+            if seal:
+                canon += "\nseal:" + seal
+            h = hashlib.sha256(canon.encode("utf-8")).hexdigest()
+            out.append((e["id"], e["at"], e["user"], e["action"], e["entity"], e["entity_id"] or None,
+                        text, prev, h, seal))
+            prev = h
+        c = self.c
+        c.executemany("INSERT INTO signatures (id, entity, entity_id, user_id, key_id, login, "
+                      "printed_name, signed_at, meaning, content_sha256, signature) "
+                      "VALUES (?,?,?,?,?,?,?,?,?,?,?)", sigs)
+        c.executemany("INSERT INTO row_seals (tbl, row_id, audit_id, sha256) VALUES (?,?,?,?)", seals)
+        c.executemany("INSERT INTO audit_log (id, at, user, action, entity, entity_id, content, "
+                      "prev_hash, hash, seal) VALUES (?,?,?,?,?,?,?,?,?,?)", out)
+        self.counts["audit_log"] = self.counts.get("audit_log", 0) + len(out)
+        self.counts["row_seals"] = self.counts.get("row_seals", 0) + len(seals)
+        self.audit.prev = prev
+        self.audit.rows = []
 
     def schedule(self, when, fn, *args):
         self.scheduled.setdefault(when.date(), []).append((when, fn, args))
@@ -355,15 +578,28 @@ class Gen:
     def therapist(self):
         return self.rng.choice(THERAPISTS)[0]
 
+    def generation(self, machine, slot, day):
+        """(generation number, first year, years): a diode is replaced every
+        4 calendar years, except the first diode of LINAC-A, kept in service
+        8 years (2018 to 2025 at the default end): the benchmark logs with it
+        to see that logging does not grow with a detector's age."""
+        if machine == self.machine_order[0] and slot == 0:
+            g = (day.year - LONG_OFFSET) // LONG_YEARS
+            return g, g * LONG_YEARS + LONG_OFFSET, LONG_YEARS
+        g = day.year // GENERATION_YEARS
+        return g, g * GENERATION_YEARS, GENERATION_YEARS
+
     def add_detector(self, machine, slot, gen, when):
         rng = self.rng
-        serial = "SYN-%s%d-%d" % (machine[-1], slot + 1, gen * GENERATION_YEARS)
+        _, first, years = gen
+        prefix = machine[:3] if machine.startswith("D") and machine[3] == "-" else ""
+        serial = "SYN-%s%s%d-%d" % (prefix, machine[-1], slot + 1, first)
         did = self.new_id("detectors")
         at = ts(when)
         ph = self.physicist()
         sens = round(rng.uniform(0.085, 0.095), 4)
-        label = "Synthetic diode %s%d, generation of %d-%d" % (
-            machine[-1], slot + 1, gen * GENERATION_YEARS, gen * GENERATION_YEARS + GENERATION_YEARS - 1)
+        label = "Synthetic diode %s%s%d, generation of %d-%d" % (
+            prefix, machine[-1], slot + 1, first, first + years - 1)
         self.put("detectors", (did, serial, label, "photon_diode", "nC", sens, A_PER_C, None,
                                DOSE_LIMIT_CGY, at))
         self.audit.add(at, ph, "create", "detectors", did, {
@@ -372,7 +608,7 @@ class Gen:
             "dose_limit_cgy": num(DOSE_LIMIT_CGY), "status": "in_service"})
         det = {"id": did, "serial": serial, "sens": sens, "machine": machine, "born": when,
                "tables": {}, "calib": {}, "calib_hist": {}, "due_item": {}}
-        for beam, _, _ in MACHINES[machine]:
+        for beam, _, _ in self.machines[machine]:
             bid = self.beams[(machine, beam)][0]
             tables = {}
             for p in PARAMS:
@@ -389,6 +625,7 @@ class Gen:
                     "serial": serial, "machine": machine, "beam": beam, "parameter": p,
                     "effective_from": at, "source": source,
                     "points": [[num(x), num(f)] for x, f in pts]})
+                self.sign("correction_tables", tid, ph, at, "correction table loaded")
             det["tables"][beam] = tables
         return det
 
@@ -399,7 +636,7 @@ class Gen:
         ph = self.physicist()
         at = ts(when)
         years_in_use = (when - det["born"]).days / 365.25
-        for beam, _, _ in MACHINES[det["machine"]]:
+        for beam, _, _ in self.machines[det["machine"]]:
             bid = self.beams[(det["machine"], beam)][0]
             for point in ("entrance", "exit"):
                 # sensitivity falls slowly with accumulated dose (invented)
@@ -421,6 +658,7 @@ class Gen:
                     "chamber_dose_cgy": 100, "readings": readings, "reading_mean": mean,
                     "reading_sd": sd, "factor_cgy_per_unit": factor, "temp_c": num(T_CAL),
                     "ssd_cm": 100, "field_size_cm": 10})
+                self.sign("calibrations", cid, ph, at, "calibration confirmed")
                 key = (beam, point)
                 old = det["calib"].get(key)
                 det["calib"][key] = {"id": cid, "factor": factor, "valid_until": valid,
@@ -471,14 +709,17 @@ class Gen:
 
     def write_event(self, item, kind, at, user, disposition, comment):
         eid = self.new_id("review_events")
-        self.put("review_events", (eid, item["id"], kind, disposition, comment, self.users[user], at))
+        before = item["status"]
+        after = {"acknowledge": "acknowledged", "close": "closed", "reopen": "open",
+                 "open": "open"}.get(kind, before)
+        change = after if (after != before and kind != "open") else None
+        self.put("review_events", ((eid, item["id"], kind, disposition, comment, self.users[user], at),
+                                   change))
         if kind == "open":
             return
-        before = item["status"]
-        after = {"acknowledge": "acknowledged", "close": "closed", "reopen": "open"}.get(kind, before)
         item["status"] = after
-        if after != before:
-            self.status_updates.append((after, item["id"]))
+        if change:
+            self.audit.mark("review_items", item["id"], after)
         content = {"item_id": item["id"], "kind": kind}
         if disposition:
             content["disposition"] = disposition
@@ -487,13 +728,17 @@ class Gen:
         content["status_before"] = before
         content["status_after"] = after
         self.audit.add(at, user, kind, "review_events", eid, content)
+        if kind == "close":
+            self.sign("review_events", eid, user, at, "review closed: %s" % disposition)
+        elif kind == "reopen":
+            self.sign("review_events", eid, user, at, "review reopened")
 
     # ---- patients, plans, fractions -------------------------------------------
 
     def new_course(self, chair, day):
         rng = self.rng
-        machine = MACHINE_ORDER[chair % 3]
-        slot = (chair // 3) % SLOTS_PER_MACHINE
+        machine = self.machine_order[chair % len(self.machine_order)]
+        slot = (chair // len(self.machine_order)) % SLOTS_PER_MACHINE
         r, acc = rng.random(), 0.0
         for site in SITES:
             acc += site[2]
@@ -521,7 +766,7 @@ class Gen:
         self.audit.add(at, ph, "import", "plans", plan_id, {
             "patient_mrn": mrn, "label": label, "site": name, "technique": technique,
             "fractions": n_fr, "dose_per_fraction_cgy": num(dpf), "field_rows": len(fields)})
-        beam = "6X" if rng.random() < 0.7 else MACHINES[machine][1][0]
+        beam = "6X" if rng.random() < 0.7 else self.machines[machine][1][0]
         flist = []
         for fname, gantry, wedge, incid, x, y, ssd, is_exit in fields:
             fid = self.new_id("fields")
@@ -545,6 +790,7 @@ class Gen:
             flist.append({"id": fid, "name": fname, "point": point, "eq": eq, "ssd": ssd,
                           "wedge": float(wedge), "angle": float(incid), "expected": expected,
                           "prev": None, "cf": {}})
+        self.sign("plans", plan_id, ph, at, "plan imported")
         site_set = "breast-entrance" if name == "Breast" else "photon-entrance"
         return {"patient": pid, "mrn": mrn, "plan": plan_id, "label": label, "site": name,
                 "machine": machine, "slot": slot, "beam": beam, "fractions": n_fr, "done": 0,
@@ -720,18 +966,18 @@ class Gen:
         dets = {}        # (machine, slot) -> detector
         next_cal = {}
         chairs = [None] * self.a.per_day
-        gen_of = lambda d: d.year // GENERATION_YEARS
         for di, day in enumerate(self.days):
             morning = dt.datetime.combine(day, dt.time(7, 0))
-            # detectors: the first, and a new generation every 4 calendar years
-            for m in MACHINE_ORDER:
+            # detectors: the first, and a new generation every 4 (one: 8) calendar years
+            for m in self.machine_order:
                 for s in range(SLOTS_PER_MACHINE):
                     d = dets.get((m, s))
-                    if d is None or d["gen"] != gen_of(day):
+                    gen = self.generation(m, s, day)
+                    if d is None or d["gen"] != gen[0]:
                         if d is not None:
                             self.retire(d, morning + dt.timedelta(minutes=5 * s))
-                        d = self.add_detector(m, s, gen_of(day), morning + dt.timedelta(minutes=5 * s + 1))
-                        d["gen"] = gen_of(day)
+                        d = self.add_detector(m, s, gen, morning + dt.timedelta(minutes=5 * s + 1))
+                        d["gen"] = gen[0]
                         dets[(m, s)] = d
                         next_cal[d["id"]] = day
                     if next_cal[d["id"]] <= day:
@@ -772,13 +1018,13 @@ class Gen:
                  "size_bytes": os.path.getsize(self.db)}
         if self.a.verify:
             tv = time.time()
-            env = dict(os.environ, FXLEDGER_DB=self.db, FXLEDGER_USER="audit1", NO_COLOR="1")
-            r = subprocess.run([self.bin, "verify"], capture_output=True, text=True, env=env)
+            r = self.fxl.run("verify", user="audit1")
             stats["verify_s"] = round(time.time() - tv, 1)
             stats["verify"] = (r.stdout + r.stderr).strip()
             if r.returncode != 0:
                 print(json.dumps(stats, indent=1))
                 sys.exit("gen_department: 'fxledger verify' failed on the synthetic database")
+        self.fxl.close()
         return stats
 
     def write_targets(self, chairs, dets):
@@ -804,7 +1050,9 @@ class Gen:
                 fields.append({"field": "%s:%s" % (f["name"], f["point"]), "detector": det["serial"],
                                "reading": reading, "temp_c": temp})
             out.append({"mrn": c["mrn"], "plan": c["label"], "next_fraction": c["done"] + 1,
-                        "fractions": c["fractions"], "fields": fields})
+                        "fractions": c["fractions"], "fields": fields, "detector": det["serial"],
+                        "detector_since": det["born"].date().isoformat(),
+                        "detector_years": round((self.end - det["born"].date()).days / 365.25, 1)})
         with open(self.db + ".targets.json", "w", encoding="utf-8") as fh:
             json.dump({"comment": "invented benchmark data", "next_day": nxt.isoformat(),
                        "courses": out}, fh, indent=1)
@@ -817,9 +1065,14 @@ def main():
     ap.add_argument("--years", type=int, default=20)
     ap.add_argument("--end", default="2026-01-01", help="first day after the data (YYYY-MM-DD)")
     ap.add_argument("--per-day", type=int, default=40, help="patients measured per working day")
+    ap.add_argument("--departments", type=int, default=1,
+                    help="departments in one database (a network: 3 linacs each; give --per-day "
+                         "40 x N for the same load per department)")
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--verify", action="store_true", help="run 'fxledger verify' on the result")
-    ap.add_argument("--analyze", action="store_true", help="run ANALYZE at the end")
+    ap.add_argument("--analyze", action="store_true",
+                    help="run ANALYZE at the end (verify then names sqlite_stat1 as a table outside "
+                         "the schema)")
     ap.add_argument("--quiet", action="store_true")
     a = ap.parse_args()
     stats = Gen(a).run()

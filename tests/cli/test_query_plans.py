@@ -31,18 +31,37 @@ def string_macros():
     return out
 
 
-def statements(function):
+def function_macros():
+    """One-argument #defines made of string literals and the argument
+    (FXL_SQL_DOSE_COUNTED(m) of src/store/dose_counted.h): name ->
+    (argument name, body tokens)."""
+    out = {}
+    for h in glob.glob(os.path.join(ROOT, "src", "store", "*.h")):
+        text = open(h).read().replace("\\\n", " ")
+        for m in re.finditer(r'^#define\s+(\w+)\((\w+)\)\s+(.*)$', text, re.M):
+            out[m.group(1)] = (m.group(2), re.findall(r'"((?:[^"\\]|\\.)*)"|(\w+)', m.group(3)))
+    return out
+
+
+def expand(name, argument, fmacros):
+    param, body = fmacros[name]
+    return "".join(lit if ident == "" else (argument if ident == param else "")
+                   for lit, ident in body)
+
+
+def statements(function, source=None):
     """Each SQL text prepared (fxl_stmt_prepare, or fxl_stmt_prepare_cached
-    for a statement the connection keeps) in the body of `function`
-    of SOURCE, in order: the concatenated string literals and string
-    macros up to the closing parenthesis."""
-    text = open(SOURCE).read()
+    for a statement the connection keeps) in the body of `function` of
+    `source` (SOURCE by default), in order: the concatenated string literals
+    and string macros up to the closing parenthesis."""
+    source = source or SOURCE
+    text = open(source).read()
     m = re.search(r"^(?:static\s+)?int\s+" + re.escape(function) + r"\s*\(", text, re.M)
     if not m:
-        raise AssertionError("%s not found in %s" % (function, SOURCE))
+        raise AssertionError("%s not found in %s" % (function, source))
     end = text.find("\n}\n", m.end())
     body = text[m.end():end]
-    macros = string_macros()
+    macros, fmacros = string_macros(), function_macros()
     out = []
     for p in re.finditer(r"fxl_stmt_prepare(?:_cached)?\(&\w+,\s*ctx,", body):
         pos, sql = p.end(), []
@@ -53,6 +72,12 @@ def statements(function):
             pos = t.end()
             if t.group(1) is not None:
                 sql.append(t.group(1).encode().decode("unicode_escape"))
+            elif t.group(2) in fmacros:
+                call = re.match(r'\s*\(\s*"([^"]*)"\s*\)', body[pos:])
+                if not call:
+                    raise AssertionError("cannot read the call of %s in %s" % (t.group(2), function))
+                sql.append(expand(t.group(2), call.group(1), fmacros))
+                pos += call.end()
             elif t.group(2):
                 if t.group(2) not in macros:
                     raise AssertionError("unknown macro %s in %s" % (t.group(2), function))
@@ -68,7 +93,8 @@ def has_function(function):
                      re.M) is not None
 
 
-PARAMS = {"fr": 1, "d": 1, "all": 0, "b": 1, "p": "entrance", "since": "", "key": "k"}
+PARAMS = {"fr": 1, "d": 1, "all": 0, "b": 1, "p": "entrance", "since": "", "key": "k",
+          "at": "2026-01-01T00:00:00Z"}
 
 
 class QueryPlanTest(FxlTestCase):
@@ -146,6 +172,28 @@ class QueryPlanTest(FxlTestCase):
         self.assertTrue([ln for ln in plan if re.search(
             r"review_items_by_rule_key \(rule=\? AND rule_key>\? AND rule_key<\?\)", ln)],
             "\n".join(plan))
+        self.assertNoFullScan(plan)
+
+    def test_dose_limit_rule_reads_only_since_the_calibration(self):
+        [sql] = statements("rule_dose_limit")
+        plan = self.plan(sql)
+        # the detector's rows written after its latest calibration
+        self.assertTrue([ln for ln in plan if re.match(
+            r"SEARCH m USING .*INDEX measurements_by_detector\w* \(detector_id=\? AND created_at>\?\)",
+            ln)], "\n".join(plan))
+        self.assertNoFullScan(plan)
+
+    def test_detector_view_reads_only_since_the_calibration(self):
+        """detector show / list: the dose accumulated since the latest
+        calibration comes from the rows after it, not the whole history."""
+        source = os.environ.get("FXL_PLAN_DETECTORS") or os.path.join(ROOT, "src", "store",
+                                                                      "detectors.c")
+        sql = [q for q in statements("load_derived", source) if "sum(" in q]
+        self.assertEqual(len(sql), 1, sql)
+        plan = self.plan(sql[0])
+        self.assertTrue([ln for ln in plan if re.match(
+            r"SEARCH m USING .*INDEX measurements_by_detector\w* \(detector_id=\? AND created_at>\?\)",
+            ln)], "\n".join(plan))
         self.assertNoFullScan(plan)
 
     def test_prefix_range_equals_substr(self):
