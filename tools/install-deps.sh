@@ -7,7 +7,7 @@ PKGS="cmake make gcc g++ pkg-config libsqlite3-dev libcjson-dev libhpdf-dev \
 libcmocka-dev libsodium-dev libdcmtk-dev libutf8proc-dev zlib1g-dev sqlite3 qpdf \
 poppler-utils fonts-dejavu-core python3 python3-pydicom dcmtk tzdata tmux \
 libmicrohttpd-dev chromium chromium-driver python3-selenium man-db \
-lintian dpkg-dev file openssl time"
+lintian dpkg-dev file openssl time python3-fonttools"
 
 missing=""
 for p in $PKGS; do

@@ -58,6 +58,33 @@ typedef struct fxl_record_report {
  * found: see n_problems) or a negative FXL_E code when it could not check. */
 int fxl_record_verify(fxl_ctx *ctx, const char *anchor, fxl_record_report *out);
 
+/* ---- the whole of verify, in one place ---------------------------------- */
+
+#define FXL_VERIFY_MSG_LEN 512
+
+/* What every caller of verify shows (the verify and restore commands, the
+ * backup's check of its copy, the console's page and the API). */
+typedef struct fxl_whole_verify {
+    fxl_verify_report chain;          /* the audit chain, integrity, foreign keys */
+    int chain_rc;                     /* 0, FXL_ECONFLICT (found a mismatch) or why it could not check */
+    char chain_msg[FXL_VERIFY_MSG_LEN];
+    int64_t signatures_checked;
+    int sig_rc;                       /* as chain_rc, for the electronic signatures */
+    char sig_msg[FXL_VERIFY_MSG_LEN];        /* the message naming the first failure */
+    char sig_first_bad[FXL_VERIFY_MSG_LEN];  /* the failing table and row alone */
+    fxl_record_report record;         /* the record proven (a failed check is problem[0]) */
+    int ok;                           /* everything holds */
+} fxl_whole_verify;
+
+/* Runs the three checks of 'fxledger verify' in order - the audit chain
+ * (fxl_audit_verify), the record (fxl_record_verify, with `anchor` or
+ * NULL) and the signatures (fxl_signature_verify) - each whatever the
+ * others found, and collects their findings in *out. Returns 0 when
+ * everything holds, FXL_ECONFLICT when something does not, or the code of
+ * a check that could not run (FXL_EBUSY, FXL_EDB...). Run it inside one
+ * read transaction to check one consistent state. */
+int fxl_verify_whole(fxl_ctx *ctx, const char *anchor, fxl_whole_verify *out);
+
 /* Parses an anchor line; 0 or FXL_EINVAL naming what is wrong. */
 int fxl_anchor_parse(fxl_ctx *ctx, const char *line, int64_t *rows, char at[32], char head[65]);
 

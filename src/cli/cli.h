@@ -90,6 +90,10 @@ int cli_exit_code(int fxl_code);
 /* Prints a JSON value to stdout (formatted) and frees it. */
 int cli_print_json(cJSON *value);
 
+/* The lines 'verify' and 'restore' print when every check holds. */
+struct fxl_whole_verify;
+void cli_print_verified(const struct fxl_whole_verify *v);
+
 /* The caution shown under every verdict table and report. */
 void cli_print_caveat(FILE *out);
 

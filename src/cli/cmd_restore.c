@@ -10,14 +10,13 @@ int cmd_restore(cli_env *env, int argc, char **argv)
     cli_opt opts[] = {{"anchor", "LINE", "an anchor line kept elsewhere (verify --anchor): the copy must hold its rows unchanged", NULL},
                       {NULL, NULL, NULL, NULL}};
     fxl_ctx *copy = NULL;
-    fxl_verify_report vr;
-    fxl_signature_report sr;
-    fxl_record_report rr;
+    fxl_whole_verify v;
+    const fxl_record_report *rr = &v.record;
     const char *given_anchor;
     fxl_holdings h;
     const char *pos[2];
-    char chain_msg[512] = "", sig_msg[512] = "", anchor[FXL_ANCHOR_LEN] = "";
-    int npos, rc, vrc, src, rrc, i, pages = 0, schema_backup = 0, code;
+    char anchor[FXL_ANCHOR_LEN] = "";
+    int npos, rc, i, pages = 0, schema_backup = 0, code;
 
     rc = cli_parse(env, "restore BACKUP NEWFILE",
                    "The restore drill: copies the backup file BACKUP into NEWFILE (which must not\n"
@@ -54,14 +53,7 @@ int cmd_restore(cli_env *env, int argc, char **argv)
             return CLI_EXIT_USAGE;
         }
     }
-    if ((vrc = fxl_audit_verify(copy, &vr)) != 0)
-        snprintf(chain_msg, sizeof chain_msg, "%s", fxl_errmsg(copy));
-    if ((rrc = fxl_record_verify(copy, given_anchor, &rr)) != 0) {
-        snprintf(rr.problem[0], sizeof rr.problem[0], "record check failed: %s", fxl_errmsg(copy));
-        rr.n_problems = 1;
-    }
-    if ((src = fxl_signature_verify(copy, &sr)) != 0)
-        snprintf(sig_msg, sizeof sig_msg, "%s", src == FXL_ECONFLICT ? sr.first_bad : fxl_errmsg(copy));
+    fxl_verify_whole(copy, given_anchor, &v);   /* v.ok and each check's code tell */
     if ((rc = fxl_audit_anchor(copy, anchor, sizeof anchor)) == 0)
         rc = fxl_holdings_get(copy, &h);
     if (rc != 0) {
@@ -71,7 +63,7 @@ int cmd_restore(cli_env *env, int argc, char **argv)
         return cli_exit_code(rc);
     }
     fxl_close(copy);
-    code = vrc == 0 && src == 0 && rr.n_problems == 0 ? CLI_EXIT_OK : CLI_EXIT_DATA;
+    code = v.ok ? CLI_EXIT_OK : CLI_EXIT_DATA;
     if (code != CLI_EXIT_OK)
         fxl_restore_discard(pos[1]);
 
@@ -84,27 +76,27 @@ int cmd_restore(cli_env *env, int argc, char **argv)
         cJSON_AddNumberToObject(o, "pages", pages);
         cJSON_AddNumberToObject(o, "schema_backup", schema_backup);
         cJSON_AddNumberToObject(o, "schema", h.schema);
-        cJSON_AddNumberToObject(o, "rows_checked", (double)vr.rows_checked);
-        if (vr.first_bad_row)
-            cJSON_AddNumberToObject(o, "first_bad_row", (double)vr.first_bad_row);
-        cJSON_AddBoolToObject(o, "chain_ok", vrc == 0);
-        cJSON_AddBoolToObject(o, "integrity_ok", vr.integrity_ok);
-        cJSON_AddBoolToObject(o, "foreign_keys_ok", vr.foreign_keys_ok);
-        cJSON_AddNumberToObject(o, "signatures_checked", (double)sr.checked);
-        cJSON_AddBoolToObject(o, "signatures_ok", src == 0);
-        if (vrc != 0)
-            cJSON_AddStringToObject(o, "chain_error", chain_msg);
-        if (src != 0)
-            cJSON_AddStringToObject(o, "signature_error", sig_msg);
-        cJSON_AddNumberToObject(o, "record_rows_checked", (double)rr.rows_checked);
-        cJSON_AddNumberToObject(o, "seals_checked", (double)rr.seals_checked);
-        cJSON_AddNumberToObject(o, "schema_objects_checked", (double)rr.objects_checked);
-        for (i = 0; i < rr.n_problems; i++)
-            cJSON_AddItemToArray(probs, cJSON_CreateString(rr.problem[i]));
+        cJSON_AddNumberToObject(o, "rows_checked", (double)v.chain.rows_checked);
+        if (v.chain.first_bad_row)
+            cJSON_AddNumberToObject(o, "first_bad_row", (double)v.chain.first_bad_row);
+        cJSON_AddBoolToObject(o, "chain_ok", v.chain_rc == 0);
+        cJSON_AddBoolToObject(o, "integrity_ok", v.chain.integrity_ok);
+        cJSON_AddBoolToObject(o, "foreign_keys_ok", v.chain.foreign_keys_ok);
+        cJSON_AddNumberToObject(o, "signatures_checked", (double)v.signatures_checked);
+        cJSON_AddBoolToObject(o, "signatures_ok", v.sig_rc == 0);
+        if (v.chain_rc != 0)
+            cJSON_AddStringToObject(o, "chain_error", v.chain_msg);
+        if (v.sig_rc != 0)
+            cJSON_AddStringToObject(o, "signature_error", v.sig_first_bad);
+        cJSON_AddNumberToObject(o, "record_rows_checked", (double)rr->rows_checked);
+        cJSON_AddNumberToObject(o, "seals_checked", (double)rr->seals_checked);
+        cJSON_AddNumberToObject(o, "schema_objects_checked", (double)rr->objects_checked);
+        for (i = 0; i < rr->n_problems; i++)
+            cJSON_AddItemToArray(probs, cJSON_CreateString(rr->problem[i]));
         cJSON_AddItemToObject(o, "record_problems", probs);
-        cJSON_AddBoolToObject(o, "anchor_given", rr.anchor_given);
-        if (rr.anchor_given)
-            cJSON_AddNumberToObject(o, "anchor_rows", (double)rr.anchor_rows);
+        cJSON_AddBoolToObject(o, "anchor_given", rr->anchor_given);
+        if (rr->anchor_given)
+            cJSON_AddNumberToObject(o, "anchor_rows", (double)rr->anchor_rows);
         cJSON_AddStringToObject(o, "anchor", anchor);
         cJSON_AddStringToObject(hj, "department", h.department);
         cJSON_AddStringToObject(hj, "first_audit_at", h.first_audit_at);
@@ -126,31 +118,23 @@ int cmd_restore(cli_env *env, int argc, char **argv)
         return code;
     }
     if (code != CLI_EXIT_OK) {
-        if (vrc != 0)
-            cli_error("restored copy failed verification: %s", chain_msg);
-        if (src != 0)
-            cli_error("restored copy failed the signature check: %s", sig_msg);
-        for (i = 0; i < rr.n_problems; i++)
-            cli_error("restored copy failed verification: %s", rr.problem[i]);
+        if (v.chain_rc != 0)
+            cli_error("restored copy failed verification: %s", v.chain_msg);
+        if (v.sig_rc != 0)
+            cli_error("restored copy failed the signature check: %s", v.sig_first_bad);
+        for (i = 0; i < rr->n_problems; i++)
+            cli_error("restored copy failed verification: %s", rr->problem[i]);
         cli_error("the copy '%s' was removed; the backup '%s' is unchanged: %s", pos[1], pos[0],
-                  given_anchor && vrc == 0 && src == 0
+                  given_anchor && v.chain_rc == 0 && v.sig_rc == 0
                       ? "check that the anchor was taken before this backup, else try an older backup"
                       : "try an older backup");
         return code;
     }
     printf("restored %s into %s: %d pages, schema %d%s\n", pos[0], pos[1], pages, h.schema,
            schema_backup < h.schema ? " (upgraded from the backup's older schema)" : "");
-    printf("audit chain intact: %lld rows checked; integrity and foreign-key checks passed; "
-           "%lld signature%s verified\n",
-           (long long)vr.rows_checked, (long long)sr.checked, sr.checked == 1 ? "" : "s");
-    printf("record proven: schema and %lld objects as the migrations create them; %lld rows match "
-           "their seals or audit rows; %lld seals match the chain\n",
-           (long long)rr.objects_checked, (long long)rr.rows_checked, (long long)rr.seals_checked);
-    if (rr.anchor_given)
-        printf("anchor holds: audit rows 1 to %lld are those the given anchor names\n",
-               (long long)rr.anchor_rows);
+    cli_print_verified(&v);
     printf("%s\n", anchor);
-    if (!rr.anchor_given)
+    if (!rr->anchor_given)
         printf("  check it against the anchor line the auditor keeps: fxledger restore --anchor LINE ...\n");
     printf("holds: department '%s'; audit trail %s to %s (UTC)\n", h.department,
            h.first_audit_at[0] ? h.first_audit_at : "-", h.last_audit_at[0] ? h.last_audit_at : "-");

@@ -9,16 +9,30 @@
 #include "fxl/audit.h"
 #include "fxl/auth.h"
 
+void cli_print_verified(const fxl_whole_verify *v)
+{
+    const fxl_record_report *rr = &v->record;
+
+    printf("audit chain intact: %lld rows checked; integrity and foreign-key checks passed; "
+           "%lld signature%s verified\n",
+           (long long)v->chain.rows_checked, (long long)v->signatures_checked,
+           v->signatures_checked == 1 ? "" : "s");
+    printf("record proven: schema and %lld objects as the migrations create them; %lld rows match "
+           "their seals or audit rows; %lld seals match the chain\n",
+           (long long)rr->objects_checked, (long long)rr->rows_checked, (long long)rr->seals_checked);
+    if (rr->anchor_given)
+        printf("anchor holds: audit rows 1 to %lld are those the anchor names\n", (long long)rr->anchor_rows);
+}
+
 int cmd_verify(cli_env *env, int argc, char **argv)
 {
     cli_opt opts[] = {{"anchor", NULL, "print the anchor line of the verified record (no LINE), or check the record against LINE", NULL},
                       {NULL, NULL, NULL, NULL}};
-    fxl_verify_report r;
-    fxl_signature_report sr;
-    fxl_record_report rr;
+    fxl_whole_verify v;
+    const fxl_record_report *rr = &v.record;
     const char *pos[1] = {NULL}, *anchor = NULL;
-    char chain_msg[512] = "", line[FXL_ANCHOR_LEN] = "";
-    int npos, rc, src, rrc, i, ok;
+    char line[FXL_ANCHOR_LEN] = "";
+    int npos, rc, i;
 
     rc = cli_parse(env, "verify",
                    "Recomputes the SHA-256 hash chain of the audit log from its first row, runs\n"
@@ -53,77 +67,60 @@ int cmd_verify(cli_env *env, int argc, char **argv)
             return CLI_EXIT_USAGE;
         }
     }
-    rc = fxl_audit_verify(env->ctx, &r);
-    if (rc != 0)
-        snprintf(chain_msg, sizeof chain_msg, "%s", fxl_errmsg(env->ctx));
-    rrc = fxl_record_verify(env->ctx, anchor, &rr);
-    if (rrc != 0) {
-        snprintf(rr.problem[0], sizeof rr.problem[0], "record check failed: %s", fxl_errmsg(env->ctx));
-        rr.n_problems = 1;
-    }
-    src = fxl_signature_verify(env->ctx, &sr);
-    ok = rc == 0 && src == 0 && rr.n_problems == 0;
-    if (ok && cli_get(opts, "anchor") && !anchor && fxl_audit_anchor(env->ctx, line, sizeof line) != 0)
+    fxl_verify_whole(env->ctx, anchor, &v);   /* v.ok and each check's code tell */
+    if (v.ok && cli_get(opts, "anchor") && !anchor && fxl_audit_anchor(env->ctx, line, sizeof line) != 0)
         return cli_fail(env, FXL_EDB);
     if (env->json) {
         cJSON *o = cJSON_CreateObject();
         cJSON *probs = cJSON_CreateArray();
-        cJSON_AddBoolToObject(o, "ok", ok);
-        cJSON_AddNumberToObject(o, "rows_checked", (double)r.rows_checked);
-        if (r.first_bad_row)
-            cJSON_AddNumberToObject(o, "first_bad_row", (double)r.first_bad_row);
-        cJSON_AddBoolToObject(o, "integrity_ok", r.integrity_ok);
-        cJSON_AddBoolToObject(o, "foreign_keys_ok", r.foreign_keys_ok);
-        cJSON_AddNumberToObject(o, "signatures_checked", (double)sr.checked);
-        cJSON_AddBoolToObject(o, "signatures_ok", src == 0);
-        cJSON_AddNumberToObject(o, "record_rows_checked", (double)rr.rows_checked);
-        cJSON_AddNumberToObject(o, "seals_checked", (double)rr.seals_checked);
-        cJSON_AddNumberToObject(o, "schema_objects_checked", (double)rr.objects_checked);
-        if (rr.anchor_given)
-            cJSON_AddNumberToObject(o, "anchor_rows", (double)rr.anchor_rows);
+        cJSON_AddBoolToObject(o, "ok", v.ok);
+        cJSON_AddNumberToObject(o, "rows_checked", (double)v.chain.rows_checked);
+        if (v.chain.first_bad_row)
+            cJSON_AddNumberToObject(o, "first_bad_row", (double)v.chain.first_bad_row);
+        cJSON_AddBoolToObject(o, "integrity_ok", v.chain.integrity_ok);
+        cJSON_AddBoolToObject(o, "foreign_keys_ok", v.chain.foreign_keys_ok);
+        cJSON_AddNumberToObject(o, "signatures_checked", (double)v.signatures_checked);
+        cJSON_AddBoolToObject(o, "signatures_ok", v.sig_rc == 0);
+        cJSON_AddNumberToObject(o, "record_rows_checked", (double)rr->rows_checked);
+        cJSON_AddNumberToObject(o, "seals_checked", (double)rr->seals_checked);
+        cJSON_AddNumberToObject(o, "schema_objects_checked", (double)rr->objects_checked);
+        if (rr->anchor_given)
+            cJSON_AddNumberToObject(o, "anchor_rows", (double)rr->anchor_rows);
         if (line[0])
             cJSON_AddStringToObject(o, "anchor", line);
-        for (i = 0; i < rr.n_problems; i++)
-            cJSON_AddItemToArray(probs, cJSON_CreateString(rr.problem[i]));
+        for (i = 0; i < rr->n_problems; i++)
+            cJSON_AddItemToArray(probs, cJSON_CreateString(rr->problem[i]));
         cJSON_AddItemToObject(o, "record_problems", probs);
-        if (src != 0)
-            cJSON_AddStringToObject(o, "signature_error", src == FXL_ECONFLICT ? sr.first_bad : fxl_errmsg(env->ctx));
-        if (rc != 0)
-            cJSON_AddStringToObject(o, "error", chain_msg);
-        else if (src != 0)
-            cJSON_AddStringToObject(o, "error", fxl_errmsg(env->ctx));
-        else if (rr.n_problems)
-            cJSON_AddStringToObject(o, "error", rr.problem[0]);
+        if (v.sig_rc != 0)
+            cJSON_AddStringToObject(o, "signature_error", v.sig_first_bad);
+        if (v.chain_rc != 0)
+            cJSON_AddStringToObject(o, "error", v.chain_msg);
+        else if (v.sig_rc != 0)
+            cJSON_AddStringToObject(o, "error", v.sig_msg);
+        else if (rr->n_problems)
+            cJSON_AddStringToObject(o, "error", rr->problem[0]);
         cli_print_json(o);
-        return ok ? CLI_EXIT_OK : CLI_EXIT_DATA;
+        return v.ok ? CLI_EXIT_OK : CLI_EXIT_DATA;
     }
-    if (!ok) {
+    if (!v.ok) {
         /* every kind of failure on its own line, each naming its first row */
-        if (rc != 0)
-            cli_error("verification failed: %s", chain_msg);
-        if (src != 0 && rc != 0)
-            cli_error("signature check failed: %s", fxl_errmsg(env->ctx));
-        else if (src != 0)
-            cli_error("verification failed: %s", fxl_errmsg(env->ctx));
-        for (i = 0; i < rr.n_problems; i++)
-            cli_error("verification failed: %s", rr.problem[i]);
-        if (rc != 0 && rc != FXL_ECONFLICT)
-            return cli_exit_code(rc);
-        if (src != 0 && src != FXL_ECONFLICT)
-            return cli_exit_code(src);
+        if (v.chain_rc != 0)
+            cli_error("verification failed: %s", v.chain_msg);
+        if (v.sig_rc != 0)
+            cli_error("%s: %s", v.chain_rc != 0 ? "signature check failed" : "verification failed",
+                      v.sig_msg);
+        for (i = 0; i < rr->n_problems; i++)
+            cli_error("verification failed: %s", rr->problem[i]);
+        if (v.chain_rc != 0 && v.chain_rc != FXL_ECONFLICT)
+            return cli_exit_code(v.chain_rc);
+        if (v.sig_rc != 0 && v.sig_rc != FXL_ECONFLICT)
+            return cli_exit_code(v.sig_rc);
         return CLI_EXIT_DATA;
     }
     if (line[0]) {
         printf("%s\n", line);
         return CLI_EXIT_OK;
     }
-    printf("audit chain intact: %lld rows checked; integrity and foreign-key checks passed; "
-           "%lld signature%s verified\n",
-           (long long)r.rows_checked, (long long)sr.checked, sr.checked == 1 ? "" : "s");
-    printf("record proven: schema and %lld objects as the migrations create them; %lld rows match "
-           "their seals or audit rows; %lld seals match the chain\n",
-           (long long)rr.objects_checked, (long long)rr.rows_checked, (long long)rr.seals_checked);
-    if (rr.anchor_given)
-        printf("anchor holds: audit rows 1 to %lld are those the anchor names\n", (long long)rr.anchor_rows);
+    cli_print_verified(&v);
     return CLI_EXIT_OK;
 }

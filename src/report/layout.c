@@ -2,6 +2,7 @@
  * TrueType fonts and UTF-8 text, running header and footer, text measuring,
  * wrapping and cutting, boxes and lines, number formatting. */
 #include "report/layout.h"
+#include "report/fontcover.h"
 #include "report/tounicode.h"
 
 #include <errno.h>
@@ -9,6 +10,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include "fxl/core.h"
@@ -41,17 +43,69 @@ static int font_path(fxl_ctx *ctx, char *out, size_t n, const char *dir, const c
     return 0;
 }
 
+/* The subset file `file` of `size` bytes in the build tree (fonts/ beside
+ * the program) or the installed data directory (../share/fxledger/fonts
+ * from the program's directory), found from /proc/self/exe so that any
+ * install prefix works. 0 and the path in out, or -1. */
+static int subset_path(char *out, size_t n, const char *file, long size)
+{
+    static const char *const rel[] = {"fonts", "../share/fxledger/fonts"};
+    char exe[1024];
+    ssize_t len;
+    struct stat st;
+    size_t i;
+    char *slash;
+
+    if (!file[0] || size <= 0)
+        return -1;
+    len = readlink("/proc/self/exe", exe, sizeof exe - 1);
+    if (len <= 0 || (size_t)len >= sizeof exe - 1)
+        return -1;
+    exe[len] = '\0';
+    if ((slash = strrchr(exe, '/')) == NULL)
+        return -1;
+    *slash = '\0';
+    for (i = 0; i < sizeof rel / sizeof rel[0]; i++) {
+        if ((size_t)snprintf(out, n, "%s/%s/%s", exe, rel[i], file) >= n)
+            continue;
+        if (stat(out, &st) == 0 && S_ISREG(st.st_mode) && st.st_size == size &&
+            access(out, R_OK) == 0)
+            return 0;
+    }
+    return -1;
+}
+
+/* Loads a TrueType font embedded, with the UTF-8 encoder and a proper text
+ * map; NULL on failure (the error is in d->hpdf_error or d->font_error). */
+static HPDF_Font load_font(rpt_doc *d, const char *path)
+{
+    const char *name;
+    HPDF_Font f = NULL;
+
+    /* Embedded (HPDF_TRUE): the file prints the same anywhere. */
+    if ((name = HPDF_LoadTTFontFromFile(d->pdf, path, HPDF_TRUE)) != NULL)
+        f = HPDF_GetFont(d->pdf, name, "UTF-8");
+    if (!f || d->hpdf_error)
+        return NULL;
+    /* libharu's own ToUnicode stream is an encoding CMap (report/tounicode.h) */
+    if (rpt_tounicode_fix(f) != 0) {
+        d->font_error = 1;
+        return NULL;
+    }
+    return f;
+}
+
 int rpt_doc_init(rpt_doc *d, fxl_ctx *ctx, const char *font_dir, int landscape)
 {
-    char regular[1024], bold[1024];
-    const char *name;
+    char sub_regular[1024], sub_bold[1024];
     int rc;
 
     memset(d, 0, sizeof *d);
     if (!font_dir || !*font_dir)
         font_dir = FXL_FONT_DIR;
-    if ((rc = font_path(ctx, regular, sizeof regular, font_dir, "DejaVuSans.ttf")) != 0 ||
-        (rc = font_path(ctx, bold, sizeof bold, font_dir, "DejaVuSans-Bold.ttf")) != 0)
+    /* The full fonts are needed whenever a text is outside the subset. */
+    if ((rc = font_path(ctx, d->full_path[0], sizeof d->full_path[0], font_dir, "DejaVuSans.ttf")) != 0 ||
+        (rc = font_path(ctx, d->full_path[1], sizeof d->full_path[1], font_dir, "DejaVuSans-Bold.ttf")) != 0)
         return rc;
     d->pdf = HPDF_New(on_hpdf_error, d);
     if (!d->pdf)
@@ -59,17 +113,22 @@ int rpt_doc_init(rpt_doc *d, fxl_ctx *ctx, const char *font_dir, int landscape)
     HPDF_SetCompressionMode(d->pdf, HPDF_COMP_ALL);
     HPDF_UseUTFEncodings(d->pdf);
     HPDF_SetCurrentEncoder(d->pdf, "UTF-8");
-    /* Embedded (HPDF_TRUE): the file prints the same anywhere. */
-    if ((name = HPDF_LoadTTFontFromFile(d->pdf, regular, HPDF_TRUE)) != NULL)
-        d->font = HPDF_GetFont(d->pdf, name, "UTF-8");
-    if ((name = HPDF_LoadTTFontFromFile(d->pdf, bold, HPDF_TRUE)) != NULL)
-        d->bold = HPDF_GetFont(d->pdf, name, "UTF-8");
-    if (!d->font || !d->bold || d->hpdf_error)
-        return fxl_fail(ctx, FXL_EIO, "cannot load the report fonts from '%s' (PDF library error 0x%04lX)",
-                        font_dir, d->hpdf_error);
-    /* libharu's own ToUnicode stream is an encoding CMap (report/tounicode.h) */
-    if (rpt_tounicode_fix(d->font) != 0 || rpt_tounicode_fix(d->bold) != 0)
-        return fxl_fail(ctx, FXL_EIO, "cannot write the text map of the report fonts");
+    /* The subsets when the build made them and they are where the program
+     * looks; else the full fonts from the start. */
+    if (rpt_cover_regular_n > 0 && rpt_cover_bold_n > 0 &&
+        subset_path(sub_regular, sizeof sub_regular, rpt_subset_regular_file,
+                    rpt_subset_regular_size) == 0 &&
+        subset_path(sub_bold, sizeof sub_bold, rpt_subset_bold_file, rpt_subset_bold_size) == 0) {
+        d->subset = 1;
+        d->font = load_font(d, sub_regular);
+        d->bold = load_font(d, sub_bold);
+    } else {
+        d->font = d->full_font = load_font(d, d->full_path[0]);
+        d->bold = d->full_bold = load_font(d, d->full_path[1]);
+    }
+    if (!d->font || !d->bold || d->hpdf_error || d->font_error)
+        return fxl_fail(ctx, FXL_EIO, "cannot load the report fonts%s (PDF library error 0x%04lX)",
+                        d->font_error ? " or write their text map" : "", d->hpdf_error);
     d->page_w = landscape ? RPT_A4_LONG : RPT_A4_SHORT;
     d->page_h = landscape ? RPT_A4_SHORT : RPT_A4_LONG;
     d->left = MARGIN_SIDE;
@@ -144,6 +203,9 @@ int rpt_doc_save(rpt_doc *d, fxl_ctx *ctx, const char *path)
         draw_footer(d, i);
     if (d->oom)
         return fxl_fail(ctx, FXL_EIO, "out of memory while laying out the report");
+    if (d->font_error)
+        return fxl_fail(ctx, FXL_EIO, "cannot load the full report fonts for a text the subset "
+                        "does not cover");
     if (d->hpdf_error)
         return fxl_fail(ctx, FXL_EIO, "PDF library error 0x%04lX (detail %lu) while drawing the report",
                         d->hpdf_error, d->hpdf_detail);
@@ -271,6 +333,77 @@ static void sanitize(char *out, size_t outsz, const char *text)
     out[o] = '\0';
 }
 
+static int in_cover(const rpt_cover_range *r, size_t n, unsigned cp)
+{
+    size_t lo = 0, hi = n;
+
+    while (lo < hi) {
+        size_t mid = lo + (hi - lo) / 2;
+        if (cp < r[mid].lo)
+            hi = mid;
+        else if (cp > r[mid].hi)
+            lo = mid + 1;
+        else
+            return 1;
+    }
+    return 0;
+}
+
+/* 1 when every character of text[0..len) is in the cover. ASCII is always
+ * covered (printable in the subset; control characters print as spaces);
+ * an invalid byte prints as '?'. */
+static int text_covered(const rpt_cover_range *r, size_t n, const char *text, size_t len)
+{
+    const unsigned char *s = (const unsigned char *)text;
+    size_t i = 0;
+
+    while (i < len && s[i]) {
+        int k;
+        unsigned cp;
+        if (s[i] < 0x80) {
+            i++;
+            continue;
+        }
+        k = utf8_len(s + i);
+        if (k == 0 || i + (size_t)k > len) {
+            i++;
+            continue;
+        }
+        cp = k == 2 ? (s[i] & 0x1Fu) : k == 3 ? (s[i] & 0x0Fu) : (s[i] & 0x07u);
+        for (int j = 1; j < k; j++)
+            cp = (cp << 6) | (s[i + j] & 0x3Fu);
+        if (!in_cover(r, n, cp))
+            return 0;
+        i += (size_t)k;
+    }
+    return 1;
+}
+
+/* The font a text is measured and drawn in: f itself, or, when f is a
+ * subset that lacks a character of the text, the full DejaVu font of the
+ * same weight, loaded the first time it is needed. Glyphs and advance
+ * widths are the same in both, so a line measured in one and drawn in the
+ * other is the same width. */
+static HPDF_Font pick(rpt_doc *d, HPDF_Font f, const char *text, size_t len)
+{
+    int bold;
+    HPDF_Font *full;
+
+    if (!d || !d->subset || (f != d->font && f != d->bold))
+        return f;
+    bold = f == d->bold;
+    if (text_covered(bold ? rpt_cover_bold : rpt_cover_regular,
+                     bold ? rpt_cover_bold_n : rpt_cover_regular_n, text, len))
+        return f;
+    full = bold ? &d->full_bold : &d->full_font;
+    if (!*full && !d->font_error) {
+        *full = load_font(d, d->full_path[bold]);
+        if (!*full)
+            d->font_error = 1;  /* the report fails at save, never a missing glyph */
+    }
+    return *full ? *full : f;
+}
+
 static double width_raw(HPDF_Font f, double size, const char *text, size_t len)
 {
     HPDF_TextWidth tw;
@@ -285,9 +418,8 @@ double rpt_width(rpt_doc *d, HPDF_Font f, double size, const char *text)
 {
     char buf[2048];
 
-    (void)d;
     sanitize(buf, sizeof buf, text);
-    return width_raw(f, size, buf, strlen(buf));
+    return width_raw(pick(d, f, buf, strlen(buf)), size, buf, strlen(buf));
 }
 
 void rpt_text_rgb(rpt_doc *d, HPDF_Font f, double size, double r, double g, double b,
@@ -298,6 +430,7 @@ void rpt_text_rgb(rpt_doc *d, HPDF_Font f, double size, double r, double g, doub
     if (!d->page || !text || !*text)
         return;
     sanitize(buf, sizeof buf, text);
+    f = pick(d, f, buf, strlen(buf));
     HPDF_Page_SetRGBFill(d->page, (HPDF_REAL)r, (HPDF_REAL)g, (HPDF_REAL)b);
     HPDF_Page_BeginText(d->page);
     HPDF_Page_SetFontAndSize(d->page, f, (HPDF_REAL)size);
@@ -331,8 +464,8 @@ void rpt_fit(rpt_doc *d, HPDF_Font f, double size, const char *text, double widt
     double w = 0, mark;
     size_t i = 0;
 
-    (void)d;
     sanitize(buf, sizeof buf, text);
+    f = pick(d, f, buf, strlen(buf));
     if (width_raw(f, size, buf, strlen(buf)) <= width) {
         snprintf(out, outsz, "%s", buf);
         return;
@@ -376,13 +509,13 @@ const char *rpt_next_line(rpt_doc *d, HPDF_Font f, double size, const char *text
     double w = 0;
     size_t len;
 
-    (void)d;
     if (!p)
         return NULL;
     while (*p == ' ')
         p++;
     if (!*p)
         return NULL;
+    f = pick(d, f, p, strlen(p));
     q = p;
     while (*q && *q != '\n') {
         int n = utf8_len((const unsigned char *)q);

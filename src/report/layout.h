@@ -31,8 +31,18 @@ typedef void (*rpt_page_hook)(rpt_doc *d, void *arg);
 
 struct rpt_doc {
     HPDF_Doc pdf;
-    HPDF_Font font;          /* DejaVu Sans */
-    HPDF_Font bold;          /* DejaVu Sans Bold */
+    /* DejaVu Sans and DejaVu Sans Bold: the build's subsets when the
+     * program found them (subset = 1), else the full fonts. A text with a
+     * character the subset lacks is measured and drawn in the full font of
+     * the same weight instead, loaded the first time one is needed
+     * (report/fontcover.h, docs/reports.md). */
+    HPDF_Font font;
+    HPDF_Font bold;
+    HPDF_Font full_font;     /* full DejaVu Sans once loaded (== font without a subset) */
+    HPDF_Font full_bold;
+    int subset;
+    int font_error;          /* the full font could not be loaded when needed */
+    char full_path[2][1024]; /* DejaVuSans.ttf, DejaVuSans-Bold.ttf */
     double page_w, page_h;
     double left, right;      /* x of the content's left and right edges */
     double top, bottom;      /* y of the content's top and bottom edges */
@@ -53,8 +63,9 @@ struct rpt_doc {
     int oom;
 };
 
-/* Creates the document with DejaVu Sans and DejaVu Sans Bold embedded from
- * font_dir and UTF-8 text. landscape selects A4 landscape pages. On failure
+/* Creates the document with DejaVu Sans and DejaVu Sans Bold embedded (the
+ * subsets, with the full fonts from font_dir for text outside them) and
+ * UTF-8 text. landscape selects A4 landscape pages. On failure
  * the message is in ctx; call rpt_doc_release anyway. */
 int rpt_doc_init(rpt_doc *d, fxl_ctx *ctx, const char *font_dir, int landscape);
 void rpt_doc_release(rpt_doc *d);

@@ -59,7 +59,7 @@ int fxl_audit_append(fxl_ctx *ctx, const char *action, const char *entity,
     text = cJSON_PrintUnformatted(content);
     if (!text)
         return fxl_fail(ctx, FXL_EIO, "out of memory writing the audit log");
-    if ((rc = fxl_stmt_prepare(&last, ctx, "SELECT id, hash FROM audit_log ORDER BY id DESC LIMIT 1")) != 0)
+    if ((rc = fxl_stmt_prepare_cached(&last, ctx, "SELECT id, hash FROM audit_log ORDER BY id DESC LIMIT 1")) != 0)
         goto cleanup;
     rc = fxl_stmt_step(&last);
     if (rc < 0)
@@ -78,7 +78,7 @@ int fxl_audit_append(fxl_ctx *ctx, const char *action, const char *entity,
         snprintf(idtext, sizeof idtext, "%lld", (long long)entity_id);
     row_hash(hash, prev, id, at, ctx->user_login, action, entity, idtext, text, seal);
 
-    if ((rc = fxl_stmt_prepare(&ins, ctx, ctx->sealing
+    if ((rc = fxl_stmt_prepare_cached(&ins, ctx, ctx->sealing
             ? "INSERT INTO audit_log (id, at, user, action, entity, entity_id, content, prev_hash, hash, client, seal) "
               "VALUES (:id, :at, :user, :action, :entity, :entity_id, :content, :prev, :hash, :client, :seal)"
             : "INSERT INTO audit_log (id, at, user, action, entity, entity_id, content, prev_hash, hash, client) "

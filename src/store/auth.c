@@ -440,7 +440,7 @@ static int load_account_where(fxl_ctx *ctx, const char *login, int64_t id, accou
     int rc;
 
     memset(a, 0, sizeof *a);
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT u.id, u.login, u.full_name, u.role, u.active, p.hash, "
                                "p.must_change, coalesce(l.failures, 0), coalesce(l.first_failure_at, ''), "
                                "coalesce(l.locked_until, ''), coalesce(l.last_login_at, ''), "
@@ -873,7 +873,7 @@ static int load_session(fxl_ctx *ctx, const char *token, session_row *r)
     if (!token || strlen(token) != FXL_TOKEN_HEX_LEN)
         return 0;
     fxl_sha256_hex(sha, token, FXL_TOKEN_HEX_LEN);
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT id, user_id, started_at, last_seen_at, ended_at IS NOT NULL "
                                "FROM auth_sessions WHERE token_sha256 = :t")) != 0)
         return rc;

@@ -12,6 +12,7 @@
 #include "fxl/audit.h"
 #include "fxl/backup.h"
 #include "fxl/outfile.h"
+#include "fxl/server.h"
 #include "store/audit.h"
 #include "store/stmt.h"
 
@@ -33,20 +34,26 @@ static void remove_copy(const char *path)
     unlink(side);
 }
 
-/* The whole of verify on the copy, under its temporary name, before the
- * copy takes the name asked for. */
+/* The whole of verify (chain, record, signatures) on the copy, in one read
+ * transaction, under its temporary name before it takes the name asked for. */
 static int verify_copy(fxl_ctx *ctx, const char *tmp, const char *dest)
 {
     fxl_ctx *c = NULL;
-    fxl_verify_report r;
+    fxl_whole_verify v;
     char side[FXL_OUTFILE_PATH_MAX + 8];
     int rc = fxl_open(&c, tmp, FXL_OPEN_READONLY);
 
-    if (rc == 0)
-        rc = fxl_audit_verify(c, &r);
+    memset(&v, 0, sizeof v);
+    if (rc == 0 && (rc = fxl_begin_read(c)) == 0) {
+        rc = fxl_verify_whole(c, NULL, &v);
+        fxl_rollback(c);
+    }
     if (rc != 0)
         rc = fxl_fail(ctx, FXL_EIO, "backup '%s' failed verification, not kept: %s", dest,
-                      c ? fxl_errmsg(c) : "out of memory");
+                      !c ? "out of memory"
+                      : v.chain_rc != 0 ? v.chain_msg
+                      : v.record.n_problems ? v.record.problem[0]
+                      : v.sig_rc != 0 ? v.sig_msg : fxl_errmsg(c));
     fxl_close(c);
     /* A read-only WAL connection may leave an empty -shm/-wal beside it. */
     snprintf(side, sizeof side, "%s-wal", tmp);

@@ -8,6 +8,17 @@
 
 #include "fxl/fxl.h"
 
+/* Statements prepared once per connection (store/stmt.c,
+ * fxl_stmt_prepare_cached): enough slots for the hot statements of one
+ * command; past them a statement is prepared as usual. */
+#define FXL_STMT_CACHE_SLOTS 96
+
+struct fxl_stmt_slot {
+    const char *sql;   /* the key: the SQL text's pointer (its text is compared too) */
+    sqlite3_stmt *st;
+    int lent;          /* 1 while an fxl_stmt holds it */
+};
+
 struct fxl_ctx {
     sqlite3 *db;
     int readonly;
@@ -22,6 +33,8 @@ struct fxl_ctx {
     int64_t sign_user_id;
     char origin[64];       /* client address of a served request, "" if none */
     int sealing;           /* 1: rows written are sealed by the next audit row (store/seal.c) */
+    struct fxl_stmt_slot stmt_cache[FXL_STMT_CACHE_SLOTS];
+    int stmt_cache_used;
 };
 
 /* Maps the connection's last SQLite error to FXL_EBUSY, FXL_ECONFLICT (a

@@ -411,6 +411,7 @@ void fxl_close(fxl_ctx *ctx)
     if (!ctx)
         return;
     fxl_sign_end(ctx);
+    fxl_stmt_cache_release(ctx);
     sqlite3_close_v2(ctx->db);
     free(ctx);
 }
@@ -563,7 +564,7 @@ int fxl_setting_get(fxl_ctx *ctx, const char *key, char *buf, size_t bufsize)
     fxl_stmt s = FXL_STMT_INIT;
     int rc;
 
-    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT value FROM settings WHERE key = :key")) != 0)
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx, "SELECT value FROM settings WHERE key = :key")) != 0)
         goto cleanup;
     fxl_stmt_bind_text(&s, ":key", key);
     rc = fxl_stmt_step(&s);

@@ -5,7 +5,7 @@
 int fxl_lookup_id(fxl_ctx *ctx, int64_t *out_id, const char *sql, const char *param, const char *value)
 {
     fxl_stmt s = FXL_STMT_INIT;
-    int rc = fxl_stmt_prepare(&s, ctx, sql);
+    int rc = fxl_stmt_prepare_cached(&s, ctx, sql);
 
     if (rc == 0) {
         fxl_stmt_bind_text(&s, param, value);

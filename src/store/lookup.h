@@ -10,7 +10,8 @@
 /* Runs `sql`, which selects an id and has the one parameter `param` (such as
  * ":serial"), bound to `value`; the first row's id goes to *out_id. Returns
  * 1 when found, 0 when there is no such row (no message set: the caller
- * names what is unknown), or a negative FXL_E* code. */
+ * names what is unknown), or a negative FXL_E* code. `sql` is a string
+ * literal: the connection keeps the statement (fxl_stmt_prepare_cached). */
 int fxl_lookup_id(fxl_ctx *ctx, int64_t *out_id, const char *sql, const char *param, const char *value);
 
 #endif

@@ -98,7 +98,7 @@ static int check_fraction_free(fxl_ctx *ctx, const rec_plan *plan, int number)
     fxl_stmt s = FXL_STMT_INIT;
     int rc;
 
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT treated_at FROM fractions WHERE plan_id = :plan AND number = :n")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&s, ":plan", plan->plan_id);
@@ -126,7 +126,7 @@ int rec_check_plan_and_time(fxl_ctx *ctx, const rec_plan *plan, int number, cons
     fxl_stmt s = FXL_STMT_INIT;
     int rc;
 
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT label, created_at FROM plans WHERE replaces_plan_id = :plan "
                                "AND created_at <= :at ORDER BY created_at LIMIT 1")) != 0)
         goto cleanup;
@@ -143,7 +143,7 @@ int rec_check_plan_and_time(fxl_ctx *ctx, const rec_plan *plan, int number, cons
         goto cleanup;
     }
     fxl_stmt_finalize(&s);
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT number, treated_at FROM fractions WHERE plan_id = :plan AND "
                                "((number < :n AND treated_at > :at) OR (number > :n AND treated_at < :at)) "
                                "ORDER BY number LIMIT 1")) != 0)
@@ -218,7 +218,7 @@ int rec_insert_measurement(fxl_ctx *ctx, rec_inputs *in, int64_t fraction_id, co
         rc = fxl_fail(ctx, FXL_EIO, "out of memory writing a measurement");
         goto cleanup;
     }
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "INSERT INTO measurements (fraction_id, field_id, detector_id, reading, "
                                "reading_unit, temp_c, temp_entered, calibration_id, factor_n, cf_field_size, "
                                "cf_ssd, cf_wedge, cf_tray, cf_angle, cf_temp, corrected_dose_cgy, "
@@ -330,7 +330,7 @@ int rec_open_review_item(fxl_ctx *ctx, rec_inputs *in, const rec_plan *plan, int
              m->supersedes_id ? "amended reading: " : "", plan->mrn, plan->label, number, m->field,
              m->point, m->detector, what);
 
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "INSERT INTO review_items (rule, severity, status, measurement_id, "
                                "patient_id, detector_id, field_id, summary, opened_at) VALUES ('result', "
                                ":severity, 'open', :m, :patient, :detector, :field, :summary, :now)")) != 0)
@@ -346,7 +346,7 @@ int rec_open_review_item(fxl_ctx *ctx, rec_inputs *in, const rec_plan *plan, int
         goto cleanup;
     m->review_item_id = sqlite3_last_insert_rowid(ctx->db);
     fxl_stmt_finalize(&s);
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "INSERT INTO review_events (item_id, kind, user_id, created_at) "
                                "VALUES (:item, 'open', :user, :now)")) != 0)
         goto cleanup;
@@ -426,7 +426,7 @@ static int write_fraction(fxl_ctx *ctx, int64_t *fraction_id, fxl_record_result 
         return rc;
     if ((rc = rec_check_plan_and_time(ctx, plan, number, at)) != 0)
         goto cleanup;
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "INSERT INTO fractions (plan_id, number, treated_at, user_id, created_at) "
                                "VALUES (:plan, :number, :at, :user, :now)")) != 0)
         goto cleanup;
@@ -591,7 +591,7 @@ static int load_original(fxl_ctx *ctx, rec_original *o, int64_t id)
     int rc;
 
     memset(o, 0, sizeof *o);
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT m.fraction_id, m.field_id, m.detector_id, f.number, f.treated_at, "
                                "pt.mrn, p.label, m.temp_c, m.temp_entered, "
                                "(SELECT s.id FROM measurements s WHERE s.supersedes_id = m.id), m.background "

@@ -41,7 +41,7 @@ int rec_load_plan(fxl_ctx *ctx, rec_plan *out, const char *mrn, const char *labe
     memset(out, 0, sizeof *out);
     if (!mrn || !*mrn)
         return fxl_fail(ctx, FXL_EINVAL, "a patient is required (--patient MRN)");
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT id, mrn, family_name, given_name FROM patients WHERE mrn = :mrn")) != 0)
         goto cleanup;
     fxl_stmt_bind_text(&s, ":mrn", mrn);
@@ -61,14 +61,14 @@ int rec_load_plan(fxl_ctx *ctx, rec_plan *out, const char *mrn, const char *labe
     fxl_stmt_finalize(&s);
 
     if (label) {
-        rc = fxl_stmt_prepare(&s, ctx,
+        rc = fxl_stmt_prepare_cached(&s, ctx,
                               "SELECT id, label, site, technique, fractions FROM plans "
                               "WHERE patient_id = :pid AND label = :label");
         if (rc == 0)
             fxl_stmt_bind_text(&s, ":label", label);
     } else {
         /* The latest plan that no other plan replaces. */
-        rc = fxl_stmt_prepare(&s, ctx,
+        rc = fxl_stmt_prepare_cached(&s, ctx,
                               "SELECT p.id, p.label, p.site, p.technique, p.fractions FROM plans p "
                               "WHERE p.patient_id = :pid AND NOT EXISTS "
                               "(SELECT 1 FROM plans r WHERE r.replaces_plan_id = p.id) "
@@ -95,7 +95,7 @@ int rec_load_plan(fxl_ctx *ctx, rec_plan *out, const char *mrn, const char *labe
     out->fractions = (int)fxl_stmt_int(&s, 4);
     fxl_stmt_finalize(&s);
 
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT coalesce(max(number), 0) FROM fractions WHERE plan_id = :plan")) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&s, ":plan", out->plan_id);
@@ -115,7 +115,7 @@ static void field_names(fxl_ctx *ctx, char *buf, size_t size, int64_t plan_id)
     size_t used = 0;
 
     buf[0] = '\0';
-    if (fxl_stmt_prepare(&s, ctx,
+    if (fxl_stmt_prepare_cached(&s, ctx,
                          "SELECT name || CASE WHEN count(*) > 1 THEN ' (entrance and exit)' "
                          "ELSE ':' || min(point) END FROM fields WHERE plan_id = :plan "
                          "GROUP BY name ORDER BY min(id)") != 0)
@@ -146,7 +146,7 @@ int rec_find_field(fxl_ctx *ctx, int64_t *field_id, char point_out[16], const re
     if (point && strcmp(point, "entrance") != 0 && strcmp(point, "exit") != 0)
         return fxl_fail(ctx, FXL_EINVAL,
                         "measured point '%s' for field '%s' must be 'entrance' or 'exit'", point, name);
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT id, point FROM fields WHERE plan_id = :plan AND name = :name "
                                "ORDER BY point")) != 0)
         goto cleanup;
@@ -195,7 +195,7 @@ int rec_find_detector(fxl_ctx *ctx, int64_t *id, char unit[8], const char *seria
     *id = 0;
     if (!serial || !*serial)
         return fxl_fail(ctx, FXL_EINVAL, "a detector serial is required for every reading");
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT id, reading_unit FROM detectors WHERE serial = :serial")) != 0)
         goto cleanup;
     fxl_stmt_bind_text(&s, ":serial", serial);
@@ -258,7 +258,7 @@ static int load_field(fxl_ctx *ctx, rec_inputs *in, int64_t field_id)
     fxl_measurement_result *m = &in->m;
     int rc;
 
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT f.name, f.point, f.beam_id, f.ssd_cm, f.x_cm, f.y_cm, f.wedge_deg, "
                                "f.tray, f.incidence_deg, f.expected_dose_cgy, coalesce(f.expected_source, ''), "
                                "b.name, b.modality, b.energy, mc.name, f.thickness_cm "
@@ -305,7 +305,7 @@ static int load_detector(fxl_ctx *ctx, rec_inputs *in, int64_t detector_id, cons
     fxl_measurement_result *m = &in->m;
     int rc;
 
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT serial, kind, reading_unit, temp_coeff_per_c FROM detectors "
                                "WHERE id = :id")) != 0)
         goto cleanup;
@@ -324,7 +324,7 @@ static int load_detector(fxl_ctx *ctx, rec_inputs *in, int64_t detector_id, cons
 
     /* Status at the treatment time: the latest row at or before it; a
      * detector without rows is in service (schema comment). */
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT status FROM detector_status WHERE detector_id = :id "
                                "AND effective_at <= :at ORDER BY effective_at DESC, id DESC LIMIT 1")) != 0)
         goto cleanup;
@@ -354,7 +354,7 @@ static int load_calibration(fxl_ctx *ctx, rec_inputs *in, const char *at)
     m->ref[FXL_CF_TRAY] = 0;
     m->ref[FXL_CF_ANGLE] = 0;
     m->ref[FXL_CF_THICKNESS] = m->ref[FXL_CF_SDD] = NAN;
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT id, factor_cgy_per_unit, temp_c, ssd_cm, field_size_cm, valid_until, "
                                "ref_thickness_cm "
                                "FROM calibrations WHERE detector_id = :det AND beam_id = :beam "
@@ -391,12 +391,12 @@ static int load_tables(fxl_ctx *ctx, rec_inputs *in, const char *at)
     fxl_stmt t = FXL_STMT_INIT, p = FXL_STMT_INIT;
     int rc, i;
 
-    if ((rc = fxl_stmt_prepare(&t, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&t, ctx,
                                "SELECT id FROM correction_tables WHERE detector_id = :det "
                                "AND beam_id = :beam AND point = :point AND parameter = :param "
                                "AND effective_from <= :at "
                                "ORDER BY effective_from DESC, id DESC LIMIT 1")) != 0 ||
-        (rc = fxl_stmt_prepare(&p, ctx,
+        (rc = fxl_stmt_prepare_cached(&p, ctx,
                                "SELECT x, factor FROM correction_points WHERE table_id = :table "
                                "ORDER BY x")) != 0)
         goto cleanup;
@@ -448,7 +448,7 @@ static int load_prior(fxl_ctx *ctx, rec_inputs *in, const rec_plan *plan, int fr
     int rc;
 
     in->prior.present = 0;
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
                                "SELECT f.number, m.verdict, m.deviation_pct FROM measurements m "
                                "JOIN fractions f ON f.id = m.fraction_id "
                                "WHERE m.field_id = :field AND f.plan_id = :plan AND f.number < :number "

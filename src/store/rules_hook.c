@@ -86,7 +86,7 @@ static int load_fraction(fxl_ctx *ctx, hook_fraction *fr, int64_t fraction_id)
     int rc, replaced_max, own_min;
 
     memset(fr, 0, sizeof *fr);
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT fr.id, fr.plan_id, pl.patient_id, fr.number, fr.treated_at, pl.label, p.mrn, "
             "       coalesce(pl.replaces_plan_id, 0), "
             "       coalesce((SELECT max(o.number) FROM fractions o "
@@ -139,7 +139,7 @@ static int load_slots(fxl_ctx *ctx, slot_store **out, size_t *n, int64_t plan_id
 
     *out = NULL;
     *n = 0;
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT fr.number, fr.treated_at, "
             "       EXISTS (SELECT 1 FROM measurements m WHERE m.fraction_id = fr.id "
             "               AND m.field_id = :field) "
@@ -255,7 +255,7 @@ static int rule_missing(fxl_ctx *ctx, const hook_fraction *fr, const fxl_rule_se
     size_t cap = 0, n = 0, i;
     int rc;
 
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT id, name, point, policy FROM fields WHERE plan_id = :plan "
             "AND policy <> 'none' ORDER BY id")) != 0)
         goto cleanup;
@@ -305,7 +305,7 @@ static int rule_calibration(fxl_ctx *ctx, const hook_fraction *fr, const hook_de
     char key[64], summary[720];
     int rc;
 
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT c.id, c.valid_until, b.name, c.point "
             "FROM (SELECT DISTINCT f.beam_id AS beam_id, f.point AS point FROM measurements m "
             "      JOIN fields f ON f.id = m.field_id "
@@ -370,7 +370,7 @@ static int rule_dose_limit(fxl_ctx *ctx, const hook_detector *d)
 
     if (!isfinite(d->dose_limit_cgy))
         return 0;
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT coalesce(c.id, 0), coalesce(c.calibrated_at, ''), "
             /* A gross or implausible result (a unit slip can be a factor
              * 1000) adds the planned dose, the best estimate of what the
@@ -450,7 +450,7 @@ static int drift_since(fxl_ctx *ctx, char since[FXL_TIME_LEN], int64_t detector_
     since[0] = '\0';
     fxl_drift_series_key(key, sizeof key, detector_id, beam_id, point);
     if (all)
-        rc = fxl_stmt_prepare(&s, ctx,
+        rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT coalesce(max(t), '') FROM ("
             "  SELECT max(calibrated_at) AS t FROM calibrations WHERE detector_id = :d "
             "  UNION ALL "
@@ -460,7 +460,7 @@ static int drift_since(fxl_ctx *ctx, char since[FXL_TIME_LEN], int64_t detector_
         /* rule_key starts with key ':' exactly when key ':' <= rule_key <
          * key ';' (';' follows ':' in ASCII; text compares bytewise); the
          * substr test is kept, the range only lets the index find them. */
-        rc = fxl_stmt_prepare(&s, ctx,
+        rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT coalesce(max(t), '') FROM ("
             "  SELECT max(calibrated_at) AS t FROM calibrations WHERE detector_id = :d "
             "  AND beam_id = :b AND point = :p "
@@ -499,7 +499,7 @@ int fxl_drift_series(fxl_ctx *ctx, fxl_drift_point **out, size_t *n, char since[
     if ((rc = drift_since(ctx, since, detector_id, beam_id, point, all)) != 0)
         goto cleanup;
 
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT m.id, fr.number, fr.treated_at, p.mrn, f.name, m.verdict, m.deviation_pct "
             "FROM measurements m "
             "JOIN fractions fr ON fr.id = m.fraction_id "
@@ -562,7 +562,7 @@ static int drift_deviations(fxl_ctx *ctx, double **out, size_t *n, char since[FX
     *n = 0;
     if ((rc = drift_since(ctx, since, detector_id, beam_id, point, 0)) != 0)
         goto cleanup;
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT m.deviation_pct "
             "FROM measurements m "
             "JOIN fractions fr ON fr.id = m.fraction_id "
@@ -649,7 +649,7 @@ static int rule_drift(fxl_ctx *ctx, const hook_detector *d, const fxl_rule_setti
     size_t n = 0, i;
     int rc;
 
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT DISTINCT f.beam_id, mc.name || ' ' || b.name, f.point FROM measurements m "
             "JOIN fields f ON f.id = m.field_id JOIN beams b ON b.id = f.beam_id "
             "JOIN machines mc ON mc.id = b.machine_id "
@@ -686,7 +686,7 @@ static int load_detectors(fxl_ctx *ctx, hook_detector **out, size_t *n, int64_t 
 
     *out = NULL;
     *n = 0;
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT d.id, d.serial, d.dose_limit_cgy FROM detectors d WHERE d.id IN "
             "(SELECT detector_id FROM measurements WHERE fraction_id = :fr) ORDER BY d.id")) != 0)
         goto cleanup;
@@ -719,7 +719,7 @@ static int follow_amendments(fxl_ctx *ctx, int64_t fraction_id)
     size_t n = 0, i;
     int rc;
 
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT id, supersedes_id FROM measurements WHERE fraction_id = :fr "
             "AND supersedes_id IS NOT NULL ORDER BY id")) != 0)
         goto cleanup;

@@ -36,7 +36,7 @@ static int canon_expr(fxl_ctx *ctx, const char *tbl, char **out)
     if (!buf)
         return fxl_fail(ctx, FXL_EIO, "out of memory sealing rows");
     len = (size_t)snprintf(buf, cap, "json_patch('{}', json_object(");
-    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT name FROM pragma_table_info(:t) ORDER BY cid")) != 0)
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx, "SELECT name FROM pragma_table_info(:t) ORDER BY cid")) != 0)
         goto cleanup;
     fxl_stmt_bind_text(&s, ":t", tbl);
     while ((rc = fxl_stmt_step(&s)) == 1) {
@@ -205,7 +205,7 @@ int fxl_seal_has_pending(fxl_ctx *ctx)
 
     if (!ctx->sealing)
         return 0;
-    if (fxl_stmt_prepare(&s, ctx, "SELECT 1 FROM temp.fxl_dirty LIMIT 1") != 0)
+    if (fxl_stmt_prepare_cached(&s, ctx, "SELECT 1 FROM temp.fxl_dirty LIMIT 1") != 0)
         return 0;
     rc = fxl_stmt_step(&s);
     fxl_stmt_finalize(&s);
@@ -233,8 +233,8 @@ int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
     if (!ctx->sealing)
         return 0;
     crypto_hash_sha256_init(&st);
-    if ((rc = fxl_stmt_prepare(&dirty, ctx, "SELECT tbl, row_id FROM temp.fxl_dirty ORDER BY tbl, row_id")) != 0 ||
-        (rc = fxl_stmt_prepare(&ins, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&dirty, ctx, "SELECT tbl, row_id FROM temp.fxl_dirty ORDER BY tbl, row_id")) != 0 ||
+        (rc = fxl_stmt_prepare_cached(&ins, ctx,
                                "INSERT INTO main.row_seals (tbl, row_id, audit_id, sha256) "
                                "VALUES (:t, :r, :a, :h)")) != 0)
         goto cleanup;
@@ -286,7 +286,8 @@ int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
     if (rc < 0)
         goto cleanup;
     fxl_stmt_finalize(&dirty);
-    if ((rc = fxl_exec(ctx, "DELETE FROM temp.fxl_dirty")) != 0)
+    if ((rc = fxl_stmt_prepare_cached(&dirty, ctx, "DELETE FROM temp.fxl_dirty")) != 0 ||
+        (rc = fxl_stmt_exec(&dirty)) != 0)
         goto cleanup;
     if (n > 0) {
         crypto_hash_sha256_final(&st, d);

@@ -33,9 +33,68 @@ int fxl_stmt_prepare(fxl_stmt *s, fxl_ctx *ctx, const char *sql)
     s->ctx = ctx;
     s->st = NULL;
     s->err = 0;
+    s->slot = NULL;
     if (sqlite3_prepare_v2(ctx->db, sql, -1, &s->st, NULL) != SQLITE_OK)
         return fxl_db_fail(ctx, "preparing a statement");
     return 0;
+}
+
+/* The key is the text's pointer, as a string literal gives the same one at
+ * every call; the text itself is compared too, so that a buffer reused for
+ * other SQL can never be handed the wrong statement. */
+int fxl_stmt_prepare_cached(fxl_stmt *s, fxl_ctx *ctx, const char *sql)
+{
+    struct fxl_stmt_slot *e;
+    int i, rc;
+
+    for (i = 0; i < ctx->stmt_cache_used; i++) {
+        e = &ctx->stmt_cache[i];
+        if (e->sql != sql || strcmp(sqlite3_sql(e->st), sql) != 0)
+            continue;
+        if (e->lent)
+            return fxl_stmt_prepare(s, ctx, sql);
+        e->lent = 1;
+        s->ctx = ctx;
+        s->st = e->st;
+        s->err = 0;
+        s->slot = e;
+        return 0;
+    }
+    if ((rc = fxl_stmt_prepare(s, ctx, sql)) != 0 || ctx->stmt_cache_used == FXL_STMT_CACHE_SLOTS)
+        return rc;
+    e = &ctx->stmt_cache[ctx->stmt_cache_used++];
+    e->sql = sql;
+    e->st = s->st;
+    e->lent = 1;
+    s->slot = e;
+    return 0;
+}
+
+void fxl_stmt_cache_release(fxl_ctx *ctx)
+{
+    int i;
+
+    /* A slot still lent belongs to a statement its caller never finalized:
+     * left alone, the connection stays open and the leak shows (as it did
+     * before the cache) instead of being hidden. */
+    for (i = 0; i < ctx->stmt_cache_used; i++)
+        if (!ctx->stmt_cache[i].lent)
+            sqlite3_finalize(ctx->stmt_cache[i].st);
+    ctx->stmt_cache_used = 0;
+}
+
+int fxl_stmt_cache_size(const fxl_ctx *ctx)
+{
+    return ctx->stmt_cache_used;
+}
+
+int fxl_stmt_cache_busy(const fxl_ctx *ctx)
+{
+    int i, n = 0;
+
+    for (i = 0; i < ctx->stmt_cache_used; i++)
+        n += sqlite3_stmt_busy(ctx->stmt_cache[i].st) != 0;
+    return n;
 }
 
 static int param_index(fxl_stmt *s, const char *name)
@@ -176,7 +235,14 @@ void fxl_stmt_reset(fxl_stmt *s)
 
 void fxl_stmt_finalize(fxl_stmt *s)
 {
-    sqlite3_finalize(s->st);
+    if (s->slot) {
+        sqlite3_reset(s->st);
+        sqlite3_clear_bindings(s->st);
+        s->slot->lent = 0;
+        s->slot = NULL;
+    } else {
+        sqlite3_finalize(s->st);
+    }
     s->st = NULL;
 }
 

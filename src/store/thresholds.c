@@ -81,12 +81,12 @@ static int load_rows(fxl_ctx *ctx, fxl_threshold_set **out, size_t *n, const cha
     *out = NULL;
     *n = 0;
     if (by_version)
-        rc = fxl_stmt_prepare(&s, ctx, "SELECT " SET_COLUMNS "ORDER BY t.name, t.version");
+        rc = fxl_stmt_prepare_cached(&s, ctx, "SELECT " SET_COLUMNS "ORDER BY t.name, t.version");
     else if (where_at)
-        rc = fxl_stmt_prepare(&s, ctx, "SELECT " SET_COLUMNS "WHERE t.effective_from <= :at "
+        rc = fxl_stmt_prepare_cached(&s, ctx, "SELECT " SET_COLUMNS "WHERE t.effective_from <= :at "
                                        "ORDER BY t.name, t.effective_from, t.version");
     else
-        rc = fxl_stmt_prepare(&s, ctx, "SELECT " SET_COLUMNS "ORDER BY t.name, t.effective_from, t.version");
+        rc = fxl_stmt_prepare_cached(&s, ctx, "SELECT " SET_COLUMNS "ORDER BY t.name, t.effective_from, t.version");
     if (rc != 0)
         goto cleanup;
     if (where_at)

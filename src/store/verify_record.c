@@ -11,6 +11,7 @@
 #include <string.h>
 
 #include "fxl/audit.h"
+#include "fxl/auth.h"
 #include "store/migrations.h"
 #include "store/seal.h"
 #include "store/stmt.h"
@@ -610,4 +611,37 @@ int fxl_record_verify(fxl_ctx *ctx, const char *anchor, fxl_record_report *out)
         rc = 0;
     }
     return 0;
+}
+
+int fxl_verify_whole(fxl_ctx *ctx, const char *anchor, fxl_whole_verify *out)
+{
+    fxl_signature_report sr;
+    int rrc, failed = 0;
+
+    memset(out, 0, sizeof *out);
+    memset(&sr, 0, sizeof sr);
+    if ((out->chain_rc = fxl_audit_verify(ctx, &out->chain)) != 0)
+        snprintf(out->chain_msg, sizeof out->chain_msg, "%s", fxl_errmsg(ctx));
+    if ((rrc = fxl_record_verify(ctx, anchor, &out->record)) != 0) {
+        snprintf(out->record.problem[0], sizeof out->record.problem[0], "record check failed: %s",
+                 fxl_errmsg(ctx));
+        out->record.n_problems = 1;
+    }
+    if ((out->sig_rc = fxl_signature_verify(ctx, &sr)) != 0) {
+        snprintf(out->sig_msg, sizeof out->sig_msg, "%s", fxl_errmsg(ctx));
+        snprintf(out->sig_first_bad, sizeof out->sig_first_bad, "%s",
+                 out->sig_rc == FXL_ECONFLICT ? sr.first_bad : out->sig_msg);
+    }
+    out->signatures_checked = sr.checked;
+    out->ok = out->chain_rc == 0 && out->sig_rc == 0 && out->record.n_problems == 0;
+    if (out->ok)
+        return 0;
+    /* a check that could not run tells more than a mismatch found */
+    if (out->chain_rc != 0 && out->chain_rc != FXL_ECONFLICT)
+        failed = out->chain_rc;
+    else if (rrc != 0)
+        failed = rrc;
+    else if (out->sig_rc != 0 && out->sig_rc != FXL_ECONFLICT)
+        failed = out->sig_rc;
+    return failed ? failed : FXL_ECONFLICT;
 }

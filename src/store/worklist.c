@@ -91,7 +91,7 @@ static int load_slots(fxl_ctx *ctx, wl_slot **out, size_t *n, int64_t plan_id, i
 
     *out = NULL;
     *n = 0;
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT fr.number, fr.treated_at, EXISTS (SELECT 1 FROM measurements m "
             "WHERE m.fraction_id = fr.id AND m.field_id = :field) "
             "FROM fractions fr WHERE fr.plan_id = :plan ORDER BY fr.number")) != 0)
@@ -168,7 +168,7 @@ static int check_detector(fxl_ctx *ctx, fxl_worklist_field *f, int64_t beam_id, 
                  f->point);
         return 0;
     }
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT d.id, coalesce((SELECT st.status FROM detector_status st WHERE st.detector_id = d.id "
             "AND st.effective_at <= :at ORDER BY st.effective_at DESC, st.id DESC LIMIT 1), 'in_service') "
             "FROM detectors d WHERE d.serial = :serial")) != 0)
@@ -194,7 +194,7 @@ static int check_detector(fxl_ctx *ctx, fxl_worklist_field *f, int64_t beam_id, 
                  strcmp(status, "retired") == 0 ? "retired" : "out for service");
         goto cleanup;
     }
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT id, valid_until FROM calibrations WHERE detector_id = :det AND beam_id = :beam "
             "AND point = :point AND calibrated_at <= :at ORDER BY calibrated_at DESC, id DESC LIMIT 1")) != 0)
         goto cleanup;
@@ -375,7 +375,7 @@ int wl_field_detectors(fxl_ctx *ctx, int64_t **ids, size_t *n, const fxl_worklis
     *n = 0;
     if (!(list = calloc(n_fields ? n_fields : 1, sizeof *list)))
         return fxl_fail(ctx, FXL_EIO, "out of memory building the worklist");
-    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT id FROM detectors WHERE serial = :serial")) != 0)
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx, "SELECT id FROM detectors WHERE serial = :serial")) != 0)
         goto cleanup;
     for (i = 0; i < n_fields; i++) {
         int64_t id = 0;
@@ -425,7 +425,7 @@ int wl_items(fxl_ctx *ctx, fxl_worklist_item **out, size_t *n, int64_t patient_i
     }
     /* A hold: the patient's unresolved result outside the action level
      * (escalated results are stored as outside the action level too). */
-    if ((rc = fxl_stmt_prepare(&s, ctx,
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
             "SELECT i.id, i.rule, i.severity, i.status, coalesce(f.name, ''), coalesce(f.point, ''), "
             "coalesce(d.serial, ''), coalesce(fr.number, 0), i.opened_at, i.summary, "
             "(i.patient_id IS :pid AND i.rule = 'result' AND m.verdict = 'outside_action') AS hold, "
@@ -480,7 +480,7 @@ int fxl_holds_for_patient(fxl_ctx *ctx, fxl_worklist_item **out, size_t *n, cons
 
     *out = NULL;
     *n = 0;
-    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT id FROM patients WHERE mrn = :mrn")) != 0)
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx, "SELECT id FROM patients WHERE mrn = :mrn")) != 0)
         goto cleanup;
     fxl_stmt_bind_text(&s, ":mrn", mrn ? mrn : "");
     if ((rc = fxl_stmt_step(&s)) < 0)
@@ -496,7 +496,7 @@ int fxl_holds_for_patient(fxl_ctx *ctx, fxl_worklist_item **out, size_t *n, cons
         rc = fxl_fail(ctx, FXL_EIO, "out of memory listing open items");
         goto cleanup;
     }
-    if ((rc = fxl_stmt_prepare(&s, ctx, "SELECT id FROM detectors WHERE serial = :serial")) != 0)
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx, "SELECT id FROM detectors WHERE serial = :serial")) != 0)
         goto cleanup;
     for (i = 0; i < n_detectors; i++) {
         if (!detectors[i] || !*detectors[i])

@@ -401,14 +401,13 @@ int web_api_record(web_req *r)
 
 int web_api_verify(web_req *r)
 {
-    fxl_verify_report vr;
-    fxl_signature_report sr;
-    fxl_record_report rr;
+    fxl_whole_verify v;
+    const fxl_record_report *rr = &v.record;
     char anchor[FXL_ANCHOR_LEN] = "", at[32], head[65];
     const char *given = web_arg(r, "anchor");
     int64_t rows;
     cJSON *o, *probs;
-    int rc, src, rrc, i;
+    int rc, i;
 
     if (given && !*given)
         given = NULL;
@@ -416,33 +415,26 @@ int web_api_verify(web_req *r)
         return web_fail_store(r, rc);
     if ((rc = fxl_begin_read(r->ctx)) != 0)
         return web_fail_store(r, rc);
-    memset(&vr, 0, sizeof vr);
-    memset(&sr, 0, sizeof sr);
-    memset(&rr, 0, sizeof rr);
-    rc = fxl_audit_verify(r->ctx, &vr);
-    src = fxl_signature_verify(r->ctx, &sr);
-    rrc = fxl_record_verify(r->ctx, given, &rr);
-    if (rrc != 0) {
-        snprintf(rr.problem[0], sizeof rr.problem[0], "record check failed: %s", fxl_errmsg(r->ctx));
-        rr.n_problems = 1;
-    }
+    rc = fxl_verify_whole(r->ctx, given, &v);
     if (fxl_audit_anchor(r->ctx, anchor, sizeof anchor) != 0)
         anchor[0] = '\0';
     fxl_rollback(r->ctx);
+    if (rc == FXL_EBUSY)
+        return web_fail_store(r, FXL_EBUSY);
     o = cJSON_CreateObject();
-    cJSON_AddBoolToObject(o, "ok", rc == 0 && src == 0 && rr.n_problems == 0);
-    cJSON_AddNumberToObject(o, "rows_checked", (double)vr.rows_checked);
-    cJSON_AddNumberToObject(o, "record_rows_checked", (double)rr.rows_checked);
-    cJSON_AddNumberToObject(o, "seals_checked", (double)rr.seals_checked);
-    if (rr.anchor_given)
-        cJSON_AddNumberToObject(o, "anchor_rows", (double)rr.anchor_rows);
+    cJSON_AddBoolToObject(o, "ok", v.ok);
+    cJSON_AddNumberToObject(o, "rows_checked", (double)v.chain.rows_checked);
+    cJSON_AddNumberToObject(o, "record_rows_checked", (double)rr->rows_checked);
+    cJSON_AddNumberToObject(o, "seals_checked", (double)rr->seals_checked);
+    if (rr->anchor_given)
+        cJSON_AddNumberToObject(o, "anchor_rows", (double)rr->anchor_rows);
     probs = cJSON_AddArrayToObject(o, "record_problems");
-    for (i = 0; i < rr.n_problems; i++)
-        cJSON_AddItemToArray(probs, cJSON_CreateString(rr.problem[i]));
-    cJSON_AddBoolToObject(o, "integrity_ok", vr.integrity_ok);
-    cJSON_AddBoolToObject(o, "foreign_keys_ok", vr.foreign_keys_ok);
-    cJSON_AddNumberToObject(o, "signatures_checked", (double)sr.checked);
-    cJSON_AddBoolToObject(o, "signatures_ok", src == 0);
+    for (i = 0; i < rr->n_problems; i++)
+        cJSON_AddItemToArray(probs, cJSON_CreateString(rr->problem[i]));
+    cJSON_AddBoolToObject(o, "integrity_ok", v.chain.integrity_ok);
+    cJSON_AddBoolToObject(o, "foreign_keys_ok", v.chain.foreign_keys_ok);
+    cJSON_AddNumberToObject(o, "signatures_checked", (double)v.signatures_checked);
+    cJSON_AddBoolToObject(o, "signatures_ok", v.sig_rc == 0);
     cJSON_AddStringToObject(o, "anchor", anchor);
     return web_json(r, 200, o);
 }

@@ -108,13 +108,12 @@ int web_get_report(web_req *r)
 
 int web_page_verify(web_req *r)
 {
-    fxl_verify_report vr;
-    fxl_signature_report sr;
-    fxl_record_report rr;
+    fxl_whole_verify v;
+    const fxl_record_report *rr = &v.record;
     const char *given = web_arg(r, "anchor");
-    char anchor[FXL_ANCHOR_LEN], chain_msg[512] = "", sig_msg[512] = "", at[32], head[65];
+    char anchor[FXL_ANCHOR_LEN], at[32], head[65];
     int64_t rows;
-    int rc, src, arc, rrc, i;
+    int rc, arc, i;
 
     if (given && !*given)
         given = NULL;
@@ -122,42 +121,29 @@ int web_page_verify(web_req *r)
         return web_fail_store(r, rc);
     if ((rc = fxl_begin_read(r->ctx)) != 0)
         return web_fail_store(r, rc);
-    memset(&vr, 0, sizeof vr);
-    memset(&sr, 0, sizeof sr);
-    memset(&rr, 0, sizeof rr);
-    rc = fxl_audit_verify(r->ctx, &vr);
-    if (rc != 0)
-        snprintf(chain_msg, sizeof chain_msg, "%s", fxl_errmsg(r->ctx));
-    src = fxl_signature_verify(r->ctx, &sr);
-    if (src != 0)
-        snprintf(sig_msg, sizeof sig_msg, "%s", src == FXL_ECONFLICT ? sr.first_bad : fxl_errmsg(r->ctx));
-    rrc = fxl_record_verify(r->ctx, given, &rr);
-    if (rrc != 0) {
-        snprintf(rr.problem[0], sizeof rr.problem[0], "record check failed: %s", fxl_errmsg(r->ctx));
-        rr.n_problems = 1;
-    }
+    rc = fxl_verify_whole(r->ctx, given, &v);
     arc = fxl_audit_anchor(r->ctx, anchor, sizeof anchor);
     fxl_rollback(r->ctx);
-    if (rc == FXL_EBUSY || src == FXL_EBUSY || rrc == FXL_EBUSY)
+    if (rc == FXL_EBUSY)
         return web_fail_store(r, FXL_EBUSY);
     web_page_begin(r, "Verify the record");
-    if (rc == 0 && src == 0 && rr.n_problems == 0)
+    if (v.ok)
         web_printf(&r->out, "<div class=\"notice done big\" role=\"status\">Verified: the audit chain of %L rows is "
                             "intact, the record matches it (%L rows, %L seals, %L schema objects), SQLite's integrity "
                             "and foreign-key checks pass, and all %L signatures are valid.%s</div>\n",
-                   vr.rows_checked, rr.rows_checked, rr.seals_checked, rr.objects_checked, sr.checked,
-                   rr.anchor_given ? " The anchor line given holds." : "");
+                   v.chain.rows_checked, rr->rows_checked, rr->seals_checked, rr->objects_checked,
+                   v.signatures_checked, rr->anchor_given ? " The anchor line given holds." : "");
     else {
         web_printf(&r->out, "<div class=\"notice refusal big\" role=\"alert\">\xE2\x9C\x95 Verification FAILED.");
-        if (rc != 0)
-            web_printf(&r->out, " Audit chain: %h.", chain_msg);
-        if (src != 0)
-            web_printf(&r->out, " Signatures: %h.", sig_msg);
+        if (v.chain_rc != 0)
+            web_printf(&r->out, " Audit chain: %h.", v.chain_msg);
+        if (v.sig_rc != 0)
+            web_printf(&r->out, " Signatures: %h.", v.sig_first_bad);
         web_printf(&r->out, " Tell the physicist in charge and keep the file as it is.</div>\n");
-        if (rr.n_problems) {
+        if (rr->n_problems) {
             web_printf(&r->out, "<ul class=\"stop\">");
-            for (i = 0; i < rr.n_problems; i++)
-                web_printf(&r->out, "<li>%h</li>", rr.problem[i]);
+            for (i = 0; i < rr->n_problems; i++)
+                web_printf(&r->out, "<li>%h</li>", rr->problem[i]);
             web_printf(&r->out, "</ul>\n");
         }
     }
@@ -165,11 +151,11 @@ int web_page_verify(web_req *r)
                         "Record rows and seals matched</th><td>%L, %L</td></tr><tr><th>"
                         "Integrity check</th><td>%s</td></tr><tr><th>Foreign keys</th><td>%s</td></tr><tr><th>"
                         "Signatures checked</th><td>%L</td></tr>",
-               vr.rows_checked, rr.rows_checked, rr.seals_checked, vr.integrity_ok ? "\xE2\x9C\x93 ok" : "\xE2\x9C\x95 failed",
-               vr.foreign_keys_ok ? "\xE2\x9C\x93 ok" : "\xE2\x9C\x95 failed", sr.checked);
-    if (rr.anchor_given)
+               v.chain.rows_checked, rr->rows_checked, rr->seals_checked, v.chain.integrity_ok ? "\xE2\x9C\x93 ok" : "\xE2\x9C\x95 failed",
+               v.chain.foreign_keys_ok ? "\xE2\x9C\x93 ok" : "\xE2\x9C\x95 failed", v.signatures_checked);
+    if (rr->anchor_given)
         web_printf(&r->out, "<tr><th>Anchor given</th><td>%s rows 1 to %L</td></tr>",
-                   rr.n_problems ? "checked:" : "\xE2\x9C\x93 holds for", rr.anchor_rows);
+                   rr->n_problems ? "checked:" : "\xE2\x9C\x93 holds for", rr->anchor_rows);
     web_printf(&r->out, "</tbody></table>\n");
     if (arc == 0)
         web_printf(&r->out, "<h2>Anchor line</h2><p>Keep this line outside the database (on paper, in an e-mail, on "

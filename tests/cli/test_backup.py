@@ -15,6 +15,23 @@ from fxlcli import main
 from review_scenario import ReviewCase, reading_for
 
 
+def pad_with_free_pages(db, blobs):
+    """Makes the file larger without adding anything to the record: a
+    table of random blobs, dropped again, leaves its pages on SQLite's
+    freelist (fxledger never vacuums), and a backup copies every page of
+    the file. The schema and every row stay those of fxledger, so the
+    backup's own verify (chain, record, signatures) must pass."""
+    con = sqlite3.connect(db)
+    con.execute("CREATE TABLE test_padding (b BLOB)")
+    con.executemany("INSERT INTO test_padding VALUES (?)", [(os.urandom(4000),) for _ in range(blobs)])
+    con.commit()
+    con.execute("DROP TABLE test_padding")
+    con.commit()
+    free = con.execute("PRAGMA freelist_count").fetchone()[0]
+    con.close()
+    assert free >= blobs, free
+
+
 class BackupTest(ReviewCase):
     def count(self, db, table):
         con = sqlite3.connect(db)
@@ -51,6 +68,23 @@ class BackupTest(ReviewCase):
         self.assertEqual(copied_audit_rows, audit_before)
         self.assertTrue(self.fx.json("verify")["ok"])
 
+    def test_copy_that_fails_verify_is_not_kept(self):
+        """The backup checks its copy as 'verify' does (chain, record proof,
+        signatures; docs/deployment.md), not the audit chain alone: a table
+        added outside fxledger passes the chain but not the record proof,
+        so the copy is not kept and the backup exits 3."""
+        con = sqlite3.connect(self.fx.db)
+        con.execute("CREATE TABLE test_outsider (x)")
+        con.commit()
+        con.close()
+        target = self.fx.path("outsider.db")
+        r = self.fx.run("backup", target, user="phys")
+        self.assertEqual(r.returncode, 3, r.stdout + r.stderr)
+        self.assertIn("failed verification, not kept: schema: table 'test_outsider' is not part of "
+                      "the fxledger schema", r.stderr)
+        self.assertFalse(os.path.exists(target))
+        self.assertEqual([n for n in os.listdir(self.fx.dir) if ".part-" in n], [])
+
     def test_refuses_existing_file_and_other_roles(self):
         existing = self.fx.write("existing.db", "keep me\n")
         self.assertFailsUnchanged("backup", existing, user="phys", expect_code=2,
@@ -71,11 +105,7 @@ class BackupTest(ReviewCase):
         copies or checks leaves no file under the name asked for - the copy
         is made under a temporary name and renamed only once verified - and
         the next backup to that name removes the dead one's temporary file."""
-        con = sqlite3.connect(self.fx.db)
-        con.execute("CREATE TABLE test_padding (b BLOB)")   # not part of the record: a longer copy
-        con.executemany("INSERT INTO test_padding VALUES (?)", [(os.urandom(4000),) for _ in range(1500)])
-        con.commit()
-        con.close()
+        pad_with_free_pages(self.fx.db, 1500)   # a longer copy
         self.fx.ensure_session("phys")
         self.fx.ensure_session("aud")   # the copy then holds aud's own password (fxlcli.py)
         target = self.fx.path("killed.db")
@@ -102,12 +132,6 @@ class BackupTest(ReviewCase):
         self.assertTrue(killed, "the backup was never caught in the middle")
         self.assertFalse(os.path.exists(target), "a killed backup left a file under the name asked for")
         self.assertTrue(any(n.startswith(".killed.db.part-") for n in os.listdir(self.fx.dir)))
-        # The padding is no part of the fxledger schema (verify names it): gone
-        # before the backup that must verify.
-        con = sqlite3.connect(self.fx.db)
-        con.execute("DROP TABLE test_padding")
-        con.commit()
-        con.close()
         # The next backup to the name: complete, verified, and the dead one's temporary file gone.
         out = self.fx.json("backup", target, user="phys")
         self.assertTrue(out["verified"])
@@ -116,12 +140,7 @@ class BackupTest(ReviewCase):
         self.assertEqual(v.returncode, 0, v.stderr)
 
     def test_backup_while_another_process_logs(self):
-        # Padding (not part of the record) so that each copy takes many steps.
-        con = sqlite3.connect(self.fx.db)
-        con.execute("CREATE TABLE test_padding (b BLOB)")
-        con.executemany("INSERT INTO test_padding VALUES (?)", [(os.urandom(4000),) for _ in range(800)])
-        con.commit()
-        con.close()
+        pad_with_free_pages(self.fx.db, 800)   # so that each copy takes many steps
 
         results = []
         errors = []
@@ -156,12 +175,6 @@ class BackupTest(ReviewCase):
         self.assertEqual(errors, [])
         self.assertEqual(len(results), 20)
         for copy in copies:
-            # The padding is no part of the fxledger schema, and verify says
-            # so (docs/audit.md): it goes before the record is checked.
-            con = sqlite3.connect(copy)
-            con.execute("DROP TABLE test_padding")
-            con.commit()
-            con.close()
             v = self.fx.run("--db", copy, "--json", "verify", user="aud")
             self.assertEqual(v.returncode, 0, copy + v.stdout + v.stderr)
             n = self.count(copy, "fractions")
@@ -169,10 +182,6 @@ class BackupTest(ReviewCase):
             # Each copy is one snapshot: every fraction in it has its measurement.
             self.assertEqual(self.count(copy, "measurements"), n)
         self.assertEqual(self.count(self.fx.db, "fractions"), 20)
-        con = sqlite3.connect(self.fx.db)
-        con.execute("DROP TABLE test_padding")
-        con.commit()
-        con.close()
         self.assertTrue(self.fx.json("verify")["ok"])
 
 

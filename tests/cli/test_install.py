@@ -7,7 +7,7 @@ import subprocess
 import tempfile
 import unittest
 
-from fxlcli import BIN, SRC, main
+from fxlcli import BIN, SRC, Fxl, main
 
 BUILD = os.path.dirname(os.path.abspath(BIN))
 
@@ -39,6 +39,32 @@ class InstallTest(unittest.TestCase):
             man1 = os.path.join(prefix, "share", "man", "man1")
             self.assertTrue(os.path.isfile(os.path.join(man1, "fxledger.1.gz")))
             self.assertTrue(os.path.isfile(os.path.join(man1, "fxledger-record.1.gz")))
+
+    def test_report_fonts_installed_where_the_program_finds_them(self):
+        """The build's font subset (docs/reports.md) goes to
+        PREFIX/share/fxledger/fonts, and the installed program embeds it
+        (pdffonts, poppler-utils, names the embedded fonts)."""
+        build_fonts = os.path.join(BUILD, "fonts")
+        names = ("fxledger-DejaVuSans-subset.ttf", "fxledger-DejaVuSans-Bold-subset.ttf")
+        if not all(os.path.isfile(os.path.join(build_fonts, n)) for n in names):
+            self.skipTest("this build made no font subset (no fontTools at configure time)")
+        with tempfile.TemporaryDirectory() as d:
+            prefix = os.path.join(d, "opt", "fxl")
+            self.install(prefix)
+            for n in names:
+                with open(os.path.join(prefix, "share", "fxledger", "fonts", n), "rb") as a, \
+                        open(os.path.join(build_fonts, n), "rb") as b:
+                    self.assertEqual(a.read(), b.read(), n)
+            fx = Fxl(bin=os.path.join(prefix, "bin", "fxledger")).init()
+            try:
+                out = fx.path("month.pdf")
+                fx.ok("report", "month", "2026-02", "--out", out)
+                r = subprocess.run(["pdffonts", out], capture_output=True, text=True, check=True)
+                self.assertEqual(r.stderr, "")
+                self.assertIn("DejaVuSans-FxlSubset", r.stdout)
+                self.assertNotIn("+DejaVuSans,", r.stdout)
+            finally:
+                fx.close()
 
     def test_destdir_stages_under_the_prefix(self):
         with tempfile.TemporaryDirectory() as d:

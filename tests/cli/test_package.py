@@ -69,6 +69,11 @@ class PackageTest(unittest.TestCase):
                   "usr/lib/fxledger/fxledger-scheduled-backup",
                   "usr/share/doc/fxledger/docs/deployment.md"):
             self.assertIn(f, files)
+        # The report font subset (docs/reports.md), where the program looks,
+        # when the build made it (fontTools at configure time).
+        for n in ("fxledger-DejaVuSans-subset.ttf", "fxledger-DejaVuSans-Bold-subset.ttf"):
+            if os.path.isfile(os.path.join(BUILD, "fonts", n)):
+                self.assertIn("usr/share/fxledger/fonts/" + n, files)
         self.assertFalse([f for f in files if "testclock" in f], "the test build is not shipped")
         # No maintainer scripts: installing creates no account, no database
         # and starts nothing (docs/deployment.md).

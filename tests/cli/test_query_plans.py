@@ -50,9 +50,10 @@ def expand(name, argument, fmacros):
 
 
 def statements(function, source=None):
-    """Each SQL text prepared (fxl_stmt_prepare) in the body of `function`
-    of `source` (SOURCE by default), in order: the concatenated string
-    literals and string macros up to the closing parenthesis."""
+    """Each SQL text prepared (fxl_stmt_prepare, or fxl_stmt_prepare_cached
+    for a statement the connection keeps) in the body of `function` of
+    `source` (SOURCE by default), in order: the concatenated string literals
+    and string macros up to the closing parenthesis."""
     source = source or SOURCE
     text = open(source).read()
     m = re.search(r"^(?:static\s+)?int\s+" + re.escape(function) + r"\s*\(", text, re.M)
@@ -62,7 +63,7 @@ def statements(function, source=None):
     body = text[m.end():end]
     macros, fmacros = string_macros(), function_macros()
     out = []
-    for p in re.finditer(r"fxl_stmt_prepare\(&\w+,\s*ctx,", body):
+    for p in re.finditer(r"fxl_stmt_prepare(?:_cached)?\(&\w+,\s*ctx,", body):
         pos, sql = p.end(), []
         while True:
             t = TOKEN.match(body, pos)
