@@ -105,7 +105,9 @@ def main():
     tables = []
     files = []
     for name, out_name, key in FONTS:
-        font = TTFont(os.path.join(src, name))
+        # recalcTimestamp=False: head.modified stays the source font's, so the
+        # build gives the same bytes every time
+        font = TTFont(os.path.join(src, name), recalcTimestamp=False)
         have = set(font.getBestCmap())
         codes = sorted(wanted & have)
         s = subset.Subsetter(options())

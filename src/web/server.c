@@ -445,9 +445,23 @@ static char *read_file(const char *path)
     return buf;
 }
 
+/* libmicrohttpd's own messages. Before the daemon runs they explain a
+ * failed start: kept for the one refusal line web_serve prints. */
+static int g_running;
+static char g_start_msg[256];
+
 static void log_mhd(void *cls, const char *fmt, va_list ap)
 {
+    size_t n;
+
     (void)cls;
+    if (!g_running) {
+        vsnprintf(g_start_msg, sizeof g_start_msg, fmt, ap);
+        n = strlen(g_start_msg);
+        while (n > 0 && (g_start_msg[n - 1] == '\n' || g_start_msg[n - 1] == '.'))
+            g_start_msg[--n] = '\0';
+        return;
+    }
     fputs("fxledger serve: ", stderr);
     vfprintf(stderr, fmt, ap);
 }
@@ -488,24 +502,24 @@ int web_serve(const web_options *o)
         sa = (const struct sockaddr *)&sa6;
         flags |= MHD_USE_IPv6;
     } else {
-        fprintf(stderr, "fxledger serve: listen address '%s' must be an IPv4 or IPv6 address\n", o->address);
+        fprintf(stderr, "fxledger: error: serve: listen address '%s' must be an IPv4 or IPv6 address\n", o->address);
         return FXL_EINVAL;
     }
     /* Open once here so a wrong path or a newer schema stops the start, and
      * pending migrations are applied before any worker opens the file. */
     if (fxl_open(&probe, o->db_path, 0) != 0) {
-        fprintf(stderr, "fxledger serve: %s\n", probe ? fxl_errmsg(probe) : "cannot open the database");
+        fprintf(stderr, "fxledger: error: serve: %s\n", probe ? fxl_errmsg(probe) : "cannot open the database");
         fxl_close(probe);
         return FXL_EDB;
     }
     fxl_close(probe);
     if (o->tls_cert) {
         if (MHD_is_feature_supported(MHD_FEATURE_TLS) != MHD_YES) {
-            fprintf(stderr, "fxledger serve: this libmicrohttpd was built without TLS\n");
+            fprintf(stderr, "fxledger: error: serve: this libmicrohttpd was built without TLS\n");
             return FXL_EINVAL;
         }
         if (!(cert = read_file(o->tls_cert)) || !(key = read_file(o->tls_key))) {
-            fprintf(stderr, "fxledger serve: cannot read '%s'\n", cert ? o->tls_key : o->tls_cert);
+            fprintf(stderr, "fxledger: error: serve: cannot read '%s'\n", cert ? o->tls_key : o->tls_cert);
             rc = FXL_EIO;
             goto cleanup;
         }
@@ -542,11 +556,15 @@ int web_serve(const web_options *o)
                              MHD_OPTION_NOTIFY_COMPLETED, on_completed, NULL,
                              MHD_OPTION_END);
     if (!d) {
-        fprintf(stderr, "fxledger serve: cannot listen on %s port %u: %s\n", o->address, o->port,
-                strerror(errno));
+        /* libmicrohttpd's reason is after its last ": " ("Failed to bind to
+         * port ...: Cannot assign requested address") */
+        const char *why = strrchr(g_start_msg, ':');
+        fprintf(stderr, "fxledger: error: serve: cannot listen on %s port %u: %s\n", o->address, o->port,
+                why && why[1] == ' ' ? why + 2 : g_start_msg[0] ? g_start_msg : strerror(errno));
         rc = FXL_EIO;
         goto cleanup;
     }
+    g_running = 1;
     info = MHD_get_daemon_info(d, MHD_DAEMON_INFO_BIND_PORT);
     if (!o->quiet) {
         fprintf(stderr, "fxledger serve: listening on %s://%s%s%s:%u/ (%u threads; stop with Ctrl-C)\n",

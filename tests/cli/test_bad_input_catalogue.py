@@ -911,6 +911,12 @@ def catalogue(f):
             (W, ["serve", "--login-rate", "abc"], dict(code=1, expect="abc")),
             (O, ["serve", "--listen", "127.0.0.1:" + "9" * 5000], dict(code=1)),
             (H, ["serve", "--listen", SQL], dict(code=1)),
+            # refused by the server's start-up, with the same prefix
+            (W, ["serve", "--listen", "localhost:18080"], dict(code=1, expect="must be an IPv4 or IPv6")),
+            (R, ["serve", "--listen", "127.0.0.1:18443", "--tls-cert", "@nope.pem", "--tls-key",
+                 "@nope.key"], dict(code=2, expect="cannot read")),
+            # 192.0.2.1: TEST-NET-1 (RFC 5737), never an address of this machine
+            (R, ["serve", "--listen", "192.0.2.1:18080"], dict(code=2, expect="cannot listen on 192.0.2.1 port 18080: Cannot assign")),
         ],
     }
 

@@ -119,6 +119,8 @@ class FontSubsetTest(ReportTestCase):
             self.assertEqual(sub["cmap"].getcmap(3, 1).format, 4)
             # the licence of the fonts goes with the subset
             self.assertIn("Bitstream", sub["name"].getDebugName(13) or "")
+            # reproducible: the date in 'head' is the source font's, not the build's
+            self.assertEqual(sub["head"].modified, TTFont(FULL[weight])["head"].modified)
 
     def test_latin_greek_cyrillic_report_embeds_only_the_subset(self):
         for mrn, fam, giv in self.SUBSET_PEOPLE:
