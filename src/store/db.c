@@ -382,6 +382,13 @@ int fxl_open(fxl_ctx **out, const char *path, int flags)
         if ((rc = fxl_exec(ctx, "PRAGMA journal_mode = WAL")) != 0 ||
             (rc = fxl_exec(ctx, "PRAGMA synchronous = FULL")) != 0)
             return explain_open_failure(ctx, path, 0);
+        /* No checkpoint when the last connection closes: committed rows stay
+         * in the -wal file (already synced there: synchronous FULL) until
+         * SQLite's auto-checkpoint after 1,000 pages moves them into the
+         * file, so a command does not pay for copying the WAL at every exit.
+         * The database is the .db file together with its -wal: a copy is
+         * made with 'fxledger backup' (docs/robustness.md). */
+        sqlite3_db_config(ctx->db, SQLITE_DBCONFIG_NO_CKPT_ON_CLOSE, 1, (int *)NULL);
         /* SQLite opens a write-protected file read-only without a word;
          * say so now rather than at the first write. */
         if (sqlite3_db_readonly(ctx->db, "main") == 1) {

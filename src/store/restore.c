@@ -134,6 +134,25 @@ int fxl_restore_copy(fxl_ctx **out, const char *backup_path, const char *dest_pa
                       "with the fxledger that wrote it", backup_path, version, fxl_schema_latest());
         goto cleanup;
     }
+    /* A -wal (or -journal) left under the new name belongs to the database
+     * that had it: fxledger leaves committed rows in the -wal when it
+     * closes, and SQLite would replay them into the restored copy. */
+    {
+        static const char *const sides[] = {"-wal", "-journal"};
+        char side[FXL_OUTFILE_PATH_MAX + 16];
+        struct stat st;
+        size_t i;
+        for (i = 0; i < sizeof sides / sizeof sides[0]; i++) {
+            snprintf(side, sizeof side, "%s%s", dest_path, sides[i]);
+            if (lstat(side, &st) == 0) {
+                rc = fxl_fail(ctx, FXL_ECONFLICT,
+                              "'%s' lies beside '%s': it holds rows of the database that had that name; "
+                              "move it away together with that database's file, or name another file "
+                              "(nothing was written)", side, dest_path);
+                goto cleanup;
+            }
+        }
+    }
     if ((rc = fxl_outfile_open(&o, ctx, dest_path, FXL_OUT_NO_STDIO)) != 0)
         goto cleanup;
     if ((rc = copy_pages(ctx, src, o.tmp, dest_path, &npages)) != 0)

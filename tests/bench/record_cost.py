@@ -3,7 +3,7 @@
 in ways that do not depend on the machine's load (docs/performance.md).
 Not part of `make test` nor of `make bench`; run on demand:
 
-    tests/bench/record_cost.py build/fxledger-testclock [--callgrind]
+    tests/bench/record_cost.py build/fxledger-testclock [--callgrind] [--syscalls]
 
 Sets up a small INVENTED department through the test harness
 (tests/cli/fxlcli.py: one photon diode calibrated to N = 10 cGy/nC at the
@@ -17,7 +17,9 @@ state again for each measurement:
     cc (calls inside libsqlite3 itself, such as the statements that
     sqlite3_exec prepares, are not counted);
   - with --callgrind, the instructions of the whole process
-    (valgrind --tool=callgrind, "Collected" total).
+    (valgrind --tool=callgrind, "Collected" total);
+  - with --syscalls, the file-system calls that cost the disk (fsync,
+    fdatasync, pwrite64, ftruncate, unlink), counted by strace -c.
 """
 import os
 import shutil
@@ -146,6 +148,7 @@ def main():
     from fxlcli import Fxl
     binary = os.path.abspath(sys.argv[1])
     use_callgrind = "--callgrind" in sys.argv
+    use_strace = "--syscalls" in sys.argv
     work = tempfile.mkdtemp(prefix="fxlcost-")
     fx = Fxl(now="2026-09-25T09:00:00Z", bin=binary).init()
     try:
@@ -206,6 +209,22 @@ def main():
             for line in ann.splitlines():
                 if "=>" not in line and any(k in line for k in WATCH):
                     print("  " + line.strip())
+        if use_strace:
+            fresh()
+            out = os.path.join(work, "strace.txt")
+            r = subprocess.run(["strace", "-f", "-c", "-o", out, "-e",
+                                "trace=fsync,fdatasync,pwrite64,ftruncate,unlink"] + argv,
+                               env=env, capture_output=True, text=True)
+            if r.returncode != 0:
+                raise SystemExit("record under strace failed: " + r.stderr[-2000:])
+            with open(out) as f:
+                for line in f:
+                    parts = line.split()
+                    if len(parts) >= 5 and parts[-1] in ("fsync", "fdatasync", "pwrite64",
+                                                         "ftruncate", "unlink"):
+                        print("  %-10s %s calls" % (parts[-1], parts[3]))
+            beside = [sfx for sfx in ("-wal", "-shm") if os.path.exists(fx.db + sfx)]
+            print("  files beside the database after it: %s" % (", ".join(beside) or "none"))
     finally:
         fx.close()
         shutil.rmtree(work, ignore_errors=True)

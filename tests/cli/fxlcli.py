@@ -19,10 +19,12 @@ import json
 import os
 import re
 import shutil
+import sqlite3
 import subprocess
 import tempfile
 import time
 import unittest
+import urllib.parse
 
 BIN = os.environ.get("FXLEDGER_BIN") or os.path.join(
     os.path.dirname(__file__), "..", "..", "build", "fxledger-testclock")
@@ -57,6 +59,31 @@ def epoch(iso):
         return calendar.timegm(time.strptime(iso, "%Y-%m-%dT%H:%M:%SZ"))
     except (ValueError, TypeError):
         return int(time.time())
+
+
+def copy_database(src, dst):
+    """A copy of the database src at dst, made with SQLite's backup API
+    (Python's sqlite3 Connection.backup), as 'fxledger backup' makes one.
+    The database is the .db file together with its -wal: fxledger leaves
+    the latest committed rows in the -wal when it closes (no checkpoint at
+    close, docs/robustness.md), so a copy of the .db file alone would lose
+    them. src is opened read-only (nothing beside it changes); whatever was
+    at dst, with its -wal and -shm, is replaced; the copy is one file, mode
+    0600 as init makes it."""
+    for suffix in ("", "-wal", "-shm"):
+        if os.path.exists(dst + suffix):
+            os.remove(dst + suffix)
+    s = sqlite3.connect("file:%s?mode=ro" % urllib.parse.quote(src), uri=True)
+    try:
+        d = sqlite3.connect(dst)
+        try:
+            s.backup(d)
+        finally:
+            d.close()
+    finally:
+        s.close()
+    os.chmod(dst, 0o600)
+    return dst
 
 
 class Fxl:
@@ -259,13 +286,12 @@ class Fxl:
             self.ensure_session("admin")
             tdir = tempfile.mkdtemp(prefix="fxltemplate-")
             tdb = os.path.join(tdir, "template.db")
-            shutil.copyfile(self.db, tdb)
+            copy_database(self.db, tdb)
             Fxl._templates[key] = {"db": tdb, "token": self._token("admin"),
                                    "password": self.passwords["admin"],
                                    "session": dict(self.sessions["admin"])}
             return self
-        shutil.copyfile(t["db"], self.db)
-        os.chmod(self.db, 0o600)          # as init made it
+        copy_database(t["db"], self.db)
         self.passwords["admin"] = t["password"]
         self._write_session("admin", t["token"])
         self.sessions["admin"] = dict(t["session"])

@@ -21,14 +21,13 @@ import hashlib
 import json
 import os
 import re
-import shutil
 import sqlite3
 import subprocess
 import tempfile
 import unittest
 
 import record_fixture as rf
-from fxlcli import BIN, DATA, Fxl, main
+from fxlcli import BIN, DATA, Fxl, copy_database, main
 
 SQL = "x'); DROP TABLE measurements;--"
 ESC = "Bad\x1b[2J\x1b[31mName"           # terminal control sequence
@@ -155,7 +154,7 @@ class Department:
         for login in ("admin", "phil", "tina", "otto"):
             fx.ensure_session(login, NOW)
         self.pristine = fx.path("pristine.db")
-        shutil.copyfile(fx.db, self.pristine)
+        copy_database(fx.db, self.pristine)   # the .db with its -wal (fxlcli.py)
         self.digest = file_digest(fx.db)
         self.files = self.write_files()
 
@@ -331,10 +330,7 @@ class Department:
         return files
 
     def restore(self):
-        for suffix in ("-wal", "-shm"):
-            if os.path.exists(self.fx.db + suffix):
-                os.remove(self.fx.db + suffix)
-        shutil.copyfile(self.pristine, self.fx.db)
+        copy_database(self.pristine, self.fx.db)
 
     def close(self):
         self.fx.close()
@@ -1223,7 +1219,7 @@ class CatalogueTest(unittest.TestCase):
         folder = dep.fx.path("ro-folder")
         os.mkdir(folder)
         path = os.path.join(folder, "copy.db")
-        shutil.copyfile(dep.pristine, path)
+        copy_database(dep.pristine, path)
         try:
             for mode_dir, mode_file, says in ((0o555, 0o600, "is in a read-only folder"),
                                               (0o755, 0o400, "is read-only")):

@@ -27,14 +27,14 @@ class OutfileTest(FxlTestCase):
         return self.assertFailsUnchanged("report", "patient", "OUT-1", "--out", out, *extra, expect_code=2, **kw)
 
     def test_database_and_side_files_refused_even_with_force(self):
-        before = open(self.fx.db, "rb").read()
+        before = self.fx.digest()   # the .db and its -wal
         for target in (self.fx.db, self.fx.db + "-wal", self.fx.db + "-shm"):
             for force in ((), ("--force",)):
                 with self.subTest(target=target, force=force):
                     r = self.report(target, *force)
                     self.assertTrue("open fxledger database" in r.stderr or "SQLite database" in r.stderr,
                                     r.stderr)
-        self.assertEqual(open(self.fx.db, "rb").read(), before)
+        self.assertEqual(self.fx.digest(), before)
         self.assertEqual(self.fx.json("verify")["ok"], True)
 
     def test_other_sqlite_file_refused_even_with_force(self):

@@ -198,6 +198,17 @@ class RestoreDrillTest(ReviewCase):
         r, _ = self.restore(existing, self.fx.path("x.db"))
         self.assertEqual(r.returncode, 3, r.stderr)
         self.assertIn("is not an fxledger database", r.stderr)
+        # A -wal left beside the new name (its database file moved away
+        # without it) would be replayed into the copy: refused, nothing made.
+        stale = self.fx.path("gone.db-wal")
+        with open(stale, "wb") as f:
+            f.write(b"rows of another database\n")
+        r, _ = self.restore(backup, self.fx.path("gone.db"))
+        self.assertEqual(r.returncode, 2, r.stderr)
+        self.assertIn("gone.db-wal' lies beside", r.stderr)
+        self.assertFalse(os.path.exists(self.fx.path("gone.db")))
+        with open(stale, "rb") as f:
+            self.assertEqual(f.read(), b"rows of another database\n")
         self.assertFalse(os.path.exists(self.fx.path("x.db")))
         r, _ = self.restore(self.fx.path("missing.db"), self.fx.path("x.db"))
         self.assertEqual(r.returncode, 2, r.stderr)   # a missing input file is a data error (issue 10)
