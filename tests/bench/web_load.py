@@ -71,26 +71,9 @@ THREADS = 4
 
 
 def start_server(wf, fx, threads):
-    """webfixture.Server with `threads` worker threads (the fixture's own
-    runs 2) and the login rate limit raised for the many logins here."""
-    import re
-    import subprocess
-    srv = wf.Server.__new__(wf.Server)
-    srv.fx = fx
-    srv.clock = fx.path("now.txt")
-    srv.set_now(fx.now)
-    env = fx.env("admin", extra={"FXLEDGER_NOW_FILE": srv.clock})
-    srv.proc = subprocess.Popen([fx.bin, "--db", fx.db, "serve", "--listen", "127.0.0.1:0",
-                                 "--threads", str(threads), "--login-rate", "1000"],
-                                env=env, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
-                                stderr=subprocess.PIPE, text=True)
-    line = srv.proc.stderr.readline()
-    m = re.search(r"listening on https?://127\.0\.0\.1:(\d+)/", line)
-    if not m:
-        srv.proc.kill()
-        raise AssertionError("serve did not start: %r %s" % (line, srv.proc.stderr.read()))
-    srv.port = int(m.group(1))
-    return srv
+    """webfixture.Server with `threads` worker threads and the login rate
+    limit raised for the many logins here."""
+    return wf.Server(fx, ("--login-rate", "1000"), threads=threads)
 
 
 def setup(wf, fx, clients, fractions, serial):

@@ -89,15 +89,16 @@ def department(fx, hostile=True):
 
 
 class Server:
-    """fxledger serve on 127.0.0.1 and a free port, clock from a file."""
+    """fxledger serve on 127.0.0.1 and a free port, clock from a file;
+    `threads` worker threads (2 for the tests), `extra` options."""
 
-    def __init__(self, fx, extra=()):
+    def __init__(self, fx, extra=(), threads=2):
         self.fx = fx
         self.clock = fx.path("now.txt")
         self.set_now(fx.now)
         env = fx.env("admin", extra={"FXLEDGER_NOW_FILE": self.clock})
         self.proc = subprocess.Popen([fx.bin, "--db", fx.db, "serve", "--listen", "127.0.0.1:0",
-                                      "--threads", "2"] + list(extra),
+                                      "--threads", str(threads)] + list(extra),
                                      env=env, stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
                                      stderr=subprocess.PIPE, text=True)
         line = self.proc.stderr.readline()
