@@ -35,6 +35,12 @@ int fxl_dicom_part10_detect(const unsigned char *data, size_t len);
 int fxl_dicom_part10_to_json(fxl_ctx *ctx, const unsigned char *data, size_t len, const char *source,
                              char **json, size_t *json_len);
 
+/* The reader itself (src/io/dicom_part10.cpp), the same contract. It lives
+ * in the module fxledger-dicom.so, which fxl_dicom_part10_to_json loads;
+ * the unit tests and fuzzers link it in. */
+int fxl_dicom_part10_read(fxl_ctx *ctx, const unsigned char *data, size_t len, const char *source,
+                          char **json, size_t *json_len);
+
 #ifdef __cplusplus
 }
 #endif

@@ -6,9 +6,8 @@
 #include <string.h>
 
 #include "cli/cli.h"
+#include "fxl/module.h"
 #include "web/serve.h"
-
-void web_set_login_rate(unsigned per_minute);
 
 /* ADDR:PORT, [v6addr]:PORT, or :PORT / PORT alone (loopback). */
 static int parse_listen(char *addr, size_t size, unsigned *port, const char *text)
@@ -50,6 +49,8 @@ int cmd_serve(cli_env *env, int argc, char **argv)
                       {"login-rate", "N", "login attempts per minute per client address (default 10)", NULL},
                       {NULL, NULL, NULL, NULL}};
     web_options o;
+    int (*serve)(const web_options *);
+    char why[512];
     const char *pos[1];
     char addr[64];
     long n;
@@ -89,9 +90,14 @@ int cmd_serve(cli_env *env, int argc, char **argv)
     if (cli_get(opts, "login-rate")) {
         if (cli_int(&n, cli_get(opts, "login-rate"), "--login-rate", 1, 1000) != 0)
             return CLI_EXIT_USAGE;
-        web_set_login_rate((unsigned)n);
+        o.login_rate = (unsigned)n;
     }
-    rc = web_serve(&o);
+    /* The console lives in the module fxledger-web.so (include/fxl/module.h). */
+    if ((serve = (int (*)(const web_options *))fxl_module_symbol("web", "web_serve", why, sizeof why)) == NULL) {
+        cli_error("serve: %s", why);
+        return CLI_EXIT_DATA;
+    }
+    rc = serve(&o);
     if (rc == FXL_EINVAL)
         return CLI_EXIT_USAGE;
     return rc == 0 ? CLI_EXIT_OK : rc == FXL_EDB ? CLI_EXIT_DB : CLI_EXIT_DATA;

@@ -5,7 +5,9 @@
  * the transfer syntax (named when refused), a file that DCMTK cannot read to
  * its end, and the character set. No value is taken from the data set here,
  * so an absent attribute stays absent (never DCMTK's default of 0 or "").
- * The C interface is include/fxl/dicom_part10.h; docs/dicom-import.md. */
+ * The C interface is include/fxl/dicom_part10.h; docs/dicom-import.md.
+ * Built into the module fxledger-dicom.so (include/fxl/module.h), which the
+ * program loads when a Part 10 file is imported. */
 #include "dcmtk/config/osconfig.h"
 
 #include "dcmtk/dcmdata/dcdatset.h"
@@ -312,14 +314,8 @@ int dataset_json(fxl_ctx *ctx, DcmDataset *ds, const char *name, std::string &ou
 
 } // namespace
 
-extern "C" int fxl_dicom_part10_detect(const unsigned char *data, size_t len)
-{
-    return data && len >= FXL_DICOM_PREAMBLE_LEN + 4 &&
-           std::memcmp(data + FXL_DICOM_PREAMBLE_LEN, "DICM", 4) == 0;
-}
-
-extern "C" int fxl_dicom_part10_to_json(fxl_ctx *ctx, const unsigned char *data, size_t len, const char *source,
-                                        char **json, size_t *json_len)
+extern "C" int fxl_dicom_part10_read(fxl_ctx *ctx, const unsigned char *data, size_t len, const char *source,
+                                     char **json, size_t *json_len)
 {
     const char *name = source ? source : "RT Plan";
 

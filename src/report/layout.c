@@ -15,6 +15,7 @@
 
 #include "fxl/core.h"
 #include "fxl/outfile.h"
+#include "fxl/module.h"
 
 #define MARGIN_SIDE 36.0
 #define MARGIN_TOP 28.0
@@ -50,28 +51,14 @@ static int font_path(fxl_ctx *ctx, char *out, size_t n, const char *dir, const c
 static int subset_path(char *out, size_t n, const char *file, long size)
 {
     static const char *const rel[] = {"fonts", "../share/fxledger/fonts"};
-    char exe[1024];
-    ssize_t len;
     struct stat st;
     size_t i;
-    char *slash;
 
     if (!file[0] || size <= 0)
         return -1;
-    len = readlink("/proc/self/exe", exe, sizeof exe - 1);
-    if (len <= 0 || (size_t)len >= sizeof exe - 1)
-        return -1;
-    exe[len] = '\0';
-    if ((slash = strrchr(exe, '/')) == NULL)
-        return -1;
-    *slash = '\0';
-    for (i = 0; i < sizeof rel / sizeof rel[0]; i++) {
-        if ((size_t)snprintf(out, n, "%s/%s/%s", exe, rel[i], file) >= n)
-            continue;
-        if (stat(out, &st) == 0 && S_ISREG(st.st_mode) && st.st_size == size &&
-            access(out, R_OK) == 0)
+    for (i = 0; i < sizeof rel / sizeof rel[0]; i++)
+        if (fxl_beside_program(out, n, rel[i], file) == 0 && stat(out, &st) == 0 && st.st_size == size)
             return 0;
-    }
     return -1;
 }
 

@@ -12,6 +12,7 @@ typedef struct web_options {
     const char *tls_key;
     int behind_tls_proxy;    /* a TLS reverse proxy on this host: cookies Secure, HSTS */
     int quiet;               /* no start-up line on stderr */
+    unsigned login_rate;     /* login attempts per minute per client address; 0: the default */
 } web_options;
 
 #define WEB_DEFAULT_PORT 8617

@@ -485,6 +485,8 @@ int web_serve(const web_options *o)
     int sig, rc = 0;
 
     g_opts = o;
+    if (o->login_rate)
+        web_set_login_rate(o->login_rate);
     /* The store switches TZ to the department's zone under a lock (store/
      * zone.c); an existing TZ entry is replaced in place, never removed, so
      * the environment array is not reallocated under a reading thread. */

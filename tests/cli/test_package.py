@@ -53,10 +53,11 @@ class PackageTest(unittest.TestCase):
         self.assertEqual(self.field("Package"), "fxledger")
         self.assertRegex(self.field("Version"), r"^\d+\.\d+\.\d+-\d+$")
         depends = self.field("Depends")
-        # From dpkg-shlibdeps: the libraries the program links (ldd of the
-        # program), and the fonts named by hand.
+        # From dpkg-shlibdeps: the libraries the program and its modules
+        # link (ldd of each; libmicrohttpd and DCMTK only through the
+        # modules), and the fonts named by hand.
         for lib in ("libsqlite3-0", "libsodium23", "libcjson1", "libhpdf-2.3.0", "libutf8proc2",
-                    "libmicrohttpd12", "fonts-dejavu-core", "libc6"):
+                    "libmicrohttpd12", "libdcmtk17", "fonts-dejavu-core", "libc6"):
             self.assertIn(lib, depends)
         listing = subprocess.run(["dpkg-deb", "-c", self.deb], capture_output=True, text=True,
                                  check=True).stdout
@@ -67,6 +68,8 @@ class PackageTest(unittest.TestCase):
                   "usr/lib/systemd/system/fxledger-backup.service",
                   "usr/lib/systemd/system/fxledger-backup.timer",
                   "usr/lib/fxledger/fxledger-scheduled-backup",
+                  "usr/lib/fxledger/modules/fxledger-web.so",
+                  "usr/lib/fxledger/modules/fxledger-dicom.so",
                   "usr/share/doc/fxledger/docs/deployment.md"):
             self.assertIn(f, files)
         # The report font subset (docs/reports.md), where the program looks,
@@ -96,6 +99,13 @@ class PackageTest(unittest.TestCase):
             v = subprocess.run([exe, "--version"], capture_output=True, text=True, timeout=30)
             self.assertEqual(v.returncode, 0, v.stderr)
             self.assertRegex(v.stdout, r"^fxledger \d+\.\d+\.\d+")
+            # The installed program finds its web console module (it is
+            # loaded before the database is opened, which then fails here).
+            s = subprocess.run([exe, "--db", os.path.join(root, "none.db"), "serve", "--listen",
+                                "127.0.0.1:0"], capture_output=True, text=True, timeout=30)
+            self.assertEqual(s.returncode, 3, s.stderr)
+            self.assertIn("does not exist", s.stderr)
+            self.assertNotIn("module", s.stderr)
             # Stripped (lintian's unstripped-binary-or-object is an error).
             self.assertNotIn("not stripped", subprocess.run(["file", exe], capture_output=True,
                                                             text=True).stdout if shutil.which("file") else "")
