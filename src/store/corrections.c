@@ -13,6 +13,7 @@
 #include "store/audit.h"
 #include "store/auth_int.h"
 #include "store/grow.h"
+#include "store/seal.h"
 #include "store/stmt.h"
 
 static int table_exists(fxl_ctx *ctx, int *exists, int64_t detector_id, int64_t beam_id,
@@ -235,6 +236,10 @@ int fxl_corr_store(fxl_ctx *ctx, int64_t **out_ids, const fxl_corr_file *file)
             cJSON_AddItemToArray(pair, cJSON_CreateNumber(t->points[j].factor));
             cJSON_AddItemToArray(points, pair);
         }
+        /* correction_points has no rowid, so the update hook does not see
+         * it: the points are part of their table's seal. */
+        if ((rc = fxl_seal_mark(ctx, "correction_tables", ids[i])) != 0)
+            goto cleanup;
         if ((rc = fxl_audit_append(ctx, "load", "correction_tables", ids[i], audit)) != 0)
             goto cleanup;
         if ((rc = fxl_signature_add(ctx, "correction_tables", ids[i], "correction table loaded")) != 0)

@@ -19,6 +19,13 @@ struct fxl_stmt_slot {
     int lent;          /* 1 while an fxl_stmt holds it */
 };
 
+/* A row written since the last seal (store/seal.c): an index into
+ * fxl_sealed_tables and the row's rowid. */
+struct fxl_seal_mark {
+    int64_t row_id;
+    int tbl;
+};
+
 struct fxl_ctx {
     sqlite3 *db;
     int readonly;
@@ -33,6 +40,9 @@ struct fxl_ctx {
     int64_t sign_user_id;
     char origin[64];       /* client address of a served request, "" if none */
     int sealing;           /* 1: rows written are sealed by the next audit row (store/seal.c) */
+    struct fxl_seal_mark *marks; /* filled by the update hook, unsorted, may repeat */
+    size_t n_marks, cap_marks;
+    int marks_lost;        /* 1: the hook could not store a mark: the next seal fails */
     struct fxl_stmt_slot stmt_cache[FXL_STMT_CACHE_SLOTS];
     int stmt_cache_used;
 };

@@ -420,6 +420,7 @@ void fxl_close(fxl_ctx *ctx)
     fxl_sign_end(ctx);
     fxl_stmt_cache_release(ctx);
     sqlite3_close_v2(ctx->db);
+    fxl_seal_release(ctx);
     free(ctx);
 }
 
@@ -546,8 +547,11 @@ int fxl_commit(fxl_ctx *ctx)
 
 void fxl_rollback(fxl_ctx *ctx)
 {
-    if (ctx && ctx->db && !sqlite3_get_autocommit(ctx->db))
+    if (ctx && ctx->db && !sqlite3_get_autocommit(ctx->db)) {
         sqlite3_exec(ctx->db, "ROLLBACK", NULL, NULL, NULL);
+        /* The rollback hook forgot the marks already; this says so here. */
+        fxl_seal_discard(ctx);
+    }
 }
 
 void fxl_now(const fxl_ctx *ctx, char *buf)

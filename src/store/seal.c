@@ -1,9 +1,9 @@
 /* Row seals (docs/audit.md): every clinical row the program writes or
- * changes is marked by a temporary trigger of the connection; the next
- * audit row of the transaction seals the marked rows (the SHA-256 of each
- * row's canonical content, kept in row_seals) and carries the SHA-256 of
- * its seals in its own hash. Nothing here is stored in the file except the
- * seals: the marks live in the connection's temporary database. */
+ * changes is marked by the connection's SQLite update hook in the context's
+ * memory; the next audit row of the transaction seals the marked rows (the
+ * SHA-256 of each row's canonical content, kept in row_seals) and carries
+ * the SHA-256 of its seals in its own hash. Nothing here is stored in the
+ * file except the seals. A rollback forgets the marks. */
 #include <sodium.h>
 #include <stdio.h>
 #include <stdlib.h>
@@ -165,51 +165,125 @@ void fxl_seal_row_digest(char hex[65], const char *tbl, int64_t row_id, const ch
     row_digest(hex, tbl, row_id, canon);
 }
 
+/* Stores one mark. Called from the update hook, so no SQL here; on an
+ * allocation failure the mark is lost and marks_lost makes the next seal
+ * fail, never leaving a written row unsealed without a word. Repeated
+ * marks are folded at seal time. */
+static int add_mark(fxl_ctx *ctx, int tbl, int64_t row_id)
+{
+    if (ctx->n_marks == ctx->cap_marks) {
+        size_t cap = ctx->cap_marks ? ctx->cap_marks * 2 : 64;
+        struct fxl_seal_mark *m = realloc(ctx->marks, cap * sizeof *m);
+        if (!m) {
+            ctx->marks_lost = 1;
+            return -1;
+        }
+        ctx->marks = m;
+        ctx->cap_marks = cap;
+    }
+    ctx->marks[ctx->n_marks].tbl = tbl;
+    ctx->marks[ctx->n_marks].row_id = row_id;
+    ctx->n_marks++;
+    return 0;
+}
+
+static int sealed_index(const char *tbl)
+{
+    int i;
+
+    for (i = 0; fxl_sealed_tables[i]; i++)
+        if (strcmp(fxl_sealed_tables[i], tbl) == 0)
+            return i;
+    return -1;
+}
+
+/* Inserts and updates of main's sealed tables, as the AFTER INSERT / AFTER
+ * UPDATE triggers of earlier versions did; deletes are not marked (they
+ * were not then either). */
+static void on_update(void *arg, int op, const char *db, const char *tbl, sqlite3_int64 row_id)
+{
+    fxl_ctx *ctx = arg;
+    int i;
+
+    if ((op != SQLITE_INSERT && op != SQLITE_UPDATE) || strcmp(db, "main") != 0)
+        return;
+    if ((i = sealed_index(tbl)) >= 0)
+        add_mark(ctx, i, (int64_t)row_id);
+}
+
+static void on_rollback(void *arg)
+{
+    fxl_seal_discard(arg);
+}
+
+void fxl_seal_discard(fxl_ctx *ctx)
+{
+    ctx->n_marks = 0;
+    ctx->marks_lost = 0;
+}
+
+void fxl_seal_release(fxl_ctx *ctx)
+{
+    free(ctx->marks);
+    ctx->marks = NULL;
+    ctx->n_marks = ctx->cap_marks = 0;
+}
+
+int fxl_seal_mark(fxl_ctx *ctx, const char *tbl, int64_t row_id)
+{
+    int i = sealed_index(tbl);
+
+    if (!ctx->sealing)
+        return 0;
+    if (i < 0)
+        return fxl_fail(ctx, FXL_EDB, "internal: table '%s' is not sealed", tbl);
+    if (add_mark(ctx, i, row_id) != 0)
+        return fxl_fail(ctx, FXL_EIO, "out of memory marking rows to seal");
+    return 0;
+}
+
 int fxl_seal_attach(fxl_ctx *ctx)
 {
-    char sql[512];
-    size_t i;
-    int rc;
-
-    if ((rc = fxl_exec(ctx, "CREATE TEMP TABLE IF NOT EXISTS fxl_dirty (tbl TEXT NOT NULL, "
-                            "row_id INTEGER NOT NULL, PRIMARY KEY (tbl, row_id)) WITHOUT ROWID")) != 0)
-        return rc;
-    for (i = 0; fxl_sealed_tables[i]; i++) {
-        const char *t = fxl_sealed_tables[i];
-        snprintf(sql, sizeof sql,
-                 "CREATE TEMP TRIGGER IF NOT EXISTS fxl_seal_%s_ins AFTER INSERT ON main.\"%s\" "
-                 "BEGIN INSERT OR IGNORE INTO fxl_dirty VALUES ('%s', NEW.rowid); END",
-                 t, t, t);
-        if ((rc = fxl_exec(ctx, sql)) != 0)
-            return rc;
-        snprintf(sql, sizeof sql,
-                 "CREATE TEMP TRIGGER IF NOT EXISTS fxl_seal_%s_upd AFTER UPDATE ON main.\"%s\" "
-                 "BEGIN INSERT OR IGNORE INTO fxl_dirty VALUES ('%s', NEW.rowid); END",
-                 t, t, t);
-        if ((rc = fxl_exec(ctx, sql)) != 0)
-            return rc;
-    }
-    /* A correction table's points are part of its content. */
-    if ((rc = fxl_exec(ctx, "CREATE TEMP TRIGGER IF NOT EXISTS fxl_seal_correction_points_ins "
-                            "AFTER INSERT ON main.correction_points BEGIN INSERT OR IGNORE INTO "
-                            "fxl_dirty VALUES ('correction_tables', NEW.table_id); END")) != 0)
-        return rc;
+    /* Every sealed table has a rowid (the update hook does not see WITHOUT
+     * ROWID tables); correction_points is WITHOUT ROWID and its writer
+     * marks its table with fxl_seal_mark. The marks of a migration that
+     * attached already are kept. */
+    sqlite3_update_hook(ctx->db, on_update, ctx);
+    sqlite3_rollback_hook(ctx->db, on_rollback, ctx);
     ctx->sealing = 1;
     return 0;
 }
 
 int fxl_seal_has_pending(fxl_ctx *ctx)
 {
-    fxl_stmt s = FXL_STMT_INIT;
-    int rc;
+    return ctx->sealing && (ctx->n_marks > 0 || ctx->marks_lost);
+}
 
-    if (!ctx->sealing)
-        return 0;
-    if (fxl_stmt_prepare_cached(&s, ctx, "SELECT 1 FROM temp.fxl_dirty LIMIT 1") != 0)
-        return 0;
-    rc = fxl_stmt_step(&s);
-    fxl_stmt_finalize(&s);
-    return rc == 1;
+/* The order of the temporary table of earlier versions, kept so that the
+ * same rows get the same seals in the same order: table name by strcmp
+ * (SQLite's BINARY collation), then rowid. */
+static int mark_cmp(const void *a, const void *b)
+{
+    const struct fxl_seal_mark *x = a, *y = b;
+    int c = x->tbl == y->tbl ? 0 : strcmp(fxl_sealed_tables[x->tbl], fxl_sealed_tables[y->tbl]);
+
+    if (c)
+        return c;
+    return x->row_id < y->row_id ? -1 : x->row_id > y->row_id;
+}
+
+/* Sorts the marks and folds repeats. */
+static void sort_marks(fxl_ctx *ctx)
+{
+    size_t i, n = 0;
+
+    if (ctx->n_marks == 0)
+        return;
+    qsort(ctx->marks, ctx->n_marks, sizeof *ctx->marks, mark_cmp);
+    for (i = 1; i < ctx->n_marks; i++)
+        if (mark_cmp(&ctx->marks[n], &ctx->marks[i]) != 0)
+            ctx->marks[++n] = ctx->marks[i];
+    ctx->n_marks = n + 1;
 }
 
 static void seal_line(crypto_hash_sha256_state *st, const char *tbl, int64_t row_id, const char *sha)
@@ -222,8 +296,9 @@ static void seal_line(crypto_hash_sha256_state *st, const char *tbl, int64_t row
 
 int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
 {
-    fxl_stmt dirty = FXL_STMT_INIT, ins = FXL_STMT_INIT, row = FXL_STMT_INIT;
-    char cur_tbl[64] = "";
+    fxl_stmt ins = FXL_STMT_INIT, row = FXL_STMT_INIT;
+    int cur_tbl = -1;
+    size_t i;
     crypto_hash_sha256_state st;
     unsigned char d[crypto_hash_sha256_BYTES];
     int64_t n = 0;
@@ -232,22 +307,24 @@ int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
     seal_hex[0] = '\0';
     if (!ctx->sealing)
         return 0;
+    if (ctx->marks_lost)
+        return fxl_fail(ctx, FXL_EIO, "out of memory marking rows to seal: the transaction cannot be sealed");
     crypto_hash_sha256_init(&st);
-    if ((rc = fxl_stmt_prepare_cached(&dirty, ctx, "SELECT tbl, row_id FROM temp.fxl_dirty ORDER BY tbl, row_id")) != 0 ||
-        (rc = fxl_stmt_prepare_cached(&ins, ctx,
+    sort_marks(ctx);
+    if ((rc = fxl_stmt_prepare_cached(&ins, ctx,
                                "INSERT INTO main.row_seals (tbl, row_id, audit_id, sha256) "
                                "VALUES (:t, :r, :a, :h)")) != 0)
         goto cleanup;
     /* The marks come in table order: one prepared row query per table. */
-    while ((rc = fxl_stmt_step(&dirty)) == 1) {
-        const char *tbl = fxl_stmt_text(&dirty, 0);
-        int64_t row_id = fxl_stmt_int(&dirty, 1);
+    for (i = 0; i < ctx->n_marks; i++) {
+        const char *tbl = fxl_sealed_tables[ctx->marks[i].tbl];
+        int64_t row_id = ctx->marks[i].row_id;
         char hex[65];
-        if (strcmp(tbl, cur_tbl) != 0) {
+        if (ctx->marks[i].tbl != cur_tbl) {
             char *expr = NULL, *sql;
             size_t len;
             fxl_stmt_finalize(&row);
-            snprintf(cur_tbl, sizeof cur_tbl, "%s", tbl);
+            cur_tbl = ctx->marks[i].tbl;
             if ((rc = canon_expr(ctx, tbl, &expr)) != 0)
                 goto cleanup;
             len = strlen(expr) + strlen(tbl) + 64;
@@ -267,11 +344,14 @@ int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
         fxl_stmt_bind_int(&row, ":id", row_id);
         if ((rc = fxl_stmt_step(&row)) < 0)
             goto cleanup;
-        if (rc == 0) {
-            rc = fxl_fail(ctx, FXL_EDB, "%s row %lld was written but is gone before its seal",
-                          tbl, (long long)row_id);
-            goto cleanup;
-        }
+        /* A row marked but gone: SQLite undid the statement that wrote it
+         * (a foreign key or a later row of the same statement failed after
+         * the hook ran; the hook cannot see statement rollbacks, the
+         * temporary table of earlier versions was undone with them). The
+         * program deletes no row of a sealed table, so nothing else leaves
+         * a mark without a row, and there is nothing to seal. */
+        if (rc == 0)
+            continue;
         row_digest(hex, tbl, row_id, fxl_stmt_text(&row, 0));
         fxl_stmt_reset(&ins);
         fxl_stmt_bind_text(&ins, ":t", tbl);
@@ -283,18 +363,13 @@ int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
         seal_line(&st, tbl, row_id, hex);
         n++;
     }
-    if (rc < 0)
-        goto cleanup;
-    fxl_stmt_finalize(&dirty);
-    if ((rc = fxl_stmt_prepare_cached(&dirty, ctx, "DELETE FROM temp.fxl_dirty")) != 0 ||
-        (rc = fxl_stmt_exec(&dirty)) != 0)
-        goto cleanup;
+    rc = 0;
+    ctx->n_marks = 0;
     if (n > 0) {
         crypto_hash_sha256_final(&st, d);
         sodium_bin2hex(seal_hex, 65, d, sizeof d);
     }
 cleanup:
-    fxl_stmt_finalize(&dirty);
     fxl_stmt_finalize(&ins);
     fxl_stmt_finalize(&row);
     return rc;
@@ -330,18 +405,28 @@ cleanup:
 
 int fxl_seal_mark_all(fxl_ctx *ctx, int64_t *n_marked)
 {
+    fxl_stmt s = FXL_STMT_INIT;
     char sql[256];
-    size_t i;
-    int rc;
+    int i, rc = 0;
 
     *n_marked = 0;
     for (i = 0; fxl_sealed_tables[i]; i++) {
-        snprintf(sql, sizeof sql,
-                 "INSERT OR IGNORE INTO temp.fxl_dirty SELECT '%s', rowid FROM main.\"%s\"",
-                 fxl_sealed_tables[i], fxl_sealed_tables[i]);
-        if ((rc = fxl_exec(ctx, sql)) != 0)
-            return rc;
-        *n_marked += sqlite3_changes(ctx->db);
+        snprintf(sql, sizeof sql, "SELECT rowid FROM main.\"%s\"", fxl_sealed_tables[i]);
+        if ((rc = fxl_stmt_prepare(&s, ctx, sql)) != 0)
+            goto cleanup;
+        while ((rc = fxl_stmt_step(&s)) == 1) {
+            if (add_mark(ctx, i, fxl_stmt_int(&s, 0)) != 0) {
+                rc = fxl_fail(ctx, FXL_EIO, "out of memory marking rows to seal");
+                goto cleanup;
+            }
+            (*n_marked)++;
+        }
+        if (rc < 0)
+            goto cleanup;
+        fxl_stmt_finalize(&s);
     }
-    return 0;
+    rc = 0;
+cleanup:
+    fxl_stmt_finalize(&s);
+    return rc;
 }

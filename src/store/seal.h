@@ -14,10 +14,22 @@
  * change (sql/011), and verify matches them with that row's content. */
 extern const char *const fxl_sealed_tables[];
 
-/* On a connection open for writing, at schema version 11 or later: the
- * temporary table of rows written since the last audit row and the
- * temporary triggers that fill it (nothing is stored in the file). */
+/* On a connection open for writing, at schema version 11 or later: an
+ * update hook that marks, in the context's memory, the rows written since
+ * the last audit row, and a rollback hook that forgets them (nothing is
+ * stored in the file). */
 int fxl_seal_attach(fxl_ctx *ctx);
+
+/* Marks a row as written, for writes the update hook cannot see (WITHOUT
+ * ROWID tables: a correction table's points mark their table). */
+int fxl_seal_mark(fxl_ctx *ctx, const char *tbl, int64_t row_id);
+
+/* Forgets the marks (a rolled-back transaction; tests that write rows
+ * they do not want sealed). */
+void fxl_seal_discard(fxl_ctx *ctx);
+
+/* Frees the marks (fxl_close). */
+void fxl_seal_release(fxl_ctx *ctx);
 
 /* Seals every row written since the last audit row under audit row
  * `audit_id`: inserts their row_seals and gives the SHA-256 of those seals

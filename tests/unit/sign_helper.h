@@ -14,6 +14,7 @@
 
 #include "fxl/auth.h"
 #include "store/ctx.h"
+#include "store/seal.h"
 
 typedef struct test_key {
     const fxl_ctx *ctx;
@@ -44,7 +45,7 @@ static int test_make_key(fxl_ctx *ctx, test_key *k)
     /* No audit row: unit tests count audit rows of the acts they test and
      * never run the signature check of verify. So no seal either (the
      * commit would add an audit row for the unsealed key, store/seal.c). */
-    sqlite3_exec(ctx->db, "DELETE FROM temp.fxl_dirty", NULL, NULL, NULL);
+    fxl_seal_discard(ctx);
     rc = 0;
     if (rc == 0)
         rc = fxl_commit(ctx);

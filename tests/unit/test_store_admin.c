@@ -21,7 +21,9 @@
 #include "fxl/machines.h"
 #include "fxl/settings.h"
 #include "fxl/users.h"
+#include "store/audit.h"
 #include "store/ctx.h"
+#include "store/seal.h"
 #include "sign_helper.h"
 
 static void assert_near_at(double got, double want, double eps, const char *expr,
@@ -677,6 +679,48 @@ static void test_store_admin_corrections_store_and_list(void **state)
     assert_int_equal(fxl_corr_get(f->ctx, &t, 999, NULL), FXL_ENOTFOUND);
 }
 
+/* Row seals follow the transaction (store/seal.c): a row written inside a
+ * rolled-back transaction is not sealed by the next audit row, and a row
+ * marked twice in one transaction (the update hook and an explicit mark,
+ * as a correction table's points do) gets exactly one seal. Machines are
+ * never updated (sql/001), so the writes here are inserts. */
+static void test_store_admin_seal_marks_follow_transaction(void **state)
+{
+    fixture *f = *state;
+    cJSON *content = cJSON_CreateObject();
+    int64_t before, audit_id;
+
+    assert_non_null(content);
+    add_basics(f);
+    before = count(f, "SELECT count(*) FROM row_seals WHERE tbl = 'machines'");
+    assert_true(before >= 1);
+
+    assert_int_equal(fxl_begin(f->ctx), 0);
+    exec_sql(f, "INSERT INTO machines (name, sad_cm, created_at) VALUES ('LINAC-R', 100, '2026-11-02T09:00:00Z')");
+    assert_true(fxl_seal_has_pending(f->ctx));
+    fxl_rollback(f->ctx);
+    assert_false(fxl_seal_has_pending(f->ctx));
+    assert_int_equal(fxl_begin(f->ctx), 0);
+    assert_int_equal(fxl_audit_append(f->ctx, "test", "machines", 0, content), 0);
+    assert_int_equal(fxl_commit(f->ctx), 0);
+    assert_int_equal(count(f, "SELECT count(*) FROM row_seals WHERE tbl = 'machines'"), before);
+
+    assert_int_equal(fxl_begin(f->ctx), 0);
+    exec_sql(f, "INSERT INTO machines (name, sad_cm, created_at) VALUES ('LINAC-T', 100, '2026-11-02T09:00:00Z')");
+    assert_int_equal(fxl_seal_mark(f->ctx, "machines", sqlite3_last_insert_rowid(f->ctx->db)), 0);
+    assert_int_equal(fxl_audit_append(f->ctx, "test", "machines", 0, content), 0);
+    assert_int_equal(fxl_commit(f->ctx), 0);
+    audit_id = count(f, "SELECT max(id) FROM audit_log");
+    assert_int_equal(count(f, "SELECT count(*) FROM row_seals WHERE tbl = 'machines'"), before + 1);
+    {
+        char sql[160];
+        snprintf(sql, sizeof sql, "SELECT count(*) FROM row_seals WHERE audit_id = %lld", (long long)audit_id);
+        assert_int_equal(count(f, sql), 1);
+    }
+    assert_false(fxl_seal_has_pending(f->ctx));
+    cJSON_Delete(content);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -692,6 +736,7 @@ int main(void)
         cmocka_unit_test_setup_teardown(test_store_admin_accumulated_dose_since_calibration, setup, teardown),
         cmocka_unit_test_setup_teardown(test_store_admin_corrections_parse, setup, teardown),
         cmocka_unit_test_setup_teardown(test_store_admin_corrections_store_and_list, setup, teardown),
+        cmocka_unit_test_setup_teardown(test_store_admin_seal_marks_follow_transaction, setup, teardown),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
