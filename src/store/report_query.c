@@ -65,12 +65,16 @@ int fxl_rq_patient_signatures_each(fxl_ctx *ctx, int64_t patient_id, fxl_rq_sign
     int rc;
 
     rc = fxl_stmt_prepare(&s, ctx,
+        /* From the patient outwards (CROSS JOIN keeps that order): left
+         * to itself SQLite starts from the signatures of one kind, all of
+         * the database's (tests/cli/test_query_plans.py). */
         "SELECT 'review item #' || e.item_id, g.login, g.printed_name, g.signed_at, g.meaning, g.id "
-        "FROM signatures g JOIN review_events e ON g.entity = 'review_events' AND e.id = g.entity_id "
-        "JOIN review_items i ON i.id = e.item_id WHERE i.patient_id = :patient "
+        "FROM review_items i CROSS JOIN review_events e ON e.item_id = i.id "
+        "CROSS JOIN signatures g ON g.entity = 'review_events' AND g.entity_id = e.id "
+        "WHERE i.patient_id = :patient "
         "UNION ALL "
         "SELECT 'plan ' || p.label, g.login, g.printed_name, g.signed_at, g.meaning, g.id "
-        "FROM signatures g JOIN plans p ON g.entity = 'plans' AND p.id = g.entity_id "
+        "FROM plans p CROSS JOIN signatures g ON g.entity = 'plans' AND g.entity_id = p.id "
         "WHERE p.patient_id = :patient ORDER BY 4, 6");
     if (rc != 0)
         goto cleanup;

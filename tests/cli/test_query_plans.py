@@ -93,7 +93,7 @@ def has_function(function):
                      re.M) is not None
 
 
-PARAMS = {"fr": 1, "d": 1, "all": 0, "b": 1, "p": "entrance", "since": "", "key": "k",
+PARAMS = {"fr": 1, "patient": 1, "d": 1, "all": 0, "b": 1, "p": "entrance", "since": "", "key": "k",
           "at": "2026-01-01T00:00:00Z"}
 
 
@@ -195,6 +195,20 @@ class QueryPlanTest(FxlTestCase):
             r"SEARCH m USING .*INDEX measurements_by_detector\w* \(detector_id=\? AND created_at>\?\)",
             ln)], "\n".join(plan))
         self.assertNoFullScan(plan)
+
+    def test_patient_report_signatures_start_from_the_patient(self):
+        """The per-patient report's signatures: the patient's review items
+        and plans, then their signatures by row; never all the signatures
+        of one kind (issue 16)."""
+        source = os.environ.get("FXL_PLAN_REPORT") or os.path.join(ROOT, "src", "store",
+                                                                   "report_query.c")
+        [sql] = statements("fxl_rq_patient_signatures_each", source)
+        plan = self.plan(sql)
+        self.uses(plan, "i", "review_items_by_patient")
+        self.uses(plan, "p", r"sqlite_autoindex_plans_1")
+        self.assertEqual(len([ln for ln in plan if "signatures_by_row (entity=? AND entity_id=?)" in ln]),
+                         2, "\n".join(plan))
+        self.assertFalse([ln for ln in plan if re.match(r"SCAN (i|e|g|p)\b", ln)], "\n".join(plan))
 
     def test_prefix_range_equals_substr(self):
         """The key range that lets the index find a series' drift items
