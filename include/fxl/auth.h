@@ -146,6 +146,14 @@ int fxl_session_check(fxl_ctx *ctx, const char *token, fxl_session_info *out);
  * read-write context. FXL_EAUTH when the session is no longer live. */
 int fxl_session_touch(fxl_ctx *ctx, const char *token);
 
+/* For a one-shot command that may write: after fxl_session_check() on this
+ * read-write context, the activity is recorded by the command's own next
+ * fxl_commit(), in its transaction (one commit, one disk flush, instead of a
+ * second transaction after it); fxl_session_touch() then writes nothing
+ * more. A command that commits nothing is touched by fxl_session_touch() as
+ * before. fxl_clear_user() disarms it. */
+void fxl_session_touch_at_commit(fxl_ctx *ctx);
+
 /* Ends the session (logout); audited as 'logout'. Ending an unknown or
  * already ended token is FXL_EAUTH. */
 int fxl_session_end(fxl_ctx *ctx, const char *token, const fxl_client *client);

@@ -94,6 +94,11 @@ int fxl_begin(fxl_ctx *ctx);
 int fxl_commit(fxl_ctx *ctx);
 void fxl_rollback(fxl_ctx *ctx);  /* safe to call when no transaction is open */
 
+/* BEGIN DEFERRED: reads until fxl_rollback() or fxl_commit() see one
+ * snapshot of the database, and pay for one read transaction instead of one
+ * per statement. Write functions must not be called inside. */
+int fxl_begin_read(fxl_ctx *ctx);
+
 /* The clock: current UTC time as 'YYYY-MM-DDTHH:MM:SSZ' into buf (size >=
  * FXL_TIME_LEN). Only in the test build (fxledger-testclock, the unit tests)
  * does the environment variable FXLEDGER_NOW, when set to such a timestamp,

@@ -1,8 +1,8 @@
 /* What a long-running server (fxledger serve) needs from the store beyond
  * the command line's one-shot use: the acting user reset between requests
  * served on one connection, the client's network address stamped on every
- * audit row written for a request, and a read transaction so that a page
- * shows one consistent state. */
+ * audit row written for a request, and
+ * a read transaction so that a page shows one consistent state. */
 #ifndef FXL_SERVER_H
 #define FXL_SERVER_H
 
@@ -17,8 +17,6 @@ void fxl_clear_user(fxl_ctx *ctx);
 void fxl_set_origin(fxl_ctx *ctx, const char *address);
 const char *fxl_origin(const fxl_ctx *ctx);   /* "" when none */
 
-/* BEGIN DEFERRED: reads until fxl_rollback() or fxl_commit() see one
- * snapshot of the database. Write functions must not be called inside. */
-int fxl_begin_read(fxl_ctx *ctx);
+/* fxl_begin_read() (fxl/fxl.h) gives each page one snapshot. */
 
 #endif

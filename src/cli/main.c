@@ -423,6 +423,10 @@ int main(int argc, char **argv)
             fxl_close(env.ctx);
             return finish(rc);
         }
+        /* A command that writes carries the session's activity in its own
+         * transaction: one commit, one flush to disk (fxl/auth.h). */
+        if ((flags & CLI_NEEDS_USER) && !(flags & CLI_READONLY) && env.token[0])
+            fxl_session_touch_at_commit(env.ctx);
     }
     changes = fxl_total_changes(env.ctx);
     rc = cmd->run(&env, argc, argv);

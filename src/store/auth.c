@@ -946,9 +946,37 @@ int fxl_session_check(fxl_ctx *ctx, const char *token, fxl_session_info *out)
     account a;
     int rc = session_live(ctx, token, &r, &a, out);
 
-    if (rc == 0)
+    if (rc == 0) {
         set_acting(ctx, &a);
+        ctx->session_id = r.id;
+        snprintf(ctx->session_seen, sizeof ctx->session_seen, "%s", r.last_seen_at);
+    }
     return rc;
+}
+
+/* The activity is written at most once a minute (fxl_session_touch). */
+static int touch_due(const char *last_seen, const char *now)
+{
+    return iso_to_time(now) >= iso_to_time(last_seen) + 60;
+}
+
+void fxl_session_touch_at_commit(fxl_ctx *ctx)
+{
+    char now[FXL_TIME_LEN];
+
+    if (!ctx || !ctx->session_id || ctx->readonly)
+        return;
+    fxl_now(ctx, now);
+    ctx->touch_armed = touch_due(ctx->session_seen, now);
+}
+
+int fxl_session_touch_pending(fxl_ctx *ctx)
+{
+    if (!ctx->touch_armed || !ctx->session_id)
+        return 0;
+    fxl_now(ctx, ctx->touch_at);
+    return exec_user(ctx, "UPDATE auth_sessions SET last_seen_at = :now WHERE id = :u",
+                     ctx->session_id, ctx->touch_at);
 }
 
 int fxl_session_touch(fxl_ctx *ctx, const char *token)
@@ -958,13 +986,19 @@ int fxl_session_touch(fxl_ctx *ctx, const char *token)
     char now[FXL_TIME_LEN];
     int rc;
 
+    /* The command's own commit recorded it less than a minute ago
+     * (fxl_session_touch_at_commit); otherwise the write is made here, in a
+     * transaction of its own. */
+    fxl_now(ctx, now);
+    if (ctx->touch_written && !touch_due(ctx->session_seen, now))
+        return 0;
+    ctx->touch_armed = 0;
     if ((rc = session_live(ctx, token, &r, &a, NULL)) != 0)
         return rc;
-    fxl_now(ctx, now);
     /* At most one write a minute: a command run at the same second as the
      * last leaves the file byte-for-byte unchanged. Not audited: activity is
      * not a change of the record (docs/security.md). */
-    if (iso_to_time(now) < iso_to_time(r.last_seen_at) + 60)
+    if (!touch_due(r.last_seen_at, now))
         return 0;
     if ((rc = fxl_begin(ctx)) != 0)
         return rc;

@@ -45,7 +45,19 @@ struct fxl_ctx {
     int marks_lost;        /* 1: the hook could not store a mark: the next seal fails */
     struct fxl_stmt_slot stmt_cache[FXL_STMT_CACHE_SLOTS];
     int stmt_cache_used;
+    /* The session fxl_session_check() found live (0: none) and the activity
+     * time stored in it; with touch_armed, the next fxl_commit() records the
+     * activity in its own transaction (fxl_session_touch_at_commit). */
+    int64_t session_id;
+    char session_seen[FXL_TIME_LEN];
+    int touch_armed;
+    char touch_at[FXL_TIME_LEN];   /* the time the armed write stores */
+    int touch_written;     /* 1: a commit has recorded the activity at session_seen */
 };
+
+/* Called by fxl_commit() inside its transaction: writes the armed session
+ * activity (store/auth.c); fxl_commit() disarms it once COMMIT succeeded. */
+int fxl_session_touch_pending(fxl_ctx *ctx);
 
 /* Maps the connection's last SQLite error to FXL_EBUSY, FXL_ECONFLICT (a
  * UNIQUE constraint) or FXL_EDB, with a message that starts with `what`. */

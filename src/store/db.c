@@ -527,6 +527,12 @@ int fxl_commit(fxl_ctx *ctx)
 {
     int rc = 0;
 
+    /* The session's activity rides in this transaction when armed: one
+     * commit instead of two (fxl_session_touch_at_commit). */
+    if ((rc = fxl_session_touch_pending(ctx)) != 0) {
+        fxl_rollback(ctx);
+        return rc;
+    }
     /* Rows written after the last audit row of the transaction are sealed
      * by one more audit row, so that no row is ever left unsealed. */
     if (fxl_seal_has_pending(ctx)) {
@@ -540,8 +546,13 @@ int fxl_commit(fxl_ctx *ctx)
         }
     }
     rc = fxl_exec(ctx, "COMMIT");
-    if (rc != 0)
+    if (rc != 0) {
         fxl_rollback(ctx);
+    } else if (ctx->touch_armed && ctx->session_id) {
+        ctx->touch_armed = 0;
+        ctx->touch_written = 1;
+        memcpy(ctx->session_seen, ctx->touch_at, sizeof ctx->session_seen);
+    }
     return rc;
 }
 
@@ -631,6 +642,9 @@ void fxl_clear_user(fxl_ctx *ctx)
     ctx->user_id = 0;
     ctx->user_login[0] = '\0';
     ctx->user_role = 0;
+    ctx->session_id = 0;
+    ctx->session_seen[0] = '\0';
+    ctx->touch_armed = ctx->touch_written = 0;
 }
 
 void fxl_set_origin(fxl_ctx *ctx, const char *address)

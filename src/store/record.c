@@ -499,9 +499,15 @@ int fxl_record_fraction(fxl_ctx *ctx, fxl_record_result *out, const fxl_record_r
         return fxl_fail(ctx, FXL_EINVAL, "%zu readings given: at most %d per fraction",
                         req->n_readings, FXL_RECORD_READINGS_MAX);
     fxl_now(ctx, now);
-    if ((rc = rec_check_treated_at(ctx, at, req->treated_at, now)) != 0 ||
-        (rc = rec_load_plan(ctx, &plan, req->mrn, req->plan)) != 0)
+    if ((rc = rec_check_treated_at(ctx, at, req->treated_at, now)) != 0)
         return rc;
+    /* The checks below read in one snapshot (one read transaction, not one
+     * per statement); write_fraction checks again, in its write transaction,
+     * what another console may have changed since. */
+    if ((rc = fxl_begin_read(ctx)) != 0)
+        return rc;
+    if ((rc = rec_load_plan(ctx, &plan, req->mrn, req->plan)) != 0)
+        goto cleanup;
 
     /* A fraction begun field by field is finished field by field (fxl/fraction.h):
      * never a second fraction beside it, never readings written around it. */
@@ -510,29 +516,34 @@ int fxl_record_fraction(fxl_ctx *ctx, fxl_record_result *out, const fxl_record_r
         int open_number = 0;
         char open_at[FXL_TIME_LEN];
         if ((rc = wl_open_fraction(ctx, &open_id, &open_number, open_at, plan.plan_id)) != 0)
-            return rc;
-        if (open_id && (req->fraction == 0 || req->fraction == open_number))
-            return fxl_fail(ctx, FXL_ECONFLICT,
-                            "fraction %d of plan '%s' was begun field by field (treated %s) and is "
-                            "still open: go on with 'fxledger record --patient %s --interactive'",
-                            open_number, plan.label, open_at, plan.mrn);
+            goto cleanup;
+        if (open_id && (req->fraction == 0 || req->fraction == open_number)) {
+            rc = fxl_fail(ctx, FXL_ECONFLICT,
+                          "fraction %d of plan '%s' was begun field by field (treated %s) and is "
+                          "still open: go on with 'fxledger record --patient %s --interactive'",
+                          open_number, plan.label, open_at, plan.mrn);
+            goto cleanup;
+        }
     }
     number = req->fraction;
     if (number == 0) {
         number = plan.highest_logged + 1;
-        if (number > plan.fractions)
-            return fxl_fail(ctx, FXL_EINVAL,
-                            "plan '%s' of patient '%s' has all %d fractions logged; give --plan for a "
-                            "newer plan",
-                            plan.label, plan.mrn, plan.fractions);
+        if (number > plan.fractions) {
+            rc = fxl_fail(ctx, FXL_EINVAL,
+                          "plan '%s' of patient '%s' has all %d fractions logged; give --plan for a "
+                          "newer plan",
+                          plan.label, plan.mrn, plan.fractions);
+            goto cleanup;
+        }
     } else if (number < 1 || number > plan.fractions) {
-        return fxl_fail(ctx, FXL_EINVAL, "fraction %d is out of range for plan '%s': must be 1 to %d",
-                        number, plan.label, plan.fractions);
+        rc = fxl_fail(ctx, FXL_EINVAL, "fraction %d is out of range for plan '%s': must be 1 to %d",
+                      number, plan.label, plan.fractions);
+        goto cleanup;
     }
     if ((rc = check_fraction_free(ctx, &plan, number)) != 0 ||
         (rc = rec_check_plan_and_time(ctx, &plan, number, at)) != 0 ||
         (rc = rec_load_settings(ctx, &settings)) != 0)
-        return rc;
+        goto cleanup;
 
     ent = calloc(req->n_readings, sizeof *ent);
     in = calloc(req->n_readings, sizeof *in);
@@ -550,6 +561,7 @@ int fxl_record_fraction(fxl_ctx *ctx, fxl_record_result *out, const fxl_record_r
             goto cleanup;
         rec_compute(&in[i], e->reading, e->background, ent[i].temp_c, ent[i].temp_entered, &settings);
     }
+    fxl_rollback(ctx);   /* ends the read transaction: nothing was written */
 
     if ((rc = write_fraction(ctx, &fraction_id, out, in, req->n_readings, &plan, number, at, now)) != 0)
         goto cleanup;
@@ -562,6 +574,7 @@ int fxl_record_fraction(fxl_ctx *ctx, fxl_record_result *out, const fxl_record_r
             out->items[i] = in[i].m;
     }
 cleanup:
+    fxl_rollback(ctx);   /* a read transaction left by a failed check; no-op otherwise */
     for (i = 0; i < loaded && in; i++)
         rec_inputs_release(&in[i]);
     free(ent);

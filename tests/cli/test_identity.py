@@ -207,6 +207,65 @@ class IdentityTest(ReviewCase):
         self.assertEqual(r.returncode, 4)
         self.assertIn("12 hours", r.stderr)
 
+    def commits_in_wal(self):
+        """Transactions in the -wal file: frames whose header gives the
+        database size after commit (non-zero), per the WAL format of
+        https://www.sqlite.org/fileformat2.html section 4.1 (32-byte file
+        header; each frame a 24-byte header, bytes 4-7 big-endian, then one
+        page)."""
+        with open(self.fx.db + "-wal", "rb") as f:
+            data = f.read()
+        page = int.from_bytes(data[8:12], "big")
+        n, pos = 0, 32
+        while pos + 24 + page <= len(data):
+            if int.from_bytes(data[pos + 4:pos + 8], "big"):
+                n += 1
+            pos += 24 + page
+        return n
+
+    def test_writing_command_records_activity_in_its_own_transaction(self):
+        # Two minutes after the last use, a fraction logged: the session's
+        # activity goes into the same transaction as the fraction, so the
+        # -wal gains one commit (not a second one for the session).
+        con = sqlite3.connect(self.fx.db)
+        con.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+        seen = con.execute("SELECT max(last_seen_at) FROM auth_sessions").fetchone()[0]
+        con.close()
+        at = "2026-11-03T08:00:00Z"
+        self.fx.ensure_session("ther", at)
+        con = sqlite3.connect(self.fx.db)
+        con.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+        con.close()
+        # (the last connection's close removes an empty -wal)
+        self.assertFalse(os.path.exists(self.fx.db + "-wal") and os.path.getsize(self.fx.db + "-wal"))
+        later = "2026-11-03T08:02:00Z"
+        r = self.fx.run("record", "--patient", "P-1", "--at", later, "--field", "AP",
+                        "--detector", "D-1", "--reading", "20.0", user="ther", now=later,
+                        login=False)
+        self.assertIn(r.returncode, (0, 10, 11, 12), r.stderr)
+        self.assertEqual(self.commits_in_wal(), 1)
+        con = sqlite3.connect(self.fx.db)
+        rows = con.execute("SELECT u.login, s.last_seen_at FROM auth_sessions s "
+                           "JOIN users u ON u.id = s.user_id WHERE s.ended_at IS NULL "
+                           "ORDER BY s.id").fetchall()
+        con.close()
+        self.assertIn(("ther", later), rows)
+        self.assertNotEqual(seen, later)
+        # A read-only command a minute on still records its activity, in a
+        # transaction of its own.
+        con = sqlite3.connect(self.fx.db)
+        con.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+        con.close()
+        again = "2026-11-03T08:03:00Z"
+        r = self.fx.run("queue", "list", user="ther", now=again, login=False)
+        self.assertEqual(r.returncode, 0, r.stderr)
+        self.assertEqual(self.commits_in_wal(), 1)
+        con = sqlite3.connect(self.fx.db)
+        self.assertIn(("ther", again), con.execute(
+            "SELECT u.login, s.last_seen_at FROM auth_sessions s JOIN users u ON u.id = s.user_id "
+            "WHERE s.ended_at IS NULL").fetchall())
+        con.close()
+
     # ---- signing ------------------------------------------------------------------
 
     def test_therapist_cannot_close_and_nobody_without_password(self):
