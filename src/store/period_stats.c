@@ -178,9 +178,7 @@ int fxl_period_stats_compute(fxl_ctx *ctx, fxl_period_stats *out, const char *fr
     snprintf(sql, sizeof sql,
              "SELECT %s, %s, %s, %s, %s, %s, %s, m.verdict, m.deviation_pct, m.tolerance_pct, "
              "       m.action_pct, m.id "
-             "FROM measurements m JOIN fractions f ON f.id = m.fraction_id "
-             "JOIN plans p ON p.id = f.plan_id JOIN fields fl ON fl.id = m.field_id "
-             "JOIN beams b ON b.id = fl.beam_id JOIN detectors d ON d.id = m.detector_id "
+             "FROM measurements m JOIN fractions f ON f.id = m.fraction_id %s%s%s%s"
              "WHERE f.treated_at >= :from AND f.treated_at < :to "
              "  AND NOT EXISTS (SELECT 1 FROM measurements s WHERE s.supersedes_id = m.id) "
              "ORDER BY 1, 2, 3, 4, 5, 6, 7, f.treated_at, m.id",
@@ -190,7 +188,13 @@ int fxl_period_stats_compute(fxl_ctx *ctx, fxl_period_stats *out, const char *fr
              (by & FXL_PS_ENERGY) ? "b.energy" : "NULL",
              (by & FXL_PS_POINT) ? "fl.point" : "''",
              (by & FXL_PS_DETECTOR) ? "d.label" : "''",
-             (by & FXL_PS_DETECTOR) ? "d.serial" : "''");
+             (by & FXL_PS_DETECTOR) ? "d.serial" : "''",
+             /* Only the tables the grouping reads are joined (a lookup per
+              * row each); every reference is NOT NULL and kept. */
+             (by & (FXL_PS_SITE | FXL_PS_TECHNIQUE)) ? "JOIN plans p ON p.id = f.plan_id " : "",
+             (by & (FXL_PS_ENERGY | FXL_PS_POINT)) ? "JOIN fields fl ON fl.id = m.field_id " : "",
+             (by & FXL_PS_ENERGY) ? "JOIN beams b ON b.id = fl.beam_id " : "",
+             (by & FXL_PS_DETECTOR) ? "JOIN detectors d ON d.id = m.detector_id " : "");
     if ((rc = fxl_stmt_prepare(&s, ctx, sql)) != 0)
         goto cleanup;
     fxl_stmt_bind_text(&s, ":from", from);

@@ -355,6 +355,14 @@ int fxl_rq_month_counts_each(fxl_ctx *ctx, const char *from, const char *to,
         /* SITE_TECHNIQUE */ "p.site, p.technique, NULL",
         /* ENERGY */ "b.modality, '', b.energy",
         /* DETECTOR */ "d.label, d.serial, NULL"};
+    /* Only the tables a grouping reads are joined: each join is a lookup
+     * per measurement of the month, and every one of them is a NOT NULL
+     * reference that keeps every row (sql/001_schema.sql). */
+    static const char *const joins[] = {
+        /* NONE */ "",
+        /* SITE_TECHNIQUE */ "JOIN plans p ON p.id = f.plan_id ",
+        /* ENERGY */ "JOIN fields fl ON fl.id = m.field_id JOIN beams b ON b.id = fl.beam_id ",
+        /* DETECTOR */ "JOIN detectors d ON d.id = m.detector_id "};
     char sql[1400];
     fxl_stmt s = FXL_STMT_INIT;
     fxl_rq_count c;
@@ -364,12 +372,10 @@ int fxl_rq_month_counts_each(fxl_ctx *ctx, const char *from, const char *to,
         return fxl_fail(ctx, FXL_EINVAL, "internal: unknown report grouping %d", (int)by);
     snprintf(sql, sizeof sql,
              "SELECT %s, m.verdict, count(*) "
-             "FROM measurements m JOIN fractions f ON f.id = m.fraction_id "
-             "JOIN plans p ON p.id = f.plan_id JOIN fields fl ON fl.id = m.field_id "
-             "JOIN beams b ON b.id = fl.beam_id JOIN detectors d ON d.id = m.detector_id "
+             "FROM measurements m JOIN fractions f ON f.id = m.fraction_id %s"
              "WHERE f.treated_at >= :from AND f.treated_at < :to AND " CURRENT_M " "
              "GROUP BY 1, 2, 3, 4 ORDER BY 1, 3, 2, 4",
-             keys[by]);
+             keys[by], joins[by]);
     if ((rc = fxl_stmt_prepare(&s, ctx, sql)) != 0)
         goto cleanup;
     fxl_stmt_bind_text(&s, ":from", from);
@@ -498,15 +504,23 @@ int fxl_rq_queue_open_each(fxl_ctx *ctx, const char *as_of, fxl_rq_queue_cb cb, 
     fxl_rq_queue_item q;
     int rc;
 
+    /* An item's state at :asof is its last event written (by id, the order
+     * of the review actions, whatever the clock said) at or before :asof.
+     * Its status column is its last event of all (sql/011), so an item
+     * closed now with no event after :asof was closed then too: only the
+     * items open now and those with a later event are looked at
+     * (review_events_by_time, sql/013), not every item ever opened. */
     rc = fxl_stmt_prepare(&s, ctx,
         "SELECT id, rule, severity, summary, opened_at, mrn, last_kind, age FROM ("
         "  SELECT i.id, i.rule, i.severity, i.summary, i.opened_at, coalesce(pt.mrn, '') AS mrn, "
         "         coalesce((SELECT e.kind FROM review_events e WHERE e.item_id = i.id "
-        "           AND e.created_at <= :asof ORDER BY e.created_at DESC, e.id DESC LIMIT 1), '') "
+        "           AND e.created_at <= :asof ORDER BY e.id DESC LIMIT 1), '') "
         "           AS last_kind, "
         "         julianday(:asof) - julianday(i.opened_at) AS age "
         "  FROM review_items i LEFT JOIN patients pt ON pt.id = i.patient_id "
-        "  WHERE i.opened_at <= :asof) "
+        "  WHERE i.opened_at <= :asof AND i.id IN ("
+        "    SELECT c.id FROM review_items c WHERE c.status IN ('open', 'acknowledged') "
+        "    UNION SELECT l.item_id FROM review_events l WHERE l.created_at > :asof)) "
         "WHERE last_kind <> 'close' ORDER BY opened_at, id");
     if (rc != 0)
         goto cleanup;
@@ -621,29 +635,30 @@ int fxl_rq_detectors_near_limit_each(fxl_ctx *ctx, const char *as_of, double war
     fxl_rq_detector_dose d;
     int rc;
 
-    /* The accumulated dose is a correlated subquery (SQLite has no LATERAL),
-     * computed once per detector (MATERIALIZED: a flattened subquery would
-     * repeat it in WHERE and ORDER BY). m.created_at > the calibration bounds
-     * the detector's index range to the rows since then: a row is written at
-     * or after its treatment time, so created_at >= treated_at. */
+    /* The accumulated dose is a correlated subquery (SQLite has no LATERAL).
+     * Each detector's status and last calibration are found once, in d
+     * (MATERIALIZED), and the sum then reads only the detector's rows since
+     * that calibration: m.created_at > it bounds the index range, since a
+     * row is written at or after its treatment time (created_at >=
+     * treated_at). t is MATERIALIZED too: a flattened subquery would repeat
+     * the sum in WHERE and ORDER BY. */
     rc = fxl_stmt_prepare(&s, ctx,
-        "WITH t AS MATERIALIZED ("
-        "  SELECT d.label, d.serial, d.kind, d.dose_limit_cgy AS lim, "
+        "WITH d AS MATERIALIZED ("
+        "  SELECT d.id, d.label, d.serial, d.kind, d.dose_limit_cgy AS lim, "
         "         " STATUS_AT("d.id") " AS status, "
         "         coalesce((SELECT max(c.calibrated_at) FROM calibrations c "
-        "           WHERE c.detector_id = d.id AND c.calibrated_at <= :asof), '') AS last_cal, "
+        "           WHERE c.detector_id = d.id AND c.calibrated_at <= :asof), '') AS last_cal "
+        "  FROM detectors d WHERE d.dose_limit_cgy IS NOT NULL), "
+        "t AS MATERIALIZED ("
+        "  SELECT d.label, d.serial, d.kind, d.lim, d.status, d.last_cal, "
         "         coalesce((SELECT sum(m.corrected_dose_cgy) FROM measurements m "
         "           JOIN fractions f ON f.id = m.fraction_id "
         "           WHERE m.detector_id = d.id AND " CURRENT_M
-        "             AND m.created_at > coalesce((SELECT max(c.calibrated_at) "
-        "               FROM calibrations c WHERE c.detector_id = d.id AND c.calibrated_at <= :asof), '') "
-        "             AND f.treated_at <= :asof AND f.treated_at > coalesce((SELECT max(c.calibrated_at) "
-        "               FROM calibrations c WHERE c.detector_id = d.id AND c.calibrated_at <= :asof), '')), 0) "
-        "           AS acc "
+        "             AND m.created_at > d.last_cal "
+        "             AND f.treated_at <= :asof AND f.treated_at > d.last_cal), 0) AS acc "
         /* Retired detectors are left out (as for calibrations due): they
          * pile up over the years and their dose no longer matters. */
-        "  FROM detectors d WHERE d.dose_limit_cgy IS NOT NULL "
-        "    AND " STATUS_AT("d.id") " <> 'retired') "
+        "  FROM d WHERE d.status <> 'retired') "
         "SELECT label, serial, kind, status, last_cal, acc, lim FROM t "
         "WHERE acc >= lim * :warn ORDER BY acc / lim DESC, serial");
     if (rc != 0)

@@ -21,22 +21,23 @@ SOURCE = os.environ.get("FXL_PLAN_SOURCE") or os.path.join(ROOT, "src", "store",
 TOKEN = re.compile(r'"((?:[^"\\]|\\.)*)"|([A-Za-z_][A-Za-z_0-9]*)|(/\*.*?\*/)|(\s+)|(\))', re.S)
 
 
-def string_macros():
-    """Simple string #defines of the headers (FXL_RULE_DRIFT and the like)."""
+def string_macros(source=None):
+    """Simple string #defines of the headers (FXL_RULE_DRIFT and the like)
+    and of the source file itself."""
     out = {}
     for h in glob.glob(os.path.join(ROOT, "include", "fxl", "*.h")) + \
-            glob.glob(os.path.join(ROOT, "src", "store", "*.h")):
+            glob.glob(os.path.join(ROOT, "src", "store", "*.h")) + ([source] if source else []):
         for m in re.finditer(r'^#define\s+(\w+)\s+"([^"]*)"\s*$', open(h).read(), re.M):
             out[m.group(1)] = m.group(2)
     return out
 
 
-def function_macros():
+def function_macros(source=None):
     """One-argument #defines made of string literals and the argument
-    (FXL_SQL_DOSE_COUNTED(m) of src/store/dose_counted.h): name ->
-    (argument name, body tokens)."""
+    (FXL_SQL_DOSE_COUNTED(m) of src/store/dose_counted.h, or of the source
+    file itself): name -> (argument name, body tokens)."""
     out = {}
-    for h in glob.glob(os.path.join(ROOT, "src", "store", "*.h")):
+    for h in glob.glob(os.path.join(ROOT, "src", "store", "*.h")) + ([source] if source else []):
         text = open(h).read().replace("\\\n", " ")
         for m in re.finditer(r'^#define\s+(\w+)\((\w+)\)\s+(.*)$', text, re.M):
             out[m.group(1)] = (m.group(2), re.findall(r'"((?:[^"\\]|\\.)*)"|(\w+)', m.group(3)))
@@ -61,7 +62,7 @@ def statements(function, source=None):
         raise AssertionError("%s not found in %s" % (function, source))
     end = text.find("\n}\n", m.end())
     body = text[m.end():end]
-    macros, fmacros = string_macros(), function_macros()
+    macros, fmacros = string_macros(source), function_macros(source)
     out = []
     for p in re.finditer(r"fxl_stmt_prepare(?:_cached)?\(&\w+,\s*ctx,", body):
         pos, sql = p.end(), []
@@ -94,7 +95,7 @@ def has_function(function):
 
 
 PARAMS = {"fr": 1, "patient": 1, "d": 1, "all": 0, "b": 1, "p": "entrance", "since": "", "key": "k",
-          "at": "2026-01-01T00:00:00Z"}
+          "at": "2026-01-01T00:00:00Z", "asof": "2026-01-01T00:00:00Z", "warn": 0.8}
 
 
 class QueryPlanTest(FxlTestCase):
@@ -209,6 +210,32 @@ class QueryPlanTest(FxlTestCase):
         self.assertEqual(len([ln for ln in plan if "signatures_by_row (entity=? AND entity_id=?)" in ln]),
                          2, "\n".join(plan))
         self.assertFalse([ln for ln in plan if re.match(r"SCAN (i|e|g|p)\b", ln)], "\n".join(plan))
+
+    def report_source(self):
+        return os.environ.get("FXL_PLAN_REPORT") or os.path.join(ROOT, "src", "store", "report_query.c")
+
+    def test_monthly_queue_starts_from_open_items_and_later_events(self):
+        """The monthly report's queue as of the month's end: the items not
+        closed now and the items with an event after that time, never every
+        item ever opened (issue 16, sql/013)."""
+        [sql] = statements("fxl_rq_queue_open_each", self.report_source())
+        plan = self.plan(sql)
+        self.uses(plan, "c", "review_items_by_status")
+        self.uses(plan, "l", "review_events_by_time")
+        self.assertFalse([ln for ln in plan if re.match(r"SCAN (i|c|l|e)\b", ln)], "\n".join(plan))
+
+    def test_detectors_near_limit_find_each_calibration_once(self):
+        """The monthly report's detectors near their dose limit: the latest
+        calibration once per detector, then the detector's rows since it by
+        the index (not a calibration lookup per measurement)."""
+        [sql] = statements("fxl_rq_detectors_near_limit_each", self.report_source())
+        plan = self.plan(sql)
+        self.assertEqual(len([ln for ln in plan if "calibrations_by_detector" in ln]), 1,
+                         "\n".join(plan))
+        self.assertTrue([ln for ln in plan if re.match(
+            r"SEARCH m USING .*INDEX measurements_by_detector\w* \(detector_id=\? AND created_at>\?\)",
+            ln)], "\n".join(plan))
+        self.assertNoFullScan(plan)
 
     def test_prefix_range_equals_substr(self):
         """The key range that lets the index find a series' drift items

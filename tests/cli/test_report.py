@@ -598,6 +598,28 @@ class EndToEndTest(record_fixture.RecordTestCase, ReportTestCase):
         self.assertRegex(t, r"outside action level\s+1\s+50\.0 %")
         self.assertRegex(t, r"TEST-0101\s+Example,\s+Invented.*\+9\.00 %\s+detector placement\s+Phil Physicist")
 
+        # The queue as it stood at the end of the month: an item closed in
+        # November was still open then and is listed (closed now, with an
+        # event after the month); the item closed on 7 October is not.
+        before = {i["id"] for i in fx.json("queue", "list", user="phil")}
+        r = fx.run("--json", "record", "--patient", mrn, "--fraction", 3, "--at", "2026-10-20T08:00:00Z",
+                   "--field", "REF:entrance", "--detector", "D-1001", "--reading", "21.8",
+                   "--temp", "20", user="tina", now="2026-10-20T09:00:00Z")
+        self.assertEqual(r.returncode, 12, r.stderr)
+        [late] = [i["id"] for i in fx.json("queue", "list", user="phil") if i["id"] not in before]
+        fx.ok("queue", "close", late, "--disposition", "detector placement", user="phil",
+              now="2026-11-03T09:00:00Z")
+        october = fx.path("month-oct.pdf")
+        self.report("month", "2026-10", "--out", october)
+        t = pdftext(october)
+        self.assertRegex(t, r"\n\s*%d\s+2026-10-20\s+11 d\s" % late)
+        self.assertNotRegex(t, r"\n\s*%d\s+20\d\d-\d\d-\d\d\s+\d+ d\s" % item_ids[0])
+        # The November report as of its printing time (2 November, GEN):
+        # the item was closed on the 3rd, so it is still listed, 13 days old.
+        november = fx.path("month-nov.pdf")
+        self.report("month", "2026-11", "--out", november)
+        self.assertRegex(pdftext(november), r"\n\s*%d\s+2026-10-20\s+13 d\s" % late)
+
 
 class MemoryTest(ReportTestCase):
     def peak_kib(self, *args):
