@@ -13,6 +13,9 @@
  * command; past them a statement is prepared as usual. */
 #define FXL_STMT_CACHE_SLOTS 96
 
+/* Room for the sealed tables' canonical-row statements (store/seal.c). */
+#define FXL_SEALED_TABLES_MAX 32
+
 struct fxl_stmt_slot {
     const char *sql;   /* the key: the SQL text's pointer (its text is compared too) */
     sqlite3_stmt *st;
@@ -43,6 +46,9 @@ struct fxl_ctx {
     struct fxl_seal_mark *marks; /* filled by the update hook, unsorted, may repeat */
     size_t n_marks, cap_marks;
     int marks_lost;        /* 1: the hook could not store a mark: the next seal fails */
+    /* Per sealed table, the SELECT of one row's canonical content, built
+     * once per connection from the table's columns (NULL until needed). */
+    char *seal_sql[FXL_SEALED_TABLES_MAX];
     struct fxl_stmt_slot stmt_cache[FXL_STMT_CACHE_SLOTS];
     int stmt_cache_used;
     /* The session fxl_session_check() found live (0: none) and the activity

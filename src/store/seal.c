@@ -104,22 +104,47 @@ static void row_digest(char hex[65], const char *tbl, int64_t row_id, const char
     sodium_bin2hex(hex, 65, d, sizeof d);
 }
 
-int fxl_seal_row(fxl_ctx *ctx, const char *tbl, int64_t row_id, char hex[65])
+static int sealed_index(const char *tbl);
+
+/* The SELECT of one row's canonical content, built once per connection and
+ * table (its columns do not change while the connection is open: migrations
+ * run when it opens) and kept in the context, so that its statement is
+ * prepared once too (fxl_stmt_prepare_cached keys on the text's pointer). */
+static int row_select_sql(fxl_ctx *ctx, const char *tbl, const char **sql_out)
 {
-    fxl_stmt s = FXL_STMT_INIT;
-    char *expr = NULL, *sql = NULL;
+    int i = sealed_index(tbl);
+    char *expr = NULL, *sql;
     size_t len;
     int rc;
 
+    if (i >= 0 && i < FXL_SEALED_TABLES_MAX && ctx->seal_sql[i]) {
+        *sql_out = ctx->seal_sql[i];
+        return 0;
+    }
+    if (i < 0 || i >= FXL_SEALED_TABLES_MAX)
+        return fxl_fail(ctx, FXL_EINVAL, "internal: table '%s' is not sealed", tbl);
     if ((rc = canon_expr(ctx, tbl, &expr)) != 0)
         return rc;
     len = strlen(expr) + strlen(tbl) + 64;
     if (!(sql = malloc(len))) {
-        rc = fxl_fail(ctx, FXL_EIO, "out of memory sealing rows");
-        goto cleanup;
+        free(expr);
+        return fxl_fail(ctx, FXL_EIO, "out of memory sealing rows");
     }
     snprintf(sql, len, "SELECT %s FROM main.\"%s\" t WHERE t.rowid = :id", expr, tbl);
-    if ((rc = fxl_stmt_prepare(&s, ctx, sql)) != 0)
+    free(expr);
+    *sql_out = ctx->seal_sql[i] = sql;
+    return 0;
+}
+
+int fxl_seal_row(fxl_ctx *ctx, const char *tbl, int64_t row_id, char hex[65])
+{
+    fxl_stmt s = FXL_STMT_INIT;
+    const char *sql = NULL;
+    int rc;
+
+    if ((rc = row_select_sql(ctx, tbl, &sql)) != 0)
+        return rc;
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx, sql)) != 0)
         goto cleanup;
     fxl_stmt_bind_int(&s, ":id", row_id);
     rc = fxl_stmt_step(&s);
@@ -131,8 +156,6 @@ int fxl_seal_row(fxl_ctx *ctx, const char *tbl, int64_t row_id, char hex[65])
     }
 cleanup:
     fxl_stmt_finalize(&s);
-    free(expr);
-    free(sql);
     return rc;
 }
 
@@ -224,6 +247,12 @@ void fxl_seal_discard(fxl_ctx *ctx)
 
 void fxl_seal_release(fxl_ctx *ctx)
 {
+    int i;
+
+    for (i = 0; i < FXL_SEALED_TABLES_MAX; i++) {
+        free(ctx->seal_sql[i]);
+        ctx->seal_sql[i] = NULL;
+    }
     free(ctx->marks);
     ctx->marks = NULL;
     ctx->n_marks = ctx->cap_marks = 0;
@@ -315,29 +344,18 @@ int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
                                "INSERT INTO main.row_seals (tbl, row_id, audit_id, sha256) "
                                "VALUES (:t, :r, :a, :h)")) != 0)
         goto cleanup;
-    /* The marks come in table order: one prepared row query per table. */
+    /* The marks come in table order: one row query per table, prepared
+     * once per connection. */
     for (i = 0; i < ctx->n_marks; i++) {
         const char *tbl = fxl_sealed_tables[ctx->marks[i].tbl];
         int64_t row_id = ctx->marks[i].row_id;
         char hex[65];
         if (ctx->marks[i].tbl != cur_tbl) {
-            char *expr = NULL, *sql;
-            size_t len;
+            const char *sql = NULL;
             fxl_stmt_finalize(&row);
             cur_tbl = ctx->marks[i].tbl;
-            if ((rc = canon_expr(ctx, tbl, &expr)) != 0)
-                goto cleanup;
-            len = strlen(expr) + strlen(tbl) + 64;
-            if (!(sql = malloc(len))) {
-                free(expr);
-                rc = fxl_fail(ctx, FXL_EIO, "out of memory sealing rows");
-                goto cleanup;
-            }
-            snprintf(sql, len, "SELECT %s FROM main.\"%s\" t WHERE t.rowid = :id", expr, tbl);
-            rc = fxl_stmt_prepare(&row, ctx, sql);
-            free(expr);
-            free(sql);
-            if (rc != 0)
+            if ((rc = row_select_sql(ctx, tbl, &sql)) != 0 ||
+                (rc = fxl_stmt_prepare_cached(&row, ctx, sql)) != 0)
                 goto cleanup;
         }
         fxl_stmt_reset(&row);
