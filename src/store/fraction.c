@@ -181,6 +181,24 @@ int rec_open_missing(fxl_ctx *ctx, fxl_fraction_missing **missing, size_t *n_mis
 
     *missing = NULL;
     *n_missing = 0;
+    /* A field is missing only when due and not read in this fraction: when
+     * every field of the plan was read, none is, and the worklist's due
+     * dates need not be worked out (the usual fraction). */
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
+            "SELECT EXISTS (SELECT 1 FROM fields fl WHERE fl.plan_id = :plan AND NOT EXISTS "
+            "(SELECT 1 FROM measurements m WHERE m.fraction_id = :fr AND m.field_id = fl.id))")) != 0)
+        goto cleanup;
+    fxl_stmt_bind_int(&s, ":plan", plan->plan_id);
+    fxl_stmt_bind_int(&s, ":fr", fraction_id);
+    if ((rc = fxl_stmt_step(&s)) < 0)
+        goto cleanup;
+    if (rc == 1 && fxl_stmt_int(&s, 0) == 0) {
+        rc = 0;
+        if (!(*missing = calloc(1, sizeof **missing)))
+            rc = fxl_fail(ctx, FXL_EIO, "out of memory closing a fraction");
+        goto cleanup;
+    }
+    fxl_stmt_finalize(&s);
     if ((rc = wl_fields(ctx, &fields, &n, &dates, &first, plan->plan_id, plan->patient_id,
                         number, treated_at, fraction_id)) != 0)
         goto cleanup;
