@@ -1,8 +1,8 @@
 /* What a long-running server (fxledger serve) needs from the store beyond
  * the command line's one-shot use: the acting user reset between requests
  * served on one connection, the client's network address stamped on every
- * audit row written for a request, and
- * a read transaction so that a page shows one consistent state. */
+ * audit row written for a request; a page reads in one snapshot
+ * (fxl_begin_read, fxl/fxl.h). */
 #ifndef FXL_SERVER_H
 #define FXL_SERVER_H
 
@@ -16,7 +16,5 @@ void fxl_clear_user(fxl_ctx *ctx);
  * cleared with NULL. Longer text is cut. */
 void fxl_set_origin(fxl_ctx *ctx, const char *address);
 const char *fxl_origin(const fxl_ctx *ctx);   /* "" when none */
-
-/* fxl_begin_read() (fxl/fxl.h) gives each page one snapshot. */
 
 #endif

@@ -104,25 +104,34 @@ static void row_digest(char hex[65], const char *tbl, int64_t row_id, const char
     sodium_bin2hex(hex, 65, d, sizeof d);
 }
 
-static int sealed_index(const char *tbl);
-
-/* The SELECT of one row's canonical content, built once per connection and
- * table (its columns do not change while the connection is open: migrations
- * run when it opens) and kept in the context, so that its statement is
- * prepared once too (fxl_stmt_prepare_cached keys on the text's pointer). */
-static int row_select_sql(fxl_ctx *ctx, const char *tbl, const char **sql_out)
+static int sealed_index(const char *tbl)
 {
-    int i = sealed_index(tbl);
+    int i;
+
+    for (i = 0; fxl_sealed_tables[i]; i++)
+        if (strcmp(fxl_sealed_tables[i], tbl) == 0)
+            return i;
+    return -1;
+}
+
+/* The SELECT of one row's canonical content of sealed table i, built once
+ * per connection and table (its columns do not change while the connection
+ * is open: migrations run when it opens) and kept in the context, so that
+ * its statement is prepared once too (fxl_stmt_prepare_cached keys on the
+ * text's pointer). */
+static int row_select_sql(fxl_ctx *ctx, int i, const char **sql_out)
+{
+    const char *tbl = i >= 0 ? fxl_sealed_tables[i] : "?";
     char *expr = NULL, *sql;
     size_t len;
     int rc;
 
-    if (i >= 0 && i < FXL_SEALED_TABLES_MAX && ctx->seal_sql[i]) {
+    if (i < 0 || i >= FXL_SEALED_TABLES_MAX)
+        return fxl_fail(ctx, FXL_EINVAL, "internal: table '%s' is not sealed", tbl);
+    if (ctx->seal_sql[i]) {
         *sql_out = ctx->seal_sql[i];
         return 0;
     }
-    if (i < 0 || i >= FXL_SEALED_TABLES_MAX)
-        return fxl_fail(ctx, FXL_EINVAL, "internal: table '%s' is not sealed", tbl);
     if ((rc = canon_expr(ctx, tbl, &expr)) != 0)
         return rc;
     len = strlen(expr) + strlen(tbl) + 64;
@@ -142,7 +151,7 @@ int fxl_seal_row(fxl_ctx *ctx, const char *tbl, int64_t row_id, char hex[65])
     const char *sql = NULL;
     int rc;
 
-    if ((rc = row_select_sql(ctx, tbl, &sql)) != 0)
+    if ((rc = row_select_sql(ctx, sealed_index(tbl), &sql)) != 0)
         return rc;
     if ((rc = fxl_stmt_prepare_cached(&s, ctx, sql)) != 0)
         goto cleanup;
@@ -210,15 +219,6 @@ static int add_mark(fxl_ctx *ctx, int tbl, int64_t row_id)
     return 0;
 }
 
-static int sealed_index(const char *tbl)
-{
-    int i;
-
-    for (i = 0; fxl_sealed_tables[i]; i++)
-        if (strcmp(fxl_sealed_tables[i], tbl) == 0)
-            return i;
-    return -1;
-}
 
 /* Inserts and updates of main's sealed tables, as the AFTER INSERT / AFTER
  * UPDATE triggers of earlier versions did; deletes are not marked (they
@@ -354,7 +354,7 @@ int fxl_seal_pending(fxl_ctx *ctx, int64_t audit_id, char seal_hex[65])
             const char *sql = NULL;
             fxl_stmt_finalize(&row);
             cur_tbl = ctx->marks[i].tbl;
-            if ((rc = row_select_sql(ctx, tbl, &sql)) != 0 ||
+            if ((rc = row_select_sql(ctx, cur_tbl, &sql)) != 0 ||
                 (rc = fxl_stmt_prepare_cached(&row, ctx, sql)) != 0)
                 goto cleanup;
         }
