@@ -122,6 +122,14 @@ class QueryPlanTest(FxlTestCase):
             self.assertNotRegex(line, r"^SCAN (measurements|fractions|m|fr|n|calibrations|c2?)\b",
                                 "\n".join(plan))
 
+    def assertCovered(self, plan):
+        """The detector's rows since the restart point come from the
+        covering history index alone (sql/014): one index entry per row, no
+        page of measurements read for each (docs/performance.md, change 18)."""
+        self.assertTrue([ln for ln in plan if re.match(
+            r"SEARCH m USING COVERING INDEX measurements_by_detector_history "
+            r"\(detector_id=\? AND created_at>\?\)", ln)], "\n".join(plan))
+
     def uses(self, plan, alias, index):
         lines = [ln for ln in plan if re.match(r"SEARCH %s USING .*INDEX %s \(" % (alias, index), ln)]
         self.assertTrue(lines, "%s not searched through %s:\n%s" % (alias, index, "\n".join(plan)))
@@ -164,6 +172,7 @@ class QueryPlanTest(FxlTestCase):
         self.assertTrue([ln for ln in plan if "detector_id=? AND created_at>?" in ln],
                         "\n".join(plan))
         self.assertNoFullScan(plan)
+        self.assertCovered(plan)
 
         plan = self.plan(since)
         # the latest calibration of the one series, and the drift items of
@@ -183,6 +192,7 @@ class QueryPlanTest(FxlTestCase):
             r"SEARCH m USING .*INDEX measurements_by_detector\w* \(detector_id=\? AND created_at>\?\)",
             ln)], "\n".join(plan))
         self.assertNoFullScan(plan)
+        self.assertCovered(plan)
 
     def test_detector_view_reads_only_since_the_calibration(self):
         """detector show / list: the dose accumulated since the latest
