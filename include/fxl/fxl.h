@@ -43,6 +43,14 @@ typedef enum {
 
 typedef struct fxl_ctx fxl_ctx;
 
+/* Process-wide settings of the store, before the first fxl_open. With
+ * one_thread set, the process opens and uses every connection from a single
+ * thread (each command but 'serve'): the storage engine then takes no locks
+ * of its own between threads. Always: it keeps no memory statistics (nothing
+ * reads them). Called again, or after a database was opened, it changes
+ * nothing. */
+void fxl_store_configure(int one_thread);
+
 /* fxl_open flags */
 #define FXL_OPEN_CREATE 1     /* create the file if missing (fxledger init) */
 #define FXL_OPEN_READONLY 2   /* reports and listings: never write */

@@ -398,6 +398,9 @@ int main(int argc, char **argv)
     }
     env.command = cmd->name;
     flags = cmd->flags;
+    /* 'serve' runs its workers at once, each with a connection of its own;
+     * every other command uses the store from this thread alone. */
+    fxl_store_configure(strcmp(cmd->name, "serve") != 0);
 
     /* Help needs no database. */
     for (i = 1; i < (size_t)argc; i++)

@@ -316,6 +316,17 @@ static int is_empty_database(fxl_ctx *ctx, int *empty)
     return rc;
 }
 
+void fxl_store_configure(int one_thread)
+{
+    /* Debian's SQLite is built thread-safe with memory statistics on: a
+     * mutex and a counter on every allocation, about 12 % of the
+     * instructions of 'record' (docs/performance.md, change 19). Both calls
+     * are refused harmlessly (SQLITE_MISUSE) once SQLite has started. */
+    if (one_thread)
+        sqlite3_config(SQLITE_CONFIG_SINGLETHREAD);
+    sqlite3_config(SQLITE_CONFIG_MEMSTATUS, 0);
+}
+
 int fxl_open(fxl_ctx **out, const char *path, int flags)
 {
     fxl_ctx *ctx;
