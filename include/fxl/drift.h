@@ -7,6 +7,7 @@
 #ifndef FXL_DRIFT_H
 #define FXL_DRIFT_H
 
+#include <math.h>
 #include <stddef.h>
 
 #include "fxl/rules.h"
@@ -57,5 +58,29 @@ typedef struct fxl_drift_result {
  * start-up below FXL_DRIFT_STARTUP_MIN. */
 int fxl_drift_cusum(fxl_drift_result *out, double *s_high, double *s_low, double *sigma,
                     const double *dev_pct, size_t n, const fxl_drift_params *p);
+
+/* The chart after the results seen so far: everything the next result
+ * needs, so that a series can be continued instead of read again. A state
+ * continued with the results x_n, x_(n+1), ... gives exactly (the same
+ * operations in the same order) what fxl_drift_cusum gives for the whole
+ * series. FXL_DRIFT_STATE_INIT is the state before any result. */
+typedef struct fxl_drift_state {
+    size_t n;               /* results seen */
+    double mr_sum;          /* sum of |x_j - x_(j-1)|, 1 <= j < n */
+    double last_pct;        /* x_(n-1) (when n > 0) */
+    double sigma_pct;       /* spread at the last result (NaN in the start-up) */
+    double s_high, s_low;   /* C+ and C- after the last result */
+    int signal;             /* as in fxl_drift_result */
+    size_t signal_index;
+    double signal_value;
+} fxl_drift_state;
+
+#define FXL_DRIFT_STATE_INIT {0, 0.0, 0.0, NAN, 0.0, 0.0, 0, 0, 0.0}
+
+/* Continues `state` with n more results and fills `out` as fxl_drift_cusum
+ * would for the whole series. FXL_EINVAL as fxl_drift_cusum (state then
+ * unchanged). */
+int fxl_drift_cusum_continue(fxl_drift_result *out, fxl_drift_state *state, const double *dev_pct,
+                             size_t n, const fxl_drift_params *p);
 
 #endif

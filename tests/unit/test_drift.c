@@ -202,6 +202,67 @@ static void test_drift_refuses_bad_parameters(void **state)
     assert_int_equal(fxl_drift_cusum(&r, NULL, NULL, NULL, x, 1, &p), FXL_EINVAL);
 }
 
+/* A chart continued from its state, in pieces of every size, is the chart
+ * of the whole series, to the bit (the store keeps the state instead of
+ * reading the series again: docs/rules.md). Seeded series with a shift
+ * that signals after the start-up (invented deviations). */
+static void test_drift_continued_equals_whole(void **state)
+{
+    enum { N = 60 };
+    double x[N];
+    fxl_drift_params p = defaults();
+    fxl_drift_result whole, part;
+    size_t i, piece, done;
+
+    (void)state;
+    rng_state = SEED;
+    for (i = 0; i < N; i++)
+        x[i] = TRUE_SD_PCT * gauss() + (i >= 30 ? 1.5 * TRUE_SD_PCT : 0.0);
+    p.target_pct = 0.25;
+    for (size_t n = 0; n <= N; n++) {
+        assert_int_equal(fxl_drift_cusum(&whole, NULL, NULL, NULL, x, n, &p), 0);
+        for (piece = 1; piece <= 7; piece++) {
+            fxl_drift_state st = FXL_DRIFT_STATE_INIT;
+            for (done = 0; done < n; done += piece) {
+                size_t k = n - done < piece ? n - done : piece;
+                assert_int_equal(fxl_drift_cusum_continue(&part, &st, x + done, k, &p), 0);
+            }
+            if (n == 0)
+                assert_int_equal(fxl_drift_cusum_continue(&part, &st, NULL, 0, &p), 0);
+            assert_int_equal(part.n, whole.n);
+            assert_int_equal(part.started, whole.started);
+            assert_int_equal(part.signal, whole.signal);
+            assert_int_equal(part.signal_index, whole.signal_index);
+            assert_memory_equal(&part.s_high, &whole.s_high, sizeof whole.s_high);
+            assert_memory_equal(&part.s_low, &whole.s_low, sizeof whole.s_low);
+            assert_memory_equal(&part.signal_value, &whole.signal_value, sizeof whole.signal_value);
+            assert_true(isnan(whole.sigma_pct) ? isnan(part.sigma_pct)
+                                               : memcmp(&part.sigma_pct, &whole.sigma_pct,
+                                                        sizeof whole.sigma_pct) == 0);
+            assert_string_equal(part.text, whole.text);
+        }
+    }
+    /* the series signals: the test covers the signal's fields */
+    assert_int_equal(fxl_drift_cusum(&whole, NULL, NULL, NULL, x, N, &p), 0);
+    assert_int_not_equal(whole.signal, 0);
+}
+
+static void test_drift_continue_refuses_and_keeps_state(void **state)
+{
+    double x[2] = {1.0, NAN};
+    fxl_drift_params p = defaults();
+    fxl_drift_state st = FXL_DRIFT_STATE_INIT;
+    fxl_drift_result r;
+
+    (void)state;
+    assert_int_equal(fxl_drift_cusum_continue(&r, &st, x, 1, &p), 0);
+    assert_int_equal(fxl_drift_cusum_continue(&r, &st, x, 2, &p), FXL_EINVAL);
+    assert_int_equal(st.n, 1);
+    p.startup = 9;
+    assert_int_equal(fxl_drift_cusum_continue(&r, &st, x, 1, &p), FXL_EINVAL);
+    assert_int_equal(st.n, 1);
+}
+
 int main(void)
 {
     const struct CMUnitTest tests[] = {
@@ -212,6 +273,8 @@ int main(void)
         cmocka_unit_test(test_drift_one_gross_result_cannot_signal),
         cmocka_unit_test(test_drift_boundary_and_direction),
         cmocka_unit_test(test_drift_refuses_bad_parameters),
+        cmocka_unit_test(test_drift_continued_equals_whole),
+        cmocka_unit_test(test_drift_continue_refuses_and_keeps_state),
     };
     return cmocka_run_group_tests(tests, NULL, NULL);
 }
