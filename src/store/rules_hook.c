@@ -11,9 +11,9 @@
 #include "fxl/drift.h"
 #include "fxl/number.h"
 #include "fxl/rules.h"
-#include "store/dose_counted.h"
 #include "store/grow.h"
 #include "store/review_store.h"
+#include "store/rule_state.h"
 #include "store/rules_hook.h"
 #include "store/stmt.h"
 
@@ -360,7 +360,6 @@ cleanup:
  * point; all time if never calibrated) against detectors.dose_limit_cgy. */
 static int rule_dose_limit(fxl_ctx *ctx, const hook_detector *d)
 {
-    fxl_stmt s = FXL_STMT_INIT;
     fxl_dose_limit_result r;
     fxl_review_open_spec spec;
     char key[96], summary[720], since[FXL_TIME_LEN] = "";
@@ -370,36 +369,9 @@ static int rule_dose_limit(fxl_ctx *ctx, const hook_detector *d)
 
     if (!isfinite(d->dose_limit_cgy))
         return 0;
-    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
-            "SELECT coalesce(c.id, 0), coalesce(c.calibrated_at, ''), "
-            /* A gross or implausible result (a unit slip can be a factor
-             * 1000) adds the planned dose, the best estimate of what the
-             * detector received; one without a dose adds nothing
-             * (docs/rules.md). */
-            "       coalesce((SELECT sum(" FXL_SQL_DOSE_COUNTED("m") ") FROM measurements m "
-            "                 JOIN fractions fr ON fr.id = m.fraction_id "
-            "                 WHERE m.detector_id = :d AND m.corrected_dose_cgy IS NOT NULL "
-            "                 AND NOT EXISTS (SELECT 1 FROM measurements n WHERE n.supersedes_id = m.id) "
-            "                 AND (c.calibrated_at IS NULL OR fr.treated_at > c.calibrated_at) "
-            /* Same rows, found through measurements_by_detector: a row is
-             * written at or after its treatment time (record refuses a
-             * treatment time in the future), so created_at >= treated_at. */
-            "                 AND m.created_at > coalesce(c.calibrated_at, '')), 0) "
-            "FROM (SELECT 1) "
-            "LEFT JOIN calibrations c ON c.id = (SELECT c2.id FROM calibrations c2 "
-            "     WHERE c2.detector_id = :d ORDER BY c2.calibrated_at DESC, c2.id DESC LIMIT 1)")) != 0)
-        goto cleanup;
-    fxl_stmt_bind_int(&s, ":d", d->id);
-    if ((rc = fxl_stmt_step(&s)) != 1) {
-        if (rc == 0)
-            rc = fxl_fail(ctx, FXL_EDB, "internal: accumulated dose query returned no row");
-        goto cleanup;
-    }
-    cid = fxl_stmt_int(&s, 0);
-    snprintf(since, sizeof since, "%s", fxl_stmt_text(&s, 1));
-    total = fxl_stmt_double(&s, 2);
-    fxl_stmt_finalize(&s);
-    rc = 0;
+    /* the sum kept and continued fraction by fraction (store/rule_state.h) */
+    if ((rc = fxl_dose_since_calibration(ctx, d->id, &cid, since, &total)) != 0)
+        return rc;
     if (fxl_rule_dose_limit(&r, total, d->dose_limit_cgy) != 0) {
         rc = fxl_fail(ctx, FXL_EINVAL, "internal: accumulated dose %g cGy of detector %s is not valid",
                       total, d->serial);
@@ -424,7 +396,6 @@ static int rule_dose_limit(fxl_ctx *ctx, const hook_detector *d)
     spec.summary = summary;
     rc = fxl_review_open_item(ctx, NULL, &spec);
 cleanup:
-    fxl_stmt_finalize(&s);
     return rc;
 }
 
@@ -546,82 +517,29 @@ cleanup:
     return rc;
 }
 
-/* The deviations of one series since its restart point, in the order and
- * with the conditions of fxl_drift_series, and nothing else: the rule uses
- * only the deviations, so no patient, plan or field name is read or copied
- * (docs/performance.md). *out is NULL when n is 0. */
-static int drift_deviations(fxl_ctx *ctx, double **out, size_t *n, char since[FXL_TIME_LEN],
-                            int64_t detector_id, int64_t beam_id, const char *point)
-{
-    fxl_stmt s = FXL_STMT_INIT;
-    double *list = NULL;
-    size_t cap = 0, count = 0;
-    int rc;
-
-    *out = NULL;
-    *n = 0;
-    if ((rc = drift_since(ctx, since, detector_id, beam_id, point, 0)) != 0)
-        goto cleanup;
-    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
-            "SELECT m.deviation_pct "
-            "FROM measurements m "
-            "JOIN fractions fr ON fr.id = m.fraction_id "
-            "JOIN fields f ON f.id = m.field_id "
-            "WHERE m.detector_id = :d AND m.deviation_pct IS NOT NULL "
-            "  AND m.verdict IN ('within_tolerance', 'outside_tolerance', 'outside_action') "
-            "  AND m.gross = 0 "
-            "  AND f.beam_id = :b AND f.point = :p "
-            "  AND NOT EXISTS (SELECT 1 FROM measurements n WHERE n.supersedes_id = m.id) "
-            "  AND (:since = '' OR fr.treated_at > :since) "
-            "  AND m.created_at > :since "
-            "ORDER BY fr.treated_at, m.id")) != 0)
-        goto cleanup;
-    fxl_stmt_bind_int(&s, ":d", detector_id);
-    fxl_stmt_bind_int(&s, ":b", beam_id);
-    fxl_stmt_bind_text(&s, ":p", point);
-    fxl_stmt_bind_text(&s, ":since", since);
-    while ((rc = fxl_stmt_step(&s)) == 1) {
-        if ((rc = fxl_grow(ctx, (void **)&list, &cap, count, sizeof *list,
-                           "reading a detector's deviations")) != 0)
-            goto cleanup;
-        list[count++] = fxl_stmt_double(&s, 0);
-    }
-    if (rc == 0) {
-        *out = list;
-        *n = count;
-        list = NULL;
-    }
-cleanup:
-    fxl_stmt_finalize(&s);
-    free(list);
-    return rc;
-}
-
 /* The standardised CUSUM of one series (detector, beam, point); a signal
  * opens one item on the detector per series and restart point. */
 static int drift_series_rule(fxl_ctx *ctx, const hook_detector *d, const fxl_rule_settings *rs,
                              int64_t beam_id, const char *beam, const char *point)
 {
-    double *dev = NULL;
     fxl_drift_params p;
     fxl_drift_result r;
     fxl_review_open_spec spec;
     char since[FXL_TIME_LEN], series[128], key[200], summary[720];
-    size_t n = 0;
     int rc;
 
-    if ((rc = drift_deviations(ctx, &dev, &n, since, d->id, beam_id, point)) != 0 || n == 0)
-        goto cleanup;
+    if ((rc = drift_since(ctx, since, d->id, beam_id, point, 0)) != 0)
+        return rc;
     p.target_pct = rs->cusum_target_pct;
     p.k_sigma = rs->cusum_k_sd;
     p.h_sigma = rs->cusum_h_sd;
     p.startup = (size_t)rs->cusum_startup;
-    if (fxl_drift_cusum(&r, NULL, NULL, NULL, dev, n, &p) != 0) {
-        rc = fxl_fail(ctx, FXL_EINVAL, "setting 'cusum_h_sd' must be above 0 (see docs/rules.md)");
-        goto cleanup;
-    }
-    if (!r.signal)
-        goto cleanup;
+    /* the chart kept and continued fraction by fraction (store/rule_state.h) */
+    rc = fxl_drift_chart(ctx, &r, d->id, beam_id, point, since, &p);
+    if (rc == FXL_EINVAL)
+        return fxl_fail(ctx, FXL_EINVAL, "setting 'cusum_h_sd' must be above 0 (see docs/rules.md)");
+    if (rc != 0 || r.n == 0 || !r.signal)
+        return rc;
     fxl_drift_series_key(series, sizeof series, d->id, beam_id, point);
     snprintf(key, sizeof key, "%s:since:%s", series, since[0] ? since : "start");
     snprintf(summary, sizeof summary, "detector %s, beam %s %s: %s, all patients since %s",
@@ -632,10 +550,7 @@ static int drift_series_rule(fxl_ctx *ctx, const hook_detector *d, const fxl_rul
     spec.detector_id = d->id;
     spec.rule_key = key;
     spec.summary = summary;
-    rc = fxl_review_open_item(ctx, NULL, &spec);
-cleanup:
-    free(dev);
-    return rc;
+    return fxl_review_open_item(ctx, NULL, &spec);
 }
 
 /* Drift per detector, beam and measured point: one chart for each series

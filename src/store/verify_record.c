@@ -13,6 +13,7 @@
 #include "fxl/audit.h"
 #include "fxl/auth.h"
 #include "store/migrations.h"
+#include "store/rule_state.h"
 #include "store/seal.h"
 #include "store/stmt.h"
 
@@ -586,6 +587,20 @@ cleanup:
     return rc;
 }
 
+/* The kept state of the rules over history (sql/015) against the
+ * measurements: derived rows, so a difference is a row changed outside
+ * fxledger (or a fault), and the next rules would continue from it. */
+static int check_rule_state(fxl_ctx *ctx, fxl_record_report *out)
+{
+    char bad[FXL_RECORD_PROBLEM_LEN - 64];
+    long long checked = 0;
+    int rc = fxl_rule_state_verify(ctx, &checked, bad, sizeof bad);
+
+    if (rc == 0 && bad[0])
+        problem(out, "rule state: %s: changed outside fxledger", bad);
+    return rc;
+}
+
 int fxl_record_verify(fxl_ctx *ctx, const char *anchor, fxl_record_report *out)
 {
     fxl_stmt s = FXL_STMT_INIT;
@@ -606,7 +621,7 @@ int fxl_record_verify(fxl_ctx *ctx, const char *anchor, fxl_record_report *out)
      * read is one more sign of it, reported rather than raised. */
     if ((rc = check_audit_seals(ctx, out)) != 0 || (rc = check_rows(ctx, out)) != 0 ||
         (rc = check_users(ctx, out)) != 0 || (rc = check_settings(ctx, out)) != 0 ||
-        (rc = check_review_status(ctx, out)) != 0) {
+        (rc = check_review_status(ctx, out)) != 0 || (rc = check_rule_state(ctx, out)) != 0) {
         problem(out, "could not finish: %s", fxl_errmsg(ctx));
         rc = 0;
     }

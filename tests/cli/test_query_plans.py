@@ -17,6 +17,8 @@ from fxlcli import FxlTestCase, main
 
 ROOT = os.path.normpath(os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", ".."))
 SOURCE = os.environ.get("FXL_PLAN_SOURCE") or os.path.join(ROOT, "src", "store", "rules_hook.c")
+# the kept state of the rules (issue 16, change 20); absent in older versions
+STATE_SOURCE = os.environ.get("FXL_PLAN_STATE") or os.path.join(ROOT, "src", "store", "rule_state.c")
 
 TOKEN = re.compile(r'"((?:[^"\\]|\\.)*)"|([A-Za-z_][A-Za-z_0-9]*)|(/\*.*?\*/)|(\s+)|(\))', re.S)
 
@@ -94,7 +96,7 @@ def has_function(function):
                      re.M) is not None
 
 
-PARAMS = {"fr": 1, "patient": 1, "d": 1, "all": 0, "b": 1, "p": "entrance", "since": "", "key": "k",
+PARAMS = {"through": 1, "upto": 9, "cal": "", "settings": "", "fr": 1, "patient": 1, "d": 1, "all": 0, "b": 1, "p": "entrance", "since": "", "key": "k",
           "at": "2026-01-01T00:00:00Z", "asof": "2026-01-01T00:00:00Z", "warn": 0.8}
 
 
@@ -155,7 +157,12 @@ class QueryPlanTest(FxlTestCase):
         self.assertNoFullScan(plan)
 
     def test_drift_rule_reads_only_the_deviations_since_the_restart(self):
-        if has_function("drift_deviations"):
+        if os.path.exists(STATE_SOURCE):
+            # since issue 16, change 20: the chart is read again in full
+            # only when its kept state cannot be continued
+            [devs] = statements("drift_read_all", STATE_SOURCE)
+            [since] = [q for q in statements("drift_since") if ":b" in q]
+        elif has_function("drift_deviations"):
             [devs] = statements("drift_deviations")
             # the text for one series (the other is the whole detector's,
             # for the review screen)
@@ -163,8 +170,8 @@ class QueryPlanTest(FxlTestCase):
         else:   # the version before issue 16: the rule read fxl_drift_series
             [since, devs] = statements("fxl_drift_series")
         plan = self.plan(devs)
-        # one column read; no patient, plan or name joined
-        self.assertRegex(devs, r"^SELECT m\.deviation_pct FROM")
+        # the deviation (and its order) read; no patient, plan or name joined
+        self.assertRegex(devs, r"^SELECT (fr\.treated_at, )?m\.deviation_pct FROM")
         for table in ("patients", "plans"):
             self.assertNotIn(table, devs)
         # the rows after the restart point, found by the detector's index
@@ -185,7 +192,10 @@ class QueryPlanTest(FxlTestCase):
         self.assertNoFullScan(plan)
 
     def test_dose_limit_rule_reads_only_since_the_calibration(self):
-        [sql] = statements("rule_dose_limit")
+        if os.path.exists(STATE_SOURCE):
+            [sql] = statements("dose_read_all", STATE_SOURCE)
+        else:
+            [sql] = statements("rule_dose_limit")
         plan = self.plan(sql)
         # the detector's rows written after its latest calibration
         self.assertTrue([ln for ln in plan if re.match(
@@ -193,6 +203,22 @@ class QueryPlanTest(FxlTestCase):
             ln)], "\n".join(plan))
         self.assertNoFullScan(plan)
         self.assertCovered(plan)
+
+    def test_kept_state_reads_only_the_rows_since(self):
+        """Continuing a kept sum or chart (src/store/rule_state.c) reads the
+        rows written after its through_id by the primary key - the
+        fraction's own, not the detector's history - and the amendments
+        among them the same way."""
+        for function in ("dose_read_since", "drift_read_since", "amended_since"):
+            [sql] = statements(function, STATE_SOURCE)
+            plan = self.plan(sql)
+            alias = "s" if function == "amended_since" else "m"
+            self.assertTrue([ln for ln in plan if re.match(
+                r"SEARCH %s USING INTEGER PRIMARY KEY \(rowid>\?\)" % alias, ln)],
+                function + ":\n" + "\n".join(plan))
+            self.assertFalse([ln for ln in plan if "measurements_by_" in ln],
+                             function + ":\n" + "\n".join(plan))
+            self.assertNoFullScan(plan)
 
     def test_detector_view_reads_only_since_the_calibration(self):
         """detector show / list: the dose accumulated since the latest
