@@ -55,8 +55,9 @@ def peak_mib(argv, env=None, stdin_path=None):
 # ---- the rows a command wrote ------------------------------------------------------
 
 # tables whose rows change in place during a logging command (a session's
-# last activity); replayed as UPDATE statements
-MUTABLE = ("auth_sessions", "auth_lockout")
+# last activity, the rules' kept state of sql/015); replayed as UPDATE
+# statements, or INSERTs for new rows
+MUTABLE = ("auth_sessions", "auth_lockout", "dose_since_calibration", "drift_charts")
 FK_ORDER = ["patients", "plans", "fields", "fractions", "measurements", "review_items",
             "review_events", "signatures", "audit_log"]
 
