@@ -127,7 +127,8 @@ int fxl_clock_is_test(void);
  * FXL_EINVAL for anything else or an impossible date (2026-02-30). */
 int fxl_time_normalize(char out[FXL_TIME_LEN], const char *in, int end_of_day);
 
-/* Adds whole days to a stored timestamp (negative to subtract). */
+/* Adds whole days to a stored timestamp (negative to subtract). FXL_EINVAL
+ * for an unreadable timestamp or a result outside the years 1900 to 2999. */
 int fxl_time_add_days(char out[FXL_TIME_LEN], const char *in, int days);
 
 /* Settings (key/value). fxl_setting_get copies into buf; FXL_ENOTFOUND if

@@ -51,7 +51,7 @@ static int day_number(long *out, const char *stamp)
 
     if (!stamp || fxl_time_normalize(norm, stamp, 0) != 0)
         return FXL_EINVAL;
-    if (sscanf(norm, "%4d-%2d-%2d", &y, &m, &d) != 3)
+    if (fxl_time_fields(norm, &y, &m, &d, NULL, NULL, NULL) != 0)
         return FXL_EINVAL;
     *out = fxl_days_from_civil(y, m, d);
     return 0;

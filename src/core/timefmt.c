@@ -14,13 +14,41 @@ static int days_in_month(int y, int m)
     return m == 2 && leap ? 29 : days[m - 1];
 }
 
+/* Two decimal digits of v (0..99) at out. */
+static void put2(char *out, int v)
+{
+    out[0] = (char)('0' + v / 10);
+    out[1] = (char)('0' + v % 10);
+}
+
+/* 'YYYY-MM-DDTHH:MM:SSZ' (the fields already range-checked), written digit
+ * by digit: this runs for every timestamp a fraction touches. */
 static void format_time(char out[FXL_TIME_LEN], int y, int mo, int d, int h, int mi, int s)
 {
-    char buf[64];
+    put2(out, y / 100);
+    put2(out + 2, y % 100);
+    out[4] = '-';
+    put2(out + 5, mo);
+    out[7] = '-';
+    put2(out + 8, d);
+    out[10] = 'T';
+    put2(out + 11, h);
+    out[13] = ':';
+    put2(out + 14, mi);
+    out[16] = ':';
+    put2(out + 17, s);
+    out[19] = 'Z';
+    out[20] = '\0';
+}
 
-    snprintf(buf, sizeof buf, "%04d-%02d-%02dT%02d:%02d:%02dZ", y, mo, d, h, mi, s);
-    memcpy(out, buf, FXL_TIME_LEN - 1);
-    out[FXL_TIME_LEN - 1] = '\0';
+/* The number written by n decimal digits at p (their shape checked before). */
+static int digits(const char *p, int n)
+{
+    int v = 0;
+
+    while (n-- > 0)
+        v = v * 10 + (*p++ - '0');
+    return v;
 }
 
 /* The shape of each accepted form: 'd' a digit, anything else itself. */
@@ -35,47 +63,52 @@ static int matches_shape(const char *in, const char *shape)
 
 int fxl_time_normalize(char out[FXL_TIME_LEN], const char *in, int end_of_day)
 {
-    int y, mo, d, h = 0, mi = 0, s = 0, n = 0;
-    size_t len;
+    int y, mo, d, h = 0, mi = 0, s = 0;
 
     if (!in)
         return FXL_EINVAL;
-    /* sscanf alone would take spaces and signs inside a field. */
-    if (!matches_shape(in, "dddd-dd-dd") && !matches_shape(in, "dddd-dd-ddTdd:dd") &&
-        !matches_shape(in, "dddd-dd-ddTdd:ddZ") && !matches_shape(in, "dddd-dd-ddTdd:dd:dd") &&
-        !matches_shape(in, "dddd-dd-ddTdd:dd:ddZ"))
-        return FXL_EINVAL;
-    len = strlen(in);
-    if (len == 10) {
-        if (sscanf(in, "%4d-%2d-%2d%n", &y, &mo, &d, &n) != 3 || n != 10)
-            return FXL_EINVAL;
+    /* Exactly one of the accepted forms, digit by digit (no space, sign or
+     * missing digit inside a field); then every field is where the form
+     * puts it. */
+    if (matches_shape(in, "dddd-dd-dd")) {
         if (end_of_day) {
             h = 23;
             mi = 59;
             s = 59;
         }
-    } else if (len >= 16 && len <= 20) {
-        char rest[8] = "";
-        if (sscanf(in, "%4d-%2d-%2dT%2d:%2d%n", &y, &mo, &d, &h, &mi, &n) != 5 || n != 16)
-            return FXL_EINVAL;
-        snprintf(rest, sizeof rest, "%s", in + 16);
-        if (strcmp(rest, "") == 0 || strcmp(rest, "Z") == 0) {
-            s = 0;
-        } else {
-            int n2 = 0;
-            if (sscanf(rest, ":%2d%n", &s, &n2) != 1 || n2 != 3 ||
-                !(rest[3] == '\0' || (rest[3] == 'Z' && rest[4] == '\0')))
-                return FXL_EINVAL;
-        }
+    } else if (matches_shape(in, "dddd-dd-ddTdd:dd") || matches_shape(in, "dddd-dd-ddTdd:ddZ")) {
+        h = digits(in + 11, 2);
+        mi = digits(in + 14, 2);
+    } else if (matches_shape(in, "dddd-dd-ddTdd:dd:dd") || matches_shape(in, "dddd-dd-ddTdd:dd:ddZ")) {
+        h = digits(in + 11, 2);
+        mi = digits(in + 14, 2);
+        s = digits(in + 17, 2);
     } else {
         return FXL_EINVAL;
     }
-    if (in[4] != '-' || in[7] != '-')
-        return FXL_EINVAL;
+    y = digits(in, 4);
+    mo = digits(in + 5, 2);
+    d = digits(in + 8, 2);
     if (y < 1900 || y > 2999 || mo < 1 || mo > 12 || d < 1 || d > days_in_month(y, mo) ||
         h < 0 || h > 23 || mi < 0 || mi > 59 || s < 0 || s > 59)
         return FXL_EINVAL;
     format_time(out, y, mo, d, h, mi, s);
+    return 0;
+}
+
+int fxl_time_fields(const char *norm, int *y, int *m, int *d, int *h, int *mi, int *s)
+{
+    if (!norm || !matches_shape(norm, "dddd-dd-ddTdd:dd:ddZ"))
+        return FXL_EINVAL;
+    *y = digits(norm, 4);
+    *m = digits(norm + 5, 2);
+    *d = digits(norm + 8, 2);
+    if (h)
+        *h = digits(norm + 11, 2);
+    if (mi)
+        *mi = digits(norm + 14, 2);
+    if (s)
+        *s = digits(norm + 17, 2);
     return 0;
 }
 
@@ -112,10 +145,12 @@ int fxl_time_add_days(char out[FXL_TIME_LEN], const char *in, int days)
     char norm[FXL_TIME_LEN];
     int y, m, d, h, mi, s;
 
-    if (fxl_time_normalize(norm, in, 0) != 0)
+    if (fxl_time_normalize(norm, in, 0) != 0 || fxl_time_fields(norm, &y, &m, &d, &h, &mi, &s) != 0)
         return FXL_EINVAL;
-    sscanf(norm, "%4d-%2d-%2dT%2d:%2d:%2d", &y, &m, &d, &h, &mi, &s);
     civil_from_days(fxl_days_from_civil(y, m, d) + days, &y, &m, &d);
+    /* the years fxl_time_normalize accepts: a date it can read back */
+    if (y < 1900 || y > 2999)
+        return FXL_EINVAL;
     format_time(out, y, m, d, h, mi, s);
     return 0;
 }

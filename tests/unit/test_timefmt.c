@@ -183,6 +183,11 @@ static void test_timefmt_add_days_accepts_typed_date(void **state)
     assert_int_equal(fxl_time_add_days(out, "2026-02-30", 1), FXL_EINVAL);
     assert_int_equal(fxl_time_add_days(out, "not a date", 1), FXL_EINVAL);
     assert_int_equal(fxl_time_add_days(out, NULL, 1), FXL_EINVAL);
+    /* a result outside the years a timestamp may have (1900 to 2999) is
+     * refused, not written in a form fxl_time_normalize would not read */
+    assert_adds("2999-12-30T10:00:00Z", 1, "2999-12-31T10:00:00Z");
+    assert_int_equal(fxl_time_add_days(out, "2999-12-31T10:00:00Z", 1), FXL_EINVAL);
+    assert_int_equal(fxl_time_add_days(out, "1900-01-01", -1), FXL_EINVAL);
 }
 
 static void test_timefmt_sorts_as_text(void **state)
