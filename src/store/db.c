@@ -20,6 +20,11 @@
 
 /* How long a writer waits for another process's lock before "busy". */
 #define BUSY_TIMEOUT_MS 5000
+/* WAL pages after which a commit copies the WAL into the database file and
+ * empties it (wal_hook). */
+#ifndef WAL_CHECKPOINT_PAGES
+#define WAL_CHECKPOINT_PAGES 1000
+#endif
 
 int fxl_fail(fxl_ctx *ctx, int code, const char *fmt, ...)
 {
@@ -316,6 +321,28 @@ static int is_empty_database(fxl_ctx *ctx, int *empty)
     return rc;
 }
 
+/* After every commit (sqlite3_wal_hook, in place of SQLite's own
+ * auto-checkpoint): once the WAL holds WAL_CHECKPOINT_PAGES pages, copy them
+ * into the database file and empty the WAL (SQLITE_CHECKPOINT_TRUNCATE).
+ * SQLite's own passive checkpoint leaves the copied pages in the WAL; a
+ * process that opens the file next rebuilds the WAL's index from the whole
+ * -wal file and cannot know they were copied, so without an empty WAL it
+ * grew with every command and each one read and copied all of it again
+ * (docs/performance.md, change 21). The commit is already durable in the
+ * WAL; the checkpoint does not wait for readers (busy timeout 0 while it
+ * runs): with a reader in the way it copies what it can and the next
+ * commit tries again. A failure here changes nothing committed. */
+static int wal_hook(void *arg, sqlite3 *db, const char *name, int pages)
+{
+    (void)arg;
+    if (pages >= WAL_CHECKPOINT_PAGES) {
+        sqlite3_busy_timeout(db, 0);
+        (void)sqlite3_wal_checkpoint_v2(db, name, SQLITE_CHECKPOINT_TRUNCATE, NULL, NULL);
+        sqlite3_busy_timeout(db, BUSY_TIMEOUT_MS);
+    }
+    return SQLITE_OK;
+}
+
 void fxl_store_configure(int one_thread)
 {
     /* Debian's SQLite is built thread-safe with memory statistics on: a
@@ -395,11 +422,13 @@ int fxl_open(fxl_ctx **out, const char *path, int flags)
             return explain_open_failure(ctx, path, 0);
         /* No checkpoint when the last connection closes: committed rows stay
          * in the -wal file (already synced there: synchronous FULL) until
-         * SQLite's auto-checkpoint after 1,000 pages moves them into the
-         * file, so a command does not pay for copying the WAL at every exit.
+         * the commit after which the WAL holds 1,000 pages moves them into
+         * the file and empties the WAL (wal_hook), so a command does not
+         * pay for copying the WAL at every exit.
          * The database is the .db file together with its -wal: a copy is
          * made with 'fxledger backup' (docs/robustness.md). */
         sqlite3_db_config(ctx->db, SQLITE_DBCONFIG_NO_CKPT_ON_CLOSE, 1, (int *)NULL);
+        sqlite3_wal_hook(ctx->db, wal_hook, NULL);
         /* SQLite opens a write-protected file read-only without a word;
          * say so now rather than at the first write. */
         if (sqlite3_db_readonly(ctx->db, "main") == 1) {

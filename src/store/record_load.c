@@ -11,6 +11,7 @@
 #include "fxl/number.h"
 #include "fxl/thresholds.h"
 #include "store/grow.h"
+#include "store/lookup_sql.h"
 #include "store/record_int.h"
 #include "store/stmt.h"
 
@@ -33,6 +34,10 @@ void rec_inputs_release(rec_inputs *in)
 
 /* ---- plan, field, detector ------------------------------------------------ */
 
+const char fxl_sql_patient_by_mrn[] =
+    "SELECT id, mrn, family_name, given_name FROM patients WHERE mrn = :mrn";
+const char fxl_sql_detector_by_serial[] = "SELECT id, reading_unit FROM detectors WHERE serial = :serial";
+
 int rec_load_plan(fxl_ctx *ctx, rec_plan *out, const char *mrn, const char *label)
 {
     fxl_stmt s = FXL_STMT_INIT;
@@ -41,8 +46,7 @@ int rec_load_plan(fxl_ctx *ctx, rec_plan *out, const char *mrn, const char *labe
     memset(out, 0, sizeof *out);
     if (!mrn || !*mrn)
         return fxl_fail(ctx, FXL_EINVAL, "a patient is required (--patient MRN)");
-    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
-                               "SELECT id, mrn, family_name, given_name FROM patients WHERE mrn = :mrn")) != 0)
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx, fxl_sql_patient_by_mrn)) != 0)
         goto cleanup;
     fxl_stmt_bind_text(&s, ":mrn", mrn);
     if ((rc = fxl_stmt_step(&s)) < 0)
@@ -195,8 +199,7 @@ int rec_find_detector(fxl_ctx *ctx, int64_t *id, char unit[8], const char *seria
     *id = 0;
     if (!serial || !*serial)
         return fxl_fail(ctx, FXL_EINVAL, "a detector serial is required for every reading");
-    if ((rc = fxl_stmt_prepare_cached(&s, ctx,
-                               "SELECT id, reading_unit FROM detectors WHERE serial = :serial")) != 0)
+    if ((rc = fxl_stmt_prepare_cached(&s, ctx, fxl_sql_detector_by_serial)) != 0)
         goto cleanup;
     fxl_stmt_bind_text(&s, ":serial", serial);
     if ((rc = fxl_stmt_step(&s)) < 0)
