@@ -21,9 +21,11 @@
 /* How long a writer waits for another process's lock before "busy". */
 #define BUSY_TIMEOUT_MS 5000
 /* WAL pages after which a commit copies the WAL into the database file and
- * empties it (wal_hook). */
+ * empties it (wal_hook): about five logged fractions. A longer WAL costs
+ * every command that opens the file alone more to read than its rarer
+ * checkpoints save (docs/performance.md, change 21). */
 #ifndef WAL_CHECKPOINT_PAGES
-#define WAL_CHECKPOINT_PAGES 1000
+#define WAL_CHECKPOINT_PAGES 200
 #endif
 
 int fxl_fail(fxl_ctx *ctx, int code, const char *fmt, ...)
@@ -422,9 +424,9 @@ int fxl_open(fxl_ctx **out, const char *path, int flags)
             return explain_open_failure(ctx, path, 0);
         /* No checkpoint when the last connection closes: committed rows stay
          * in the -wal file (already synced there: synchronous FULL) until
-         * the commit after which the WAL holds 1,000 pages moves them into
-         * the file and empties the WAL (wal_hook), so a command does not
-         * pay for copying the WAL at every exit.
+         * the commit after which the WAL holds WAL_CHECKPOINT_PAGES pages
+         * moves them into the file and empties the WAL (wal_hook), so a
+         * command does not pay for copying the WAL at every exit.
          * The database is the .db file together with its -wal: a copy is
          * made with 'fxledger backup' (docs/robustness.md). */
         sqlite3_db_config(ctx->db, SQLITE_DBCONFIG_NO_CKPT_ON_CLOSE, 1, (int *)NULL);
