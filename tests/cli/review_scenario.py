@@ -45,10 +45,7 @@ class ReviewCase(FxlTestCase):
         fx.ok("machine", "add", "LINAC1")
         fx.ok("machine", "beam", "6X", "--machine", "LINAC1", "--modality", "photon",
               "--energy", "6", "--dmax", "1.5")
-        fx.ok("detector", "add", "D-1", "--label", "Diode 1", "--kind", "photon_diode", "--temp-coeff", "0")
-        fx.ok("calib", "add", "D-1", "--machine", "LINAC1", "--beam", "6X", "--point", "entrance",
-              "--chamber-dose", "100", "--readings", "10,10,10", "--temp", "20",
-              "--valid-until", "2026-12-31")
+        self.add_diode("D-1", "2026-12-31")
         fx.ok("levels", "set", "default", "--tolerance", "5", "--action", "8",
               "--effective", "2026-01-01")
         for mrn, family in (("P-1", "Example"), ("P-2", "Sample")):
@@ -57,6 +54,18 @@ class ReviewCase(FxlTestCase):
                         fields=[field("AP", "first", 0), field("PA", "weekly", 180)])
             fx.ok("plan", "import", fx.write("plan-%s.json" % mrn, json.dumps(plan)), user="phys")
         fx.now = "2026-11-02T09:00:00Z"
+
+    def add_diode(self, serial, valid_until, *options, user=None):
+        """A photon diode with no temperature coefficient ('detector add'
+        options beside), calibrated for 6X entrance to N = 10 cGy/nC."""
+        self.fx.ok("detector", "add", serial, "--label", "Diode " + serial[2:], "--kind",
+                   "photon_diode", "--temp-coeff", "0", *options)
+        self.calibrate_diode(serial, valid_until, user=user)
+
+    def calibrate_diode(self, serial, valid_until, user=None):
+        self.fx.ok("calib", "add", serial, "--machine", "LINAC1", "--beam", "6X", "--point",
+                   "entrance", "--chamber-dose", "100", "--readings", "10,10,10", "--temp", "20",
+                   "--valid-until", valid_until, user=user)
 
     def record(self, mrn, at, *readings, user="ther", expect=(0, 10, 11, 12)):
         """Logs one fraction: readings are (field, deviation_pct) pairs with

@@ -13,13 +13,8 @@ from review_scenario import ReviewCase, reading_for
 class HoldsOnDetectorsTest(ReviewCase):
     def setUp(self):
         super().setUp()
-        fx = self.fx
-        fx.now = "2026-10-01T09:00:00Z"
-        fx.ok("detector", "add", "D-2", "--label", "Diode 2", "--kind", "photon_diode",
-              "--temp-coeff", "0")
-        fx.ok("calib", "add", "D-2", "--machine", "LINAC1", "--beam", "6X", "--point", "entrance",
-              "--chamber-dose", "100", "--readings", "10,10,10", "--temp", "20",
-              "--valid-until", "2027-06-30", user="phys")
+        self.fx.now = "2026-10-01T09:00:00Z"
+        self.add_diode("D-2", "2027-06-30", user="phys")
 
     def log(self, mrn, at, detector):
         self.fx.now = at[:-3] + "30Z"

@@ -24,17 +24,13 @@ class RuleStateTest(ReviewCase):
         super().setUp()
         fx = self.fx
         fx.now = "2026-10-01T09:00:00Z"
-        fx.ok("detector", "add", "D-2", "--label", "Diode 2", "--kind", "photon_diode",
-              "--temp-coeff", "0", "--dose-limit", "1000000")
-        self.calibrate("2026-10-01T09:30:00Z")
+        self.add_diode("D-2", "2027-06-30", "--dose-limit", "1000000", user="phys")
         fx.now = "2026-11-02T09:00:00Z"
         self.hour = 0
 
     def calibrate(self, at):
         self.fx.now = at
-        self.fx.ok("calib", "add", "D-2", "--machine", "LINAC1", "--beam", "6X", "--point",
-                   "entrance", "--chamber-dose", "100", "--readings", "10,10,10", "--temp", "20",
-                   "--valid-until", "2027-06-30", user="phys")
+        self.calibrate_diode("D-2", "2027-06-30", user="phys")
 
     def log(self, mrn, at, *devs, expect=(0, 10, 11, 12)):
         """One fraction on D-2, the clock a minute after the treatment."""
@@ -86,6 +82,17 @@ class RuleStateTest(ReviewCase):
         r = self.fx.json("verify", user="aud")
         self.assertTrue(r["ok"], r)
 
+    def assertVerifyNames(self, change, text):
+        """A kept row changed outside fxledger (SQL `change`): verify fails
+        naming it."""
+        c = sqlite3.connect(self.fx.db)
+        c.execute(change)
+        c.commit()
+        c.close()
+        r = self.fx.run("--json", "verify", user="aud")
+        self.assertNotEqual(r.returncode, 0)
+        self.assertIn(text, r.stdout + r.stderr)
+
     def fractions(self, n, day, devs=(0.8, -1.3)):
         for i in range(n):
             self.log("P-1" if i % 2 == 0 else "P-2", "2026-11-%02dT%02d:00:00Z" % (day, 8 + i),
@@ -133,15 +140,8 @@ class RuleStateTest(ReviewCase):
 
     def test_continued_not_read_again_and_verify_finds_a_changed_row(self):
         self.fractions(3, 2)
-        before, _ = self.kept()
-        # changed outside fxledger: verify names it
-        c = sqlite3.connect(self.fx.db)
-        c.execute("UPDATE dose_since_calibration SET dose_cgy = dose_cgy - 1000")
-        c.commit()
-        c.close()
-        r = self.fx.run("--json", "verify", user="aud")
-        self.assertNotEqual(r.returncode, 0)
-        self.assertIn("dose since calibration", r.stdout + r.stderr)
+        self.assertVerifyNames("UPDATE dose_since_calibration SET dose_cgy = dose_cgy - 1000",
+                               "dose since calibration")
         # the next fraction continues the kept sum (it does not read the
         # rows again): the change carries on until the row is put right
         self.log("P-2", "2026-11-02T12:00:00Z", 0.0, 0.0)
@@ -151,13 +151,7 @@ class RuleStateTest(ReviewCase):
 
     def test_verify_finds_a_changed_chart(self):
         self.fractions(3, 2)
-        c = sqlite3.connect(self.fx.db)
-        c.execute("UPDATE drift_charts SET n = n + 1")
-        c.commit()
-        c.close()
-        r = self.fx.run("--json", "verify", user="aud")
-        self.assertNotEqual(r.returncode, 0)
-        self.assertIn("drift chart of detector", r.stdout + r.stderr)
+        self.assertVerifyNames("UPDATE drift_charts SET n = n + 1", "drift chart of detector")
 
 
 if __name__ == "__main__":
