@@ -6,17 +6,13 @@ worklist, the interactive session, the verdict table, the history and the
 review queue - have no line over 80 columns. Skipped only when tmux is not
 installed. The department, patients and plans are invented."""
 import json
-import os
 import shlex
-import shutil
-import subprocess
-import time
 import unittest
 
 from fxlcli import main
 from record_fixture import RecordTestCase
+from tmux_terminal import TMUX, TmuxTerminal
 
-TMUX = shutil.which("tmux")
 WIDTH = 80
 MRN2 = "TEST-0202"
 
@@ -44,11 +40,8 @@ class ConsoleTmuxTest(RecordTestCase):
         fx.ok("record", "--patient", MRN2, "--detector", "D-1001", "--temp", "31",
               "--field", "F1", "--reading", "20.0", "--field", "F2", "--reading", "20.1",
               "--field", "F3", "--reading", "19.9", user="tina")
-        self.session = "fxl%d" % os.getpid()
-        self.addCleanup(self.kill)
-
-    def kill(self):
-        subprocess.run([TMUX, "kill-session", "-t", self.session], capture_output=True)
+        self.term = TmuxTerminal(WIDTH, 60)
+        self.addCleanup(self.term.kill_server)
 
     def start(self, args, now):
         """Runs fxledger in a detached tmux session of WIDTH columns."""
@@ -57,27 +50,16 @@ class ConsoleTmuxTest(RecordTestCase):
             now, shlex.quote(self.fx.state_dir("tina")))
         cmd = "env -u FXLEDGER_DB -u FXLEDGER_USER %s %s --db %s --user tina %s; echo EXIT=$?; sleep 600" % (
             env, shlex.quote(self.fx.bin), shlex.quote(self.fx.db), " ".join(shlex.quote(a) for a in args))
-        subprocess.run([TMUX, "new-session", "-d", "-s", self.session, "-x", str(WIDTH), "-y", "60",
-                        cmd], check=True)
-
-    def screen(self):
-        # -J joins lines the terminal wrapped, so an overlong line shows as one
-        # line longer than the width; -S - starts at the scrollback's top.
-        r = subprocess.run([TMUX, "capture-pane", "-p", "-J", "-S", "-", "-t", self.session],
-                           capture_output=True, text=True, check=True)
-        return r.stdout
+        self.term.start(cmd)
 
     def wait_for(self, text, count=1):
-        deadline = time.monotonic() + 30
-        while time.monotonic() < deadline:
-            s = self.screen()
-            if s.count(text) >= count:
-                return s
-            time.sleep(0.1)
-        self.fail("timed out waiting for %r; screen:\n%s" % (text, self.screen()))
+        s = self.term.wait_for(text, count)
+        if s is None:
+            self.fail("timed out waiting for %r; screen:\n%s" % (text, self.term.screen()))
+        return s
 
     def keys(self, *k):
-        subprocess.run([TMUX, "send-keys", "-t", self.session] + list(k), check=True)
+        self.term.keys(*k)
 
     def assertFits(self, text):
         long_lines = [l for l in text.splitlines() if len(l.rstrip()) > WIDTH]
@@ -134,7 +116,6 @@ class ConsoleTmuxTest(RecordTestCase):
         ]
         for args in screens:
             with self.subTest(screen=" ".join(args)):
-                self.kill()
                 self.start(args, "2026-11-04T09:00:00Z")
                 s = self.wait_for("EXIT=")
                 self.assertRegex(s, r"EXIT=(0|1[0-2])\b")

@@ -12,21 +12,18 @@ import contextlib
 import io
 import json
 import os
-import re
 import shlex
 import shutil
-import subprocess
 import sys
 import tempfile
-import time
 import unittest
 
 from fxlcli import BIN, main
+from tmux_terminal import TMUX, TmuxTerminal
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 DEMO_DIR = os.path.join(HERE, "..", "..", "demo")
 WIDTH = 80
-TMUX = shutil.which("tmux")
 NOW = "2026-11-16T09:00:00Z"    # the Monday after the demo's two weeks
 
 
@@ -137,7 +134,8 @@ class Screens80Test(unittest.TestCase):
 
     @unittest.skipIf(TMUX is None, "tmux is not installed")
     def test_in_a_real_80_column_terminal(self):
-        session = "fxl80-%d" % os.getpid()
+        term = TmuxTerminal(WIDTH, 50)
+        self.addCleanup(term.kill_server)
         d = self.demo
         for user, args in [("lsands", ["today"]), ("mkeller", ["detector", "list"]),
                            ("mkeller", ["levels", "list"]), ("mkeller", ["table", "list"]),
@@ -150,21 +148,10 @@ class Screens80Test(unittest.TestCase):
                       "FXLEDGER_DB=%s %s --user %s %s; echo EXIT=$?; sleep 600" % (
                           NOW, shlex.quote(state), shlex.quote(d.DB), shlex.quote(BIN), user,
                           " ".join(shlex.quote(a) for a in args))
-                subprocess.run([TMUX, "new-session", "-d", "-s", session, "-x", str(WIDTH),
-                                "-y", "50", cmd], check=True)
-                try:
-                    deadline = time.monotonic() + 30
-                    screen = ""
-                    while time.monotonic() < deadline:
-                        screen = subprocess.run([TMUX, "capture-pane", "-p", "-J", "-S", "-", "-t",
-                                                 session], capture_output=True, text=True).stdout
-                        if "EXIT=" in screen:
-                            break
-                        time.sleep(0.1)
-                    self.assertRegex(screen, r"EXIT=0\b")
-                    self.assertFits(screen, " ".join(args))
-                finally:
-                    subprocess.run([TMUX, "kill-session", "-t", session], capture_output=True)
+                term.start(cmd)
+                screen = term.wait_for("EXIT=") or term.screen()
+                self.assertRegex(screen, r"EXIT=0\b")
+                self.assertFits(screen, " ".join(args))
 
 
 if __name__ == "__main__":
