@@ -10,13 +10,12 @@ record_fixture.py:
 with --temp 20 (the calibration temperature) so that CF_T = 1.
 Test data is invented: no real patient, plan or detector."""
 import json
-import os
 import sqlite3
 import subprocess
 import time
 
 import record_fixture as rf
-from fxlcli import BIN, Fxl
+from fxlcli import Fxl, without_leak_check
 
 FRACTIONS = 100          # the most a plan may have (FXL_PLAN_FRACTIONS_MAX)
 TEMP_C = 20.0            # = the calibration temperature: CF_T = 1 (formula above)
@@ -91,9 +90,10 @@ def env_for(fx, user):
     return fx.env(user)
 
 
-def popen(fx, args, user):
-    """Starts fxledger on fx's database without waiting."""
-    env = env_for(fx, user)
+def popen_to_kill(fx, args, user):
+    """Starts fxledger on fx's database without waiting, for a test that may
+    kill it (no leak check at its exit, fxlcli.without_leak_check)."""
+    env = without_leak_check(env_for(fx, user))
     return subprocess.Popen(fx.argv(*args, user=user), env=env,
                             stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
                             stderr=subprocess.PIPE, text=True)

@@ -61,7 +61,7 @@ class CrashTest(unittest.TestCase):
             # Every fifth fraction 6 % high: review items and the rules over
             # history write in the same transaction.
             deviation = 6.0 if fraction % 5 == 0 else self.rng.uniform(-2.0, 2.0)
-            p = rb.popen(self.fx, rb.record_args(mrn, fraction, deviation),
+            p = rb.popen_to_kill(self.fx, rb.record_args(mrn, fraction, deviation),
                          self.rng.choice(rb.THERAPISTS))
             time.sleep(self.rng.uniform(0.0, max_delay_s))
             if p.poll() is None:

@@ -17,7 +17,7 @@ import sqlite3
 import subprocess
 import time
 
-from fxlcli import main
+from fxlcli import main, without_leak_check
 from record_fixture import MRN, SKIN_DEFAULT_C, RecordTestCase, deviation, dose
 
 CONTINUE = "continue treatment as planned"
@@ -116,7 +116,7 @@ class RecordInteractiveTest(RecordTestCase):
         """The session is killed (SIGKILL, no chance to clean up) while the
         second field is asked: the first field is in the database."""
         self.fx.ensure_session("tina")
-        env = self.fx.env("tina")
+        env = without_leak_check(self.fx.env("tina"))
         p = subprocess.Popen(self.fx.argv("record", "--patient", MRN, "--interactive", user="tina"),
                              stdin=subprocess.PIPE, stdout=subprocess.PIPE,
                              stderr=subprocess.PIPE, env=env)
