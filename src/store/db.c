@@ -16,6 +16,7 @@
 #include "store/ctx.h"
 #include "store/migrations.h"
 #include "store/seal.h"
+#include "store/sqlite_mem.h"
 #include "store/stmt.h"
 
 /* How long a writer waits for another process's lock before "busy". */
@@ -349,10 +350,12 @@ void fxl_store_configure(int one_thread)
 {
     /* Debian's SQLite is built thread-safe with memory statistics on: a
      * mutex and a counter on every allocation, about 12 % of the
-     * instructions of 'record' (docs/performance.md, change 19). Both calls
-     * are refused harmlessly (SQLITE_MISUSE) once SQLite has started. */
-    if (one_thread)
-        sqlite3_config(SQLITE_CONFIG_SINGLETHREAD);
+     * instructions of 'record' (docs/performance.md, change 19). Every call
+     * is refused harmlessly (SQLITE_MISUSE) once SQLite has started. From
+     * one thread, SQLite's small blocks also come from free lists by size
+     * class rather than malloc (sqlite_mem.c, change 23). */
+    if (one_thread && sqlite3_config(SQLITE_CONFIG_SINGLETHREAD) == SQLITE_OK)
+        fxl_sqlite_mem_install();
     sqlite3_config(SQLITE_CONFIG_MEMSTATUS, 0);
 }
 

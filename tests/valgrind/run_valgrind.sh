@@ -29,6 +29,11 @@ if [ $# -eq 0 ]; then
     # longer command-line tests are left to the sanitizer build.
     set -- tests/valgrind/session.py tests/cli/test_init.py tests/cli/test_audit.py
 fi
+# SQLite keeps the C library's malloc here, so that memcheck sees each of
+# its blocks (a command's own allocator for SQLite, src/store/sqlite_mem.c,
+# would hide a use after free inside its free lists).
+FXLEDGER_SQLITE_MALLOC=system
+export FXLEDGER_SQLITE_MALLOC
 rm -rf "$logs"
 mkdir -p "$logs/unit" "$logs/cli"
 status=0
