@@ -202,7 +202,7 @@ static int group_table(mreport *r, fxl_rq_grouping by, const char *heading, cons
     r->have = 0;
     r->rows = 0;
     memset(r->g, 0, sizeof r->g);
-    rc = fxl_rq_month_counts_each(r->s->ctx, r->from, r->to, by, on_group, r);
+    rc = fxl_rq_month_counts_each(r->s->ctx, by, on_group, r);
     if (rc == 0)
         flush_group(r);
     if (rc == 0 && r->rows == 0)
@@ -704,7 +704,8 @@ int fxl_report_month(fxl_ctx *ctx, fxl_report_result *out, const char *path, con
      * now for the month in progress. */
     snprintf(r->as_of, sizeof r->as_of, "%s",
              strcmp(s.generated_utc, r->to) < 0 ? s.generated_utc : r->to);
-    if ((rc = fxl_rq_month_counts_each(ctx, r->from, r->to, FXL_RQ_BY_NONE, on_total, r)) != 0)
+    if ((rc = fxl_rq_month_cells(ctx, r->from, r->to)) != 0 ||
+        (rc = fxl_rq_month_counts_each(ctx, FXL_RQ_BY_NONE, on_total, r)) != 0)
         goto cleanup;
 
     snprintf(d->title, sizeof d->title, "In vivo dosimetry \xE2\x80\x94 monthly summary");

@@ -220,10 +220,15 @@ typedef struct fxl_rq_count {
 
 typedef int (*fxl_rq_count_cb)(void *arg, const fxl_rq_count *c);
 
-/* Counts of current (not superseded) measurements treated in [from, to) per
- * group and verdict, ordered by group so that one group's rows are adjacent. */
-int fxl_rq_month_counts_each(fxl_ctx *ctx, const char *from, const char *to,
-                             fxl_rq_grouping by, fxl_rq_count_cb cb, void *arg);
+/* Counts the current (not superseded) measurements treated in [from, to)
+ * once, by site, technique, modality, energy, detector and verdict, into a
+ * temporary table of the connection (inside the report's snapshot; the
+ * snapshot's end removes it). Replaces the cells of an earlier call. */
+int fxl_rq_month_cells(fxl_ctx *ctx, const char *from, const char *to);
+
+/* The counts of those cells per group and verdict, ordered by group so that
+ * one group's rows are adjacent. fxl_rq_month_cells first. */
+int fxl_rq_month_counts_each(fxl_ctx *ctx, fxl_rq_grouping by, fxl_rq_count_cb cb, void *arg);
 
 typedef struct fxl_rq_levels_used {
     double tolerance_pct;
