@@ -623,11 +623,15 @@ int fxl_rq_calibrations_due_each(fxl_ctx *ctx, const char *as_of, int due_days,
 
     rc = fxl_stmt_prepare(&s, ctx,
         "SELECT " CALIBRATION_COLUMNS "FROM calibrations c " CALIBRATION_JOINS
+        /* c is its series' latest calibration at :asof (the latest time,
+         * then the highest id): one descending seek in
+         * calibrations_by_detector per calibration. A NOT EXISTS of a later
+         * one walked the series' earlier rows for each of them, quadratic
+         * in a series' length (docs/performance.md, change 25). */
         "WHERE c.calibrated_at <= :asof "
-        "  AND NOT EXISTS (SELECT 1 FROM calibrations c2 WHERE c2.detector_id = c.detector_id "
+        "  AND c.id = (SELECT c2.id FROM calibrations c2 WHERE c2.detector_id = c.detector_id "
         "    AND c2.beam_id = c.beam_id AND c2.point = c.point AND c2.calibrated_at <= :asof "
-        "    AND (c2.calibrated_at > c.calibrated_at "
-        "         OR (c2.calibrated_at = c.calibrated_at AND c2.id > c.id))) "
+        "    ORDER BY c2.calibrated_at DESC, c2.id DESC LIMIT 1) "
         "  AND " STATUS_AT("c.detector_id") " <> 'retired' "
         "  AND julianday(c.valid_until) < julianday(:asof) + :days "
         "ORDER BY c.valid_until, d.label, mc.name, b.name, c.point");

@@ -195,12 +195,14 @@ def bench_record(args, sess, db, twin, targets, groups, rounds, results_peak):
     that interleaved() can run the rounds of two databases in turn; its
     value is {group: timings}.
 
-    Before the timed rounds, one fraction on every detector the rounds will
-    use (untimed for the medians, timed as "first"): a department's
-    detectors have logged earlier fractions, so the rules' kept state
-    (sql/015, docs/rules.md) is there, as in service. Such a first fraction
-    reads the detector's rows since its calibration, as every fraction did
-    before the kept state; its times are kept apart in "first"."""
+    Before the timed rounds, one fraction of every course the rounds will
+    use (untimed for the medians; the first on each detector timed as
+    "first"): a department's detectors and courses have logged earlier
+    fractions, so the rules' kept state (sql/015, docs/rules.md: the dose
+    per detector, a drift chart per detector, beam and point) is there, as
+    in service. Such a first fraction reads the rows since the calibration,
+    as every fraction did before the kept state; its times are kept apart
+    in "first"."""
     day = targets["next_day"]
     res = {g: {"fx": [], "fx_cpu": [], "sq": [], "sq_cpu": [], "rows": [], "codes": [],
                "first": [], "detector": None, "detector_years": None} for g in groups}
@@ -212,7 +214,8 @@ def bench_record(args, sess, db, twin, targets, groups, rounds, results_peak):
     script = os.path.join(args.workdir, "insert.sql")
 
     def choose(g, i):
-        pool = [c for c in pools[g] if c["next_fraction"] + c["logged"] <= c["fractions"]]
+        # room for this fraction and the course's first fraction before the rounds
+        pool = [c for c in pools[g] if c["next_fraction"] + c["logged"] + 1 <= c["fractions"]]
         # entrance-only plans while they last: all three readings evaluable
         entrance = [c for c in pool if not any(f["field"].endswith(":exit") for f in c["fields"])]
         pool = entrance or pool
@@ -253,14 +256,30 @@ def bench_record(args, sess, db, twin, targets, groups, rounds, results_peak):
                 sys.exit("run_bench: the sqlite3 shell failed (%d):\n%s" % (scode, sout))
         return t_fx, cpu_fx, code, t_sq, cpu_sq, n
 
-    # the first fraction on each detector of the rounds (the first of all
-    # measures the peak memory)
-    for g in groups:
-        seen = set()
-        for i in range(rounds + 1):
+    # The rounds' courses, chosen first (a course the first fractions below
+    # filled up would otherwise shift the choice onto courses never logged).
+    schedule = {g: [] for g in groups}
+    for i in range(rounds + 1):
+        for g in groups:
             c = choose(g, i)
+            c["logged"] += 1            # reserved for round i
+            schedule[g].append(c)
+    for g in groups:
+        for c in schedule[g]:
+            c["logged"] -= 1
+    # a first fraction of each course of the rounds (the first of all
+    # measures the peak memory; the first on each detector is timed)
+    for g in groups:
+        seen, courses = set(), set()
+        for c in schedule[g]:
+            if c["mrn"] in courses:
+                continue
+            courses.add(c["mrn"])
             dets = {f["detector"] for f in c["fields"]}
             if dets <= seen:
+                # a course of a detector already warm: its own drift series
+                # (detector, beam, point) start here, untimed
+                log(c)
                 continue
             seen |= dets
             peak = results_peak is not None and g == groups[0] and not res[g]["first"] and \
@@ -270,7 +289,7 @@ def bench_record(args, sess, db, twin, targets, groups, rounds, results_peak):
     for i in range(rounds + 1):                 # round 0 warms up, untimed
         yield
         for g in groups:
-            c = choose(g, i)
+            c = schedule[g][i]
             t_fx, cpu_fx, code, t_sq, cpu_sq, n = log(c)
             r = res[g]
             r["detector"], r["detector_years"] = c["detector"], c["detector_years"]
@@ -506,8 +525,11 @@ def main():
             targets_net = json.load(f)
         with section(results, "network timings"):
             netdb = copy_db(net_gen, os.path.join(args.workdir, "run-network.db"))
-            # the copy's 10 GiB on the disk first, or its write-back slows the commits timed next
+            # the copy's 10 GiB on the disk first, or its write-back slows the commits timed
+            # next; then read once, so that its pages are in the page cache like the others'
+            # (copying it pushed part of it out: 15,760 blocks read from the disk by one record)
             os.sync()
+            benchlib.read_through(netdb)
             s_net = Session(args, netdb, start_now)
             # the department's young diodes again, round by round with the network's: paired
             rec_net, rec_dept = interleaved(
